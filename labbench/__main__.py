@@ -1,0 +1,3 @@
+from labbench.cli import entry
+
+entry()
