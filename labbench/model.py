@@ -1,0 +1,61 @@
+"""A trained model ready to use: fitted preprocessing + one network + what it was trained for.
+
+This is what the search's winner refit produces, what the model bundle stores and loads, what
+``labbench predict`` and the ONNX export consume. It holds plain objects only (no Optuna, no Qt).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+import pandas as pd
+
+from labbench.errors import BundleError
+
+
+@dataclass(frozen=True)
+class TrainedModel:
+    preprocessor: Any                 # labbench.data.Preprocessor (fitted)
+    weights: Any                      # labbench.nets.NetWeights
+    task: str                         # "regression" | "binary" | "multiclass"
+    target: str
+    features: tuple[str, ...]         # input columns in training order
+    kinds: Mapping[str, str]          # feature -> "numeric" | "categorical"
+    classes: tuple[str, ...] | None   # class labels (classification), index = output column
+    settings: Mapping[str, Any] = field(default_factory=dict)   # the winning settings
+    metric: str = ""
+    scores: Mapping[str, Any] = field(default_factory=dict)     # cv_mean, cv_std, holdout_score ...
+    data_sha256: str = ""
+    id_column: str | None = None
+
+    def _inputs(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
+        missing = [c for c in self.features if c not in frame.columns]
+        if missing:
+            raise BundleError(
+                f"{source}: missing column(s) {', '.join(missing)}; the model needs "
+                f"{', '.join(self.features)}"
+            )
+        return self.preprocessor.transform(frame.loc[:, list(self.features)])
+
+    def output(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
+        """Raw network output: regression values (n,), P(class 1) (n,), or class probabilities (n, C)."""
+        return np.asarray(self.weights.forward(self._inputs(frame, source)))
+
+    def predict(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
+        out = self.output(frame, source)
+        if self.task == "regression":
+            return out.astype(np.float64)
+        labels = np.asarray(self.classes, dtype=object)
+        if self.task == "binary":
+            return labels[(out >= 0.5).astype(int)]
+        return labels[np.argmax(out, axis=1)]
+
+    def predict_proba(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
+        if self.task == "regression":
+            raise BundleError("predict_proba: a regression model gives values, not class probabilities")
+        out = self.output(frame, source)
+        if self.task == "binary":
+            return np.column_stack([1.0 - out, out])
+        return out
