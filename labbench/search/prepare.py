@@ -1,0 +1,78 @@
+"""From a spec to the arrays a search trains on: table, task, metric, hold-out, folds.
+
+Order matters and is fixed here once for the runner and the winner refit alike:
+
+1. load the table with the spec's data settings;
+2. resolve the task (spec override or inferred) and the metric (spec or the task's default);
+3. split off the hold-out FIRST (``evaluation.seed``), so its rows never reach any fold;
+4. make the folds on the training rows only and fit one preprocessor per fold (``FoldArrays``).
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from labbench.search.spec import Spec, check_metric
+
+log = logging.getLogger("labbench.search.prepare")
+
+
+@dataclass(frozen=True)
+class Prepared:
+    table: Any                         # labbench.data.Table
+    task: str                          # "regression" | "binary" | "multiclass"
+    metric: str
+    direction: str                     # "maximize" | "minimize"
+    train_pos: np.ndarray              # positions into the table: the rows the search sees
+    holdout_pos: np.ndarray            # positions into the table: locked away until the end
+    folds: tuple                       # (train, val) positions into train_pos, one pair per fold
+    fold_arrays: Any                   # labbench.data.FoldArrays (rows = positions into the table)
+
+    @property
+    def n_outputs(self) -> int:
+        return len(self.table.classes) if self.task == "multiclass" else 1
+
+    @property
+    def n_classes(self) -> int | None:
+        return len(self.table.classes) if self.table.classes is not None else None
+
+    @property
+    def stratify(self) -> bool:
+        return self.task != "regression"
+
+
+def metric_direction(metric: str) -> str:
+    from labbench.nets.metrics import METRICS
+
+    return METRICS[metric].direction
+
+
+def prepare(spec: Spec) -> Prepared:
+    """Load and split the spec's data. Raises DataError / SpecError with one-line messages."""
+    from labbench.data import check_folds, holdout_split, load_table, make_folds, prepare_folds
+    from labbench.nets.metrics import default_metric
+
+    d, e = spec.data, spec.evaluation
+    table = load_table(d.path, d.target, ignore=d.ignore, kinds=dict(d.kinds) or None,
+                       task=d.task, missing=d.missing)
+    task = table.task
+    metric = e.metric or default_metric(task)
+    if e.metric:
+        check_metric(metric, task, spec.source_path)
+    check_folds(table, e.folds, e.holdout)
+    stratify = task != "regression"
+    train_pos, holdout_pos = holdout_split(table.y, e.holdout, seed=e.seed, stratify=stratify)
+    train_pos = np.asarray(train_pos, dtype=np.int64)
+    holdout_pos = np.asarray(holdout_pos, dtype=np.int64)
+    folds = make_folds(table.y[train_pos], e.folds, repeats=e.repeats, seed=e.seed,
+                       stratify=stratify)
+    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling)
+    log.info("%s: %d training rows, %d hold-out rows, %d folds", d.path, len(train_pos),
+             len(holdout_pos), len(folds))
+    return Prepared(table=table, task=task, metric=metric, direction=metric_direction(metric),
+                    train_pos=train_pos, holdout_pos=holdout_pos, folds=tuple(folds),
+                    fold_arrays=fold_arrays)

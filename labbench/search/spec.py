@@ -1,0 +1,354 @@
+"""The spec file: one human-editable TOML file holds a whole experiment.
+
+```toml
+[data]          path, target, ignore, task, kinds, missing, scaling
+[evaluation]    folds, repeats, holdout, seed, metric, seed_spread
+[search]        trials, minutes, sampler, pruner, workers, storage, name
+[space]         one entry per network setting (see labbench.search.space)
+```
+
+``load_spec(path)`` reads and checks it (every problem a one-line ``SpecError`` naming the file,
+the dotted key, the value and what is allowed); ``Spec.to_toml()`` / ``save_spec`` write it back.
+The data path is stored absolute and written relative to the folder the spec is saved in.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import os
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+import tomli_w
+
+from labbench.errors import SpecError
+from labbench.search.space import SearchSpace, show, spec_error
+
+TASKS = ("regression", "binary", "multiclass")
+KINDS = ("numeric", "categorical")
+MISSING = ("impute", "drop")
+SCALING = ("standard", "minmax")
+SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
+PRUNERS = ("none", "median", "halving", "hyperband")
+DEFAULT_TRIALS = 40
+
+_SECTIONS = ("data", "evaluation", "search", "space")
+
+
+@dataclass(frozen=True)
+class DataSpec:
+    path: str                                   # absolute path of the CSV
+    target: str
+    ignore: tuple[str, ...] = ()
+    task: str | None = None                     # None: inferred from the target column
+    kinds: Mapping[str, str] = field(default_factory=dict)   # column -> numeric | categorical
+    missing: str = "impute"
+    scaling: str = "standard"
+
+
+@dataclass(frozen=True)
+class EvaluationSpec:
+    folds: int = 5
+    repeats: int = 1
+    holdout: float = 0.2
+    seed: int = 0
+    metric: str | None = None                   # None: the task's default metric
+    seed_spread: int = 5                        # seeds for the winner's spread check; 0 = skip
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    trials: int | None = DEFAULT_TRIALS
+    minutes: float | None = None
+    sampler: str = "tpe"
+    pruner: str = "median"
+    workers: int = 1
+    storage: str | None = None                  # None: a SQLite file beside the spec
+    name: str | None = None                     # None: the spec file's stem
+
+
+@dataclass(frozen=True)
+class Spec:
+    data: DataSpec
+    evaluation: EvaluationSpec = field(default_factory=EvaluationSpec)
+    search: SearchSettings = field(default_factory=SearchSettings)
+    space: SearchSpace = field(default_factory=SearchSpace.default)
+    source_path: str | None = field(default=None, compare=False)
+
+    def study_name(self) -> str:
+        if self.search.name:
+            return self.search.name
+        return Path(self.source_path).stem if self.source_path else "labbench"
+
+    def base_dir(self) -> str:
+        return str(Path(self.source_path).resolve().parent) if self.source_path else os.getcwd()
+
+    def to_dict(self, base_dir: str | os.PathLike | None = None) -> dict[str, Any]:
+        """TOML-ready; the data path relative to ``base_dir`` (default: the spec's folder)."""
+        base = Path(base_dir if base_dir is not None else self.base_dir()).resolve()
+        d, e, s = self.data, self.evaluation, self.search
+        data: dict[str, Any] = {"path": _relative(d.path, base), "target": d.target}
+        if d.ignore:
+            data["ignore"] = list(d.ignore)
+        if d.task:
+            data["task"] = d.task
+        if d.kinds:
+            data["kinds"] = dict(d.kinds)
+        data["missing"] = d.missing
+        data["scaling"] = d.scaling
+        evaluation: dict[str, Any] = {"folds": e.folds, "repeats": e.repeats, "holdout": e.holdout,
+                                      "seed": e.seed}
+        if e.metric:
+            evaluation["metric"] = e.metric
+        evaluation["seed_spread"] = e.seed_spread
+        search: dict[str, Any] = {}
+        if s.trials is not None:
+            search["trials"] = s.trials
+        if s.minutes is not None:
+            search["minutes"] = s.minutes
+        search.update(sampler=s.sampler, pruner=s.pruner, workers=s.workers)
+        if s.storage:
+            search["storage"] = s.storage
+        if s.name:
+            search["name"] = s.name
+        return {"data": data, "evaluation": evaluation, "search": search,
+                "space": self.space.to_dict()}
+
+    def to_toml(self, base_dir: str | os.PathLike | None = None) -> str:
+        return tomli_w.dumps(self.to_dict(base_dir))
+
+    # ---- validated copies (command-line overrides, the window's edits)
+
+    def _rebuilt(self, section: str, changes: Mapping[str, Any]) -> "Spec":
+        d = self.to_dict()
+        for key, value in changes.items():
+            if value is None:
+                d[section].pop(key, None)
+            else:
+                d[section][key] = list(value) if isinstance(value, tuple) else value
+        if section == "search" and "trials" in changes and changes["trials"] is None \
+                and "minutes" not in d["search"]:
+            raise spec_error(self.source_path, "search.trials", "no budget left; give trials or minutes")
+        return spec_from_dict(d, self.base_dir(), self.source_path)
+
+    def with_data(self, **changes: Any) -> "Spec":
+        return self._rebuilt("data", changes)
+
+    def with_evaluation(self, **changes: Any) -> "Spec":
+        return self._rebuilt("evaluation", changes)
+
+    def with_search(self, **changes: Any) -> "Spec":
+        """E.g. ``spec.with_search(trials=10, workers=2)``; ``None`` removes an optional key."""
+        return self._rebuilt("search", changes)
+
+    def with_space(self, space: SearchSpace) -> "Spec":
+        spec = dataclasses.replace(self, space=space)
+        _check_sampler_space(spec.search, space, self.source_path)
+        return spec
+
+
+def _relative(path: str, base: Path) -> str:
+    p = Path(path)
+    try:
+        return Path(os.path.relpath(p, base)).as_posix()
+    except ValueError:          # another drive (Windows)
+        return p.as_posix()
+
+
+# --------------------------------------------------------------------------------------------
+# reading
+
+
+def load_spec(path: str | os.PathLike) -> Spec:
+    p = Path(path)
+    source = str(p)
+    try:
+        raw = p.read_bytes()
+    except FileNotFoundError:
+        raise spec_error(None, source, "spec file not found; check the path") from None
+    except OSError as exc:
+        raise spec_error(None, source, f"cannot read the spec file ({exc.strerror})") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise spec_error(None, source, "not UTF-8 text; save the spec file as UTF-8") from None
+    return loads_spec(text, p.resolve().parent, source)
+
+
+def loads_spec(text: str, base_dir: str | os.PathLike, source: str | None = None) -> Spec:
+    try:
+        d = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        where = f"{source}: " if source else ""
+        raise SpecError(f"{where}not valid TOML: {exc}; fix the syntax there") from None
+    return spec_from_dict(d, base_dir, source)
+
+
+def save_spec(spec: Spec, path: str | os.PathLike) -> Spec:
+    """Write the spec to ``path`` (data path relative to its folder); returns it with that source."""
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    p.write_text(spec.to_toml(p.resolve().parent), encoding="utf-8")
+    return dataclasses.replace(spec, source_path=str(p))
+
+
+class _Section:
+    """Reads one table of the file with typed getters that name the dotted key on error."""
+
+    def __init__(self, d: Any, name: str, known: tuple[str, ...], source: str | None):
+        self.name, self.source = name, source
+        if not isinstance(d, Mapping):
+            raise spec_error(source, name, f"{show(d)} is not a table; write [{name}] with keys "
+                             + ", ".join(known))
+        unknown = [k for k in d if k not in known]
+        if unknown:
+            raise spec_error(source, f"{name}.{unknown[0]}", "unknown key; known keys are "
+                             + ", ".join(known))
+        self.d = d
+
+    def fail(self, key: str, message: str):
+        return spec_error(self.source, f"{self.name}.{key}", message)
+
+    def has(self, key: str) -> bool:
+        return key in self.d
+
+    def text(self, key: str, default: Any = None, *, required: bool = False,
+             choices: tuple[str, ...] | None = None) -> Any:
+        if key not in self.d:
+            if required:
+                raise self.fail(key, "missing; this key is required")
+            return default
+        v = self.d[key]
+        if choices is not None and v not in choices:
+            raise self.fail(key, f"{show(v)} is not allowed; use one of "
+                            + ", ".join(f'"{c}"' for c in choices))
+        if not isinstance(v, str) or not v.strip():
+            raise self.fail(key, f"{show(v)} is not allowed; write a non-empty text in quotes")
+        return v
+
+    def integer(self, key: str, default: Any, *, least: int) -> Any:
+        if key not in self.d:
+            return default
+        v = self.d[key]
+        if isinstance(v, bool) or not isinstance(v, int) or v < least:
+            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}")
+        return v
+
+    def number(self, key: str, default: Any, *, above: float, below: float | None = None) -> Any:
+        if key not in self.d:
+            return default
+        v = self.d[key]
+        ok = not isinstance(v, bool) and isinstance(v, (int, float)) and v > above \
+            and (below is None or v < below)
+        if not ok:
+            rule = f"a number above {show(above)}" + (f" and below {show(below)}" if below else "")
+            raise self.fail(key, f"{show(v)} is not allowed; write {rule}")
+        return float(v)
+
+    def texts(self, key: str) -> tuple[str, ...]:
+        v = self.d.get(key, [])
+        if not isinstance(v, list) or not all(isinstance(x, str) and x for x in v):
+            raise self.fail(key, f"{show(v)} is not allowed; write a list of column names, "
+                            'e.g. ["id"]')
+        if len(set(v)) != len(v):
+            raise self.fail(key, f"{show(v)} names a column twice")
+        return tuple(v)
+
+
+def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
+                   source: str | None = None) -> Spec:
+    """Check a parsed spec (all sections) and build the Spec. ``base_dir``: where a relative
+    data path starts."""
+    unknown = [k for k in d if k not in _SECTIONS]
+    if unknown:
+        raise spec_error(source, unknown[0], "unknown section; known sections are "
+                         + ", ".join(f"[{s}]" for s in _SECTIONS))
+    if "data" not in d:
+        raise spec_error(source, "data", "missing section; a spec needs [data] with path and target")
+
+    ds = _Section(d["data"], "data", ("path", "target", "ignore", "task", "kinds", "missing",
+                                      "scaling"), source)
+    path = ds.text("path", required=True)
+    kinds = ds.d.get("kinds", {})
+    if not isinstance(kinds, Mapping):
+        raise ds.fail("kinds", f"{show(kinds)} is not a table; write kinds = {{ column = \"categorical\" }}")
+    for col, kind in kinds.items():
+        if kind not in KINDS:
+            raise ds.fail(f"kinds.{col}", f"{show(kind)} is not allowed; use one of "
+                          + ", ".join(f'"{k}"' for k in KINDS))
+    data = DataSpec(
+        path=os.path.normpath(os.path.join(os.path.abspath(base_dir), path)),
+        target=ds.text("target", required=True),
+        ignore=ds.texts("ignore"),
+        task=ds.text("task", choices=TASKS),
+        kinds=dict(kinds),
+        missing=ds.text("missing", "impute", choices=MISSING),
+        scaling=ds.text("scaling", "standard", choices=SCALING),
+    )
+    if data.target in data.ignore:
+        raise ds.fail("ignore", f"lists the target {show(data.target)}; remove it from ignore")
+
+    es = _Section(d.get("evaluation", {}), "evaluation",
+                  ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
+    spread = es.integer("seed_spread", 5, least=0)
+    if spread == 1:
+        raise es.fail("seed_spread", "1 is not allowed; write 0 to skip the check or 2 or more seeds")
+    evaluation = EvaluationSpec(
+        folds=es.integer("folds", 5, least=2),
+        repeats=es.integer("repeats", 1, least=1),
+        holdout=es.number("holdout", 0.2, above=0.0, below=0.9),
+        seed=es.integer("seed", 0, least=0),
+        metric=es.text("metric"),
+        seed_spread=spread,
+    )
+    if evaluation.metric is not None:
+        check_metric(evaluation.metric, data.task, source)
+
+    ss = _Section(d.get("search", {}), "search",
+                  ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
+    trials = ss.integer("trials", None, least=1)
+    minutes = ss.number("minutes", None, above=0.0)
+    if trials is None and minutes is None:
+        trials = DEFAULT_TRIALS
+    storage = ss.text("storage")
+    if storage is not None and "://" not in storage:
+        raise ss.fail("storage", f"{show(storage)} is not a database URL; write e.g. "
+                      '"sqlite:///search.db" or "postgresql+psycopg://user@host/db"')
+    search = SearchSettings(
+        trials=trials,
+        minutes=minutes,
+        sampler=ss.text("sampler", "tpe", choices=SAMPLERS),
+        pruner=ss.text("pruner", "median", choices=PRUNERS),
+        workers=ss.integer("workers", 1, least=1),
+        storage=storage,
+        name=ss.text("name"),
+    )
+
+    space_raw = d.get("space", {})
+    if not isinstance(space_raw, Mapping):
+        raise spec_error(source, "space", f"{show(space_raw)} is not a table; write [space] "
+                         "with one line per setting")
+    space = SearchSpace.from_dict(space_raw, source)
+    _check_sampler_space(search, space, source)
+    return Spec(data, evaluation, search, space, source)
+
+
+def _check_sampler_space(search: SearchSettings, space: SearchSpace, source: str | None) -> None:
+    if search.sampler == "grid":
+        space.grid()            # raises a SpecError naming the setting that cannot be gridded
+
+
+def check_metric(metric: str, task: str | None, source: str | None = None,
+                 key: str = "evaluation.metric") -> None:
+    """Raise a SpecError when ``metric`` is unknown or (when the task is known) does not fit it."""
+    from labbench.nets.metrics import METRICS
+
+    if metric not in METRICS:
+        raise spec_error(source, key, f"{show(metric)} is not a known metric; use one of "
+                         + ", ".join(METRICS))
+    if task is not None and task not in METRICS[metric].tasks:
+        fits = [n for n, info in METRICS.items() if task in info.tasks]
+        raise spec_error(source, key, f"{show(metric)} does not fit a {task} task; use one of "
+                         + ", ".join(fits))
