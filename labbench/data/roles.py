@@ -1,0 +1,128 @@
+"""Column kinds (numeric / categorical), the task a target implies, and value conversions.
+
+Rules (common practice): a column pandas reads as numbers (or True/False) is numeric, even an
+integer column with few distinct values (a count, a rating) - the user can override it to
+categorical; a text column is categorical. A target of text or True/False is a class label
+(2 distinct: binary, more: multiclass); a numeric target with 2 distinct values is binary, with at
+most ``MAX_CLASSES`` distinct whole numbers multiclass, otherwise regression.
+"""
+
+from __future__ import annotations
+
+from typing import Mapping
+
+import numpy as np
+import pandas as pd
+
+from labbench.errors import DataError
+from labbench.data.reading import show
+
+KINDS = ("numeric", "categorical")
+TASKS = ("regression", "binary", "multiclass")
+MAX_CLASSES = 20   # whole-number targets with more distinct values are treated as regression
+
+
+def is_numeric(series: pd.Series) -> bool:
+    return bool(pd.api.types.is_numeric_dtype(series) or pd.api.types.is_bool_dtype(series))
+
+
+def infer_kinds(frame: pd.DataFrame) -> dict[str, str]:
+    """Each column's kind: "numeric" for numbers and True/False, "categorical" for text."""
+    return {str(col): ("numeric" if is_numeric(frame[col]) else "categorical") for col in frame.columns}
+
+
+def infer_task(series: pd.Series) -> str:
+    """The task a target column implies (missing values are ignored)."""
+    values = series.dropna()
+    distinct = int(values.nunique())
+    if distinct < 2:
+        only = show(values.iloc[0]) if len(values) else "nothing"
+        raise DataError(f"target {show(series.name)} has a single value ({only}) in every row; "
+                        "a model needs a target that varies")
+    if distinct == 2:
+        return "binary"
+    if not is_numeric(series) or pd.api.types.is_bool_dtype(series):
+        return "multiclass"
+    v = values.to_numpy(dtype=np.float64)
+    if distinct <= MAX_CLASSES and np.all(v == np.round(v)):
+        return "multiclass"
+    return "regression"
+
+
+_FIX_FEATURE = "fix that value, leave it empty for missing, or treat the column as categorical"
+
+
+def as_float(series: pd.Series, column: str, where: str = "", lines: np.ndarray | None = None,
+             fix: str = _FIX_FEATURE) -> np.ndarray:
+    """A column as float64 with NaN for missing; text that is not a number is a DataError.
+
+    ``where`` starts the message (usually the file name); ``lines`` maps positions to file lines.
+    """
+    if is_numeric(series):
+        return series.to_numpy(dtype=np.float64, na_value=np.nan)
+    converted = pd.to_numeric(series, errors="coerce")
+    bad = (series.notna() & converted.isna()).to_numpy()
+    if bad.any():
+        pos = int(np.argmax(bad))
+        place = f"line {int(lines[pos])}" if lines is not None else f"row {pos + 1}"
+        prefix = f"{where}: " if where else ""
+        raise DataError(
+            f"{prefix}column {show(column)} must hold numbers but {place} holds "
+            f"{show(series.iloc[pos])}; {fix}"
+        )
+    return converted.to_numpy(dtype=np.float64, na_value=np.nan)
+
+
+def category_text(series: pd.Series) -> np.ndarray:
+    """Values as category labels (object array of str, None where missing).
+
+    ``str(value)`` with two refinements so a file with and without missing values agree:
+    whole-number floats read as integers ("3", not "3.0"), and surrounding spaces are stripped.
+    """
+    n = len(series)
+    missing = series.isna().to_numpy()
+    out = np.empty(n, dtype=object)
+    if pd.api.types.is_bool_dtype(series):
+        out[:] = np.where(series.to_numpy(dtype=bool, na_value=False), "True", "False")
+    elif pd.api.types.is_numeric_dtype(series):
+        v = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        whole = np.isfinite(v) & (v == np.floor(v)) & (np.abs(v) < 1e15)
+        out[whole] = v[whole].astype(np.int64).astype(str)
+        other = ~whole & ~missing
+        out[other] = v[other].astype(str)
+    else:
+        out[:] = series.astype(str).str.strip().to_numpy(dtype=object, na_value=None)
+    out[missing] = None
+    return out
+
+
+def class_labels(series: pd.Series) -> tuple[tuple[str, ...], np.ndarray]:
+    """Sorted class labels as strings and int64 codes into them (no missing values expected).
+
+    Numeric labels sort by value (2 before 10), text labels alphabetically.
+    """
+    text = category_text(series)
+    if is_numeric(series) and not pd.api.types.is_bool_dtype(series):
+        values = series.to_numpy(dtype=np.float64)
+        uniq_vals, first = np.unique(values, return_index=True)
+        classes = tuple(str(t) for t in text[first])
+    else:
+        classes = tuple(sorted(set(text.tolist())))
+    codes = pd.Categorical(text, categories=list(classes)).codes.astype(np.int64)
+    return classes, codes
+
+
+def check_kinds(kinds: Mapping[str, str] | None, columns: list[str], target: str, where: str) -> dict[str, str]:
+    """Validate a user's kind overrides against the file's columns."""
+    out: dict[str, str] = {}
+    for col, kind in (kinds or {}).items():
+        if col == target:
+            raise DataError(f"{where}: kinds: {show(col)} is the target; set the task "
+                            "(regression, binary, multiclass) instead of its kind")
+        if col not in columns:
+            raise DataError(f"{where}: kinds: no column {show(col)}; the columns are "
+                            f"{', '.join(columns)}")
+        if kind not in KINDS:
+            raise DataError(f"{where}: kinds: {show(col)} = {show(kind)}; use 'numeric' or 'categorical'")
+        out[col] = kind
+    return out

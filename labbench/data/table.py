@@ -1,0 +1,206 @@
+"""A validated table: the feature columns, the encoded target, column roles, and what was changed.
+
+``load_table`` reads the file (:mod:`labbench.data.reading`), assigns roles (target, ignored,
+features), drops what cannot be used (rows without a target, constant columns, rows with missing
+values under ``missing="drop"``) with a warning for each, and refuses with a one-line
+:class:`DataError` what cannot be fixed silently. Nothing is fitted here: imputation and scaling
+are fitted per fold later (:mod:`labbench.data.prep`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import logging
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+
+from labbench.errors import DataError
+from labbench.data.reading import read_file, show
+from labbench.data.roles import (TASKS, as_float, category_text, check_kinds, class_labels,
+                                 infer_kinds, infer_task, is_numeric)
+
+log = logging.getLogger("labbench.data")
+
+MISSING_POLICIES = ("impute", "drop")
+
+
+@dataclass(frozen=True)
+class Table:
+    path: str
+    frame: pd.DataFrame              # the feature columns only, original values, index 0..n-1
+    target: str
+    features: tuple[str, ...]        # file order, minus target, ignored, constant
+    kinds: Mapping[str, str]         # feature -> "numeric" | "categorical"
+    task: str                        # "regression" | "binary" | "multiclass"
+    classes: tuple[str, ...] | None  # sorted class labels as strings; y holds codes into it
+    y: np.ndarray                    # float64 (regression) or int64 codes 0..C-1
+    ids: np.ndarray | None           # values of the first ignored column, else None
+    id_column: str | None
+    sha256: str                      # of the file's bytes
+    warnings: tuple[str, ...]
+
+    @property
+    def n_rows(self) -> int:
+        return int(len(self.y))
+
+    @property
+    def numeric(self) -> tuple[str, ...]:
+        return tuple(f for f in self.features if self.kinds[f] == "numeric")
+
+    @property
+    def categorical(self) -> tuple[str, ...]:
+        return tuple(f for f in self.features if self.kinds[f] == "categorical")
+
+
+def _lines_text(lines: np.ndarray, limit: int = 5) -> str:
+    shown = ", ".join(str(int(x)) for x in lines[:limit])
+    return ("line " if len(lines) == 1 else "lines ") + shown + (", ..." if len(lines) > limit else "")
+
+
+def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
+               kinds: Mapping[str, str] | None = None, task: str | None = None,
+               missing: str = "impute") -> Table:
+    """Read ``path`` and make a :class:`Table` with ``target`` as the column to predict."""
+    where = str(path)
+    if missing not in MISSING_POLICIES:
+        raise DataError(f"{where}: missing = {show(missing)}; use 'impute' (fill per fold) or 'drop' (drop rows)")
+    if task is not None and task not in TASKS:
+        raise DataError(f"{where}: task = {show(task)}; use one of {', '.join(TASKS)} (or leave it out)")
+    if isinstance(ignore, str):
+        ignore = (ignore,)
+    read = read_file(path)
+    frame, lines, notes = read.frame, read.lines, list(read.warnings)
+    columns = [str(c) for c in frame.columns]
+
+    if target not in columns:
+        raise DataError(f"{where}: no column {show(target)} for the target; the columns are {', '.join(columns)}")
+    for col in ignore:
+        if col not in columns:
+            raise DataError(f"{where}: ignore: no column {show(col)}; the columns are {', '.join(columns)}")
+        if col == target:
+            raise DataError(f"{where}: ignore: {show(col)} is the target; remove it from the ignored columns")
+    overrides = check_kinds(kinds, columns, target, where)
+    ignored = set(ignore)
+    for col in overrides:
+        if col in ignored:
+            raise DataError(f"{where}: kinds: {show(col)} is ignored; remove it from kinds or from ignore")
+
+    # rows without a target are of no use: drop them (with a warning)
+    y_raw = frame[target]
+    no_target = y_raw.isna().to_numpy()
+    if no_target.all():
+        raise DataError(f"{where}: the target column {show(target)} is empty in every row; "
+                        "choose another target or fill it in")
+    keep = ~no_target
+    if no_target.any():
+        notes.append(f"{where}: dropped {int(no_target.sum())} row(s) with no value in the target "
+                     f"{show(target)} ({_lines_text(lines[no_target])})")
+
+    features = [c for c in columns if c != target and c not in ignored]
+    if not features:
+        raise DataError(f"{where}: no feature columns left besides the target {show(target)}"
+                        + (" and the ignored ones" if ignored else "") + "; the table needs at least one input column")
+    kinds_ = infer_kinds(frame[features])
+    kinds_.update(overrides)
+    feats = frame[features].copy()
+    for col in features:
+        if kinds_[col] == "numeric" and not is_numeric(feats[col]):
+            feats[col] = as_float(feats[col], col, where, lines)
+        if kinds_[col] == "numeric":
+            _check_finite(feats[col], col, where, lines)
+
+    if missing == "drop":
+        incomplete = feats.isna().any(axis=1).to_numpy() & keep
+        if incomplete.any():
+            notes.append(f"{where}: dropped {int(incomplete.sum())} row(s) with missing values "
+                         f"({_lines_text(lines[incomplete])}) as missing = 'drop' asks")
+            keep &= ~incomplete
+        if not keep.any():
+            raise DataError(f"{where}: no row is complete, so missing = 'drop' leaves nothing; "
+                            "use missing = 'impute' or ignore the emptiest columns")
+
+    feats = feats.loc[keep].reset_index(drop=True)
+    y_kept = y_raw.loc[keep].reset_index(drop=True)
+    lines_kept = lines[keep]
+
+    # constant columns carry nothing to learn from
+    distinct = feats.nunique(dropna=True)
+    for col in features:
+        if distinct[col] <= 1:
+            if distinct[col] == 0:
+                notes.append(f"{where}: column {show(col)} is empty in every row; dropped it")
+            else:
+                value = feats[col].dropna().iloc[0]
+                notes.append(f"{where}: column {show(col)} has the same value ({show(value)}) in every row; dropped it")
+    features = [c for c in features if distinct[c] > 1]
+    if not features:
+        raise DataError(f"{where}: every feature column is constant or empty; the table has nothing to learn from")
+    for col in features:
+        if kinds_[col] == "categorical" and distinct[col] > 20 and distinct[col] > 0.5 * len(feats):
+            notes.append(f"{where}: column {show(col)} has {int(distinct[col])} different values in "
+                         f"{len(feats)} rows (an id or free text?); consider ignoring it")
+    feats = feats[features]
+    kinds_final = {c: kinds_[c] for c in features}
+
+    task_, classes, y = _target(y_kept, target, task, where, lines_kept)
+
+    id_column = next(iter(ignore), None)
+    ids = frame[id_column].loc[keep].to_numpy() if id_column is not None else None
+    for note in notes[len(read.warnings):]:
+        log.warning(note)
+    return Table(path=where, frame=feats, target=target, features=tuple(features), kinds=kinds_final,
+                 task=task_, classes=classes, y=y, ids=ids, id_column=id_column,
+                 sha256=hashlib.sha256(read.raw).hexdigest(), warnings=tuple(notes))
+
+
+def _check_finite(series: pd.Series, col: str, where: str, lines: np.ndarray) -> None:
+    v = series.to_numpy(dtype=np.float64, na_value=np.nan)
+    bad = np.isinf(v)
+    if bad.any():
+        pos = int(np.argmax(bad))
+        raise DataError(f"{where}: column {show(col)}, line {int(lines[pos])}: {v[pos]} is not a finite "
+                        "number; replace it with a real value or leave it empty for missing")
+
+
+def _target(y: pd.Series, target: str, task: str | None, where: str, lines: np.ndarray):
+    """(task, classes, y) for the kept target values."""
+    text_target = not is_numeric(y)
+    if text_target and (task == "regression" or (task is None and _mostly_numbers(y))):
+        y = pd.Series(as_float(y, target, where, lines, fix="fix that value, or leave it empty to drop the row"),
+                      name=target)
+        text_target = False
+    if not text_target and not pd.api.types.is_bool_dtype(y):
+        _check_finite(y, target, where, lines)
+    distinct = int(y.nunique())
+    if distinct < 2:
+        raise DataError(f"{where}: the target {show(target)} has one value only ({show(y.iloc[0])}) "
+                        "in every row with a target; a model needs at least two classes or values")
+    if task is None:
+        task = infer_task(y)
+    if task == "regression":
+        return task, None, y.to_numpy(dtype=np.float64)
+    classes, codes = class_labels(y)
+    if task == "binary" and len(classes) != 2:
+        raise DataError(f"{where}: task = 'binary' needs 2 classes but the target {show(target)} has "
+                        f"{len(classes)} ({_first(classes)}); use task = 'multiclass'")
+    return task, classes, codes
+
+
+def _first(classes: tuple[str, ...], limit: int = 6) -> str:
+    return ", ".join(classes[:limit]) + (", ..." if len(classes) > limit else "")
+
+
+def _mostly_numbers(y: pd.Series) -> bool:
+    """A text target where nine in ten values are numbers is a number column with typos."""
+    text = category_text(y)
+    if len(set(text.tolist())) <= 20:
+        return False
+    converted = pd.to_numeric(pd.Series(text), errors="coerce")
+    return bool(converted.notna().mean() >= 0.9)
+
+
+__all__ = ["Table", "load_table", "MISSING_POLICIES"]
