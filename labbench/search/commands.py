@@ -1,0 +1,250 @@
+"""``labbench run`` and ``labbench show``: the search without a window.
+
+``labbench run SPEC.toml``  runs (or resumes) the search of a spec file, then checks the winner
+                            (refit, hold-out, seed spread) and writes its files.
+``labbench show SPEC|URL``  lists the trials stored for a spec (or in a database URL).
+
+Exit codes: 0 done, 1 the search ended without any complete trial (no winner), 2 bad input,
+130 interrupted (Ctrl-C or SIGTERM; the trials in flight are told FAIL, none is left RUNNING).
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import signal
+import sys
+import threading
+from pathlib import Path
+from typing import Any
+
+from labbench.errors import SpecError
+
+log = logging.getLogger("labbench.search.commands")
+
+EXIT_OK, EXIT_NO_WINNER, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+
+
+def add_parser(subparsers) -> None:
+    run = subparsers.add_parser(
+        "run", help="run or resume the search of a spec file, headless",
+        description="Run the cross-validated search of SPEC.toml (resuming it when the storage "
+        "already holds it), then refit the winner, score it once on the hold-out, check its "
+        "spread across seeds and write its files.")
+    run.add_argument("spec", metavar="SPEC.toml", help="the experiment's spec file")
+    run.add_argument("--trials", type=int, metavar="N",
+                     help="trials to add in this run (default: [search] trials)")
+    run.add_argument("--minutes", type=float, metavar="M",
+                     help="stop starting trials after M minutes (default: [search] minutes)")
+    run.add_argument("--workers", type=int, metavar="W",
+                     help="trials trained at the same time, one process each "
+                     "(default: [search] workers)")
+    run.add_argument("--storage", metavar="URL",
+                     help="database URL (default: [search] storage, else a SQLite file "
+                     "beside the spec)")
+    run.add_argument("--out", metavar="DIR",
+                     help="folder for the winner's files (default: <spec name>_out beside the spec)")
+    run.add_argument("--fresh", action="store_true",
+                     help="delete the stored search of this name first and start afresh")
+    run.add_argument("--quiet", action="store_true", help="no progress line, errors only")
+    run.add_argument("-v", "--verbose", action="count", default=argparse.SUPPRESS,
+                     help="more log lines (-vv: debug)")
+    run.add_argument("--heartbeat", metavar="INTERVAL,GRACE", help=argparse.SUPPRESS)
+    run.set_defaults(func=run_command)
+
+    show = subparsers.add_parser(
+        "show", help="list the trials of a search",
+        description="List the trials stored for SPEC.toml (or in a database URL) and the best "
+        "so far. Works while a search is running, also from another machine.")
+    show.add_argument("source", metavar="SPEC.toml|URL", help="a spec file or a database URL")
+    show.add_argument("--study", metavar="NAME",
+                      help="the search's name in the database (default: the spec's, or the only one)")
+    show.add_argument("--storage", metavar="URL", help="database URL to use with a spec file")
+    show.add_argument("-v", "--verbose", action="count", default=argparse.SUPPRESS)
+    show.set_defaults(func=show_command)
+
+
+# --------------------------------------------------------------------------------------------
+# run
+
+
+class _Interrupts:
+    """Ctrl-C / SIGTERM set the cancel event (first time) or raise KeyboardInterrupt (again)."""
+
+    def __init__(self, cancel: threading.Event, say):
+        self.cancel, self.say = cancel, say
+        self.saved: dict[int, Any] = {}
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            for sig in (signal.SIGINT, signal.SIGTERM):
+                self.saved[sig] = signal.signal(sig, self._handle)
+        return self
+
+    def _handle(self, signum, frame) -> None:
+        if self.cancel.is_set():
+            raise KeyboardInterrupt
+        self.cancel.set()
+        self.say("stopping: the trials in flight end after their current epoch "
+                 "(press Ctrl-C again to stop at once)")
+
+    def __exit__(self, *exc) -> None:
+        for sig, handler in self.saved.items():
+            signal.signal(sig, handler)
+
+
+def out_dir(spec, given: str | None) -> Path:
+    if given:
+        return Path(given)
+    if spec.source_path:
+        src = Path(spec.source_path).resolve()
+        return src.parent / f"{src.stem}_out"
+    return Path.cwd() / f"{spec.study_name()}_out"
+
+
+def run_command(args) -> int:
+    from labbench.search.progress import ProgressLine
+    from labbench.search.runner import SearchRunner
+    from labbench.search.spec import load_spec
+    from labbench.search.storage import Heartbeat
+
+    spec = load_spec(args.spec)
+    heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
+    target = out_dir(spec, args.out)
+    progress = ProgressLine(sys.stderr, quiet=args.quiet)
+    runner = SearchRunner(spec, progress, storage=args.storage, trials=args.trials,
+                          minutes=args.minutes, workers=args.workers, fresh=args.fresh,
+                          heartbeat=heartbeat)
+    cancel = threading.Event()
+
+    def say(text: str) -> None:
+        progress(__import__("labbench.search.events", fromlist=["Notice"]).Notice(text, "info"))
+
+    with _Interrupts(cancel, say):
+        outcome = runner.run(cancel)
+    if outcome.cancelled:
+        print(f"labbench: interrupted; {outcome.trials_run} trial(s) finished in this run are "
+              f"stored in {outcome.storage}; run the same command again to continue",
+              file=sys.stderr)
+        return EXIT_INTERRUPTED
+    if outcome.best_number is None:
+        print(f"labbench: no trial completed, so there is no winner; see `labbench show "
+              f"{args.spec}` for why the trials failed", file=sys.stderr)
+        return EXIT_NO_WINNER
+    from labbench.search.report_text import winner_text
+    from labbench.search.winner import finalize
+
+    with _Interrupts(cancel, say):
+        summary = finalize(spec, outcome.url, target, emit=progress, cancel=cancel)
+    progress.close()
+    if cancel.is_set():
+        print("labbench: interrupted while checking the winner; the search itself is stored",
+              file=sys.stderr)
+        return EXIT_INTERRUPTED
+    print(winner_text(summary))
+    return EXIT_OK
+
+
+# --------------------------------------------------------------------------------------------
+# show
+
+
+def _open_for_reading(source: str, study: str | None, storage: str | None):
+    import optuna
+
+    from labbench.search.storage import mask_url, quiet_optuna_warnings, resolve_url
+    from labbench.search.strategy import route_optuna_logging
+
+    route_optuna_logging()
+    quiet_optuna_warnings()
+    if "://" in source:
+        url, name = source, study
+    else:
+        from labbench.search.spec import load_spec
+
+        spec = load_spec(source)
+        url, name = resolve_url(spec, storage), study or spec.study_name()
+    shown = mask_url(url)
+    if url.startswith("sqlite") and "///" in url:
+        path = url.split("///", 1)[1]
+        if path and not path.startswith(":memory:") and not Path(path).exists():
+            raise SpecError(f"storage {shown}: no search is stored there yet; run "
+                            f"`labbench run {source}` first")
+    try:
+        rdb = optuna.storages.RDBStorage(url, skip_table_creation=True)
+        names = [s.study_name for s in optuna.get_all_study_summaries(storage=rdb,
+                                                                      include_best_trial=False)]
+    except Exception as exc:
+        from labbench.search.storage import mask_password_text
+
+        raise SpecError(f"storage {shown}: cannot read it ({mask_password_text(str(exc).splitlines()[0])})"
+                        "; check the URL") from None
+    if name is None:
+        if len(names) != 1:
+            raise SpecError(f"storage {shown}: holds {len(names)} searches "
+                            f"({', '.join(names) or 'none'}); choose one with --study NAME")
+        name = names[0]
+    if name not in names:
+        raise SpecError(f"storage {shown}: no search named '{name}' (stored: "
+                        f"{', '.join(names) or 'none'}); run `labbench run` first or pick --study")
+    return optuna.load_study(study_name=name, storage=rdb), shown
+
+
+def _cell(value: Any) -> str:
+    from labbench.search.progress import number
+
+    if isinstance(value, bool):
+        return "on" if value else "off"
+    if isinstance(value, float):
+        return number(value) if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
+    return str(value)
+
+
+def trials_table(study) -> str:
+    """The text ``labbench show`` prints for a study (also handy in tests)."""
+    from labbench.search.progress import duration, number
+    from labbench.search.runner import STATE_NAMES
+
+    trials = study.get_trials(deepcopy=False)
+    attrs = study.user_attrs
+    metric = attrs.get("metric", "value")
+    direction = attrs.get("direction", study.direction.name.lower())
+    params = list(attrs.get("searched") or sorted({p for t in trials for p in t.params}))
+    header = ["trial", "state", metric, "±", "epochs", "time"] + params
+    rows = []
+    for t in trials:
+        ua = t.user_attrs
+        rows.append([str(t.number), STATE_NAMES.get(t.state.name, t.state.name.lower()),
+                     number(t.value) if t.value is not None else "",
+                     number(ua["cv_std"]) if ua.get("cv_std") is not None and t.value is not None
+                     else "",
+                     str(ua.get("epochs_run", "")),
+                     duration(ua["duration_s"]) if "duration_s" in ua else "",
+                     *[_cell(t.params[p]) if p in t.params else "" for p in params]])
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
+              for i, h in enumerate(header)]
+    lines = [f"search '{study.study_name}': {direction} {metric}, {len(trials)} trials"]
+    lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip())
+    lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows]
+    done = [t for t in trials if t.value is not None and t.state.name == "COMPLETE"]
+    if done:
+        pick = max if direction == "maximize" else min
+        best = pick(done, key=lambda t: t.value)
+        folds = best.user_attrs.get("fold_scores") or []
+        std = best.user_attrs.get("cv_std")
+        spread = f" ± {number(std)}" if std is not None else ""
+        lines.append(f"best: trial {best.number}, {metric} {number(best.value)}{spread} over "
+                     f"{len(folds)} folds; " + ", ".join(f"{k}={_cell(v)}" for k, v in
+                                                      best.params.items()))
+    else:
+        lines.append("best: none yet (no complete trial)")
+    ended = [t for t in trials if t.state.name in ("FAIL",) and t.user_attrs.get("end_reason")]
+    for t in ended[-5:]:
+        lines.append(f"trial {t.number} failed: {t.user_attrs['end_reason']}")
+    return "\n".join(lines)
+
+
+def show_command(args) -> int:
+    study, _ = _open_for_reading(args.source, args.study, args.storage)
+    print(trials_table(study))
+    return EXIT_OK

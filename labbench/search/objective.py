@@ -1,0 +1,137 @@
+"""One trial: the k (× repeats) fold models of one configuration trained together.
+
+This runs inside a worker process. It trains a ``labbench.nets.StackTrainer`` over the prepared
+folds (one stacked member per fold), hands the fold means of every epoch to a callback, and stops
+after an epoch when told to (pruned or cancelled). The fold scores are the metric of the *final*
+epoch's validation outputs; the trial value is their mean.
+
+It also holds the small helpers the controller uses to turn those values into the trial user
+attrs of the storage contract (curve downsampled to at most 200 points, fold scores, spread).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from typing import Any, Callable, Mapping, Sequence
+
+CURVE_POINTS = 200
+
+#: A worker hands these back: (epoch, train_loss, val_loss, val_metric), fold means.
+EpochValues = tuple[int, float, float, float]
+
+
+def member_seeds(seed: int, n_members: int) -> list[int]:
+    """One training seed per stacked member, derived from ``evaluation.seed`` only.
+
+    The same settings therefore train identically in every trial (a retried trial repeats its
+    result, and two configurations are compared on the same initial draws).
+    """
+    import numpy as np
+
+    return [int(s) for s in np.random.SeedSequence(int(seed)).generate_state(n_members)]
+
+
+def _mean(values: Any) -> float:
+    if values is None:
+        return float("nan")
+    import numpy as np
+
+    return float(np.mean(np.asarray(values, dtype=np.float64)))
+
+
+def run_trial(
+    prepared: Any,
+    settings: Mapping[str, Any],
+    *,
+    seed: int,
+    on_epoch: Callable[[EpochValues], None],
+    should_stop: Callable[[], bool],
+    dtype: str = "float32",
+) -> dict[str, Any]:
+    """Train one configuration on every fold; returns a plain dict (safe to send between processes).
+
+    ``end`` is "complete" (all epochs ran), "stopped" (``should_stop`` said so after an epoch) or
+    "diverged" (NaN/inf loss; ``reason`` says where). Other exceptions propagate (they are bugs).
+    """
+    from labbench.errors import DivergenceError
+    from labbench.nets import StackTrainer
+    from labbench.search.space import settings_to_config
+
+    started = time.perf_counter()
+    folds = prepared.fold_arrays
+    config = settings_to_config(settings, dtype=dtype)
+    n_members = len(folds.X_train)
+    trainer = StackTrainer(
+        config, prepared.task, prepared.n_outputs,
+        folds.X_train, folds.y_train, folds.X_val, folds.y_val,
+        seeds=member_seeds(seed, n_members), metric=prepared.metric,
+    )
+    state = {"epochs": 0, "last": None, "stopped": False}
+
+    def each_epoch(scores) -> bool:
+        state["epochs"] = int(scores.epoch)
+        state["last"] = scores
+        on_epoch((int(scores.epoch), _mean(scores.train_loss), _mean(scores.val_loss),
+                  _mean(scores.val_metric)))
+        if should_stop():
+            state["stopped"] = True
+            return False
+        return True
+
+    try:
+        trainer.run(on_epoch=each_epoch)
+    except DivergenceError as exc:
+        return {"end": "diverged", "reason": one_line(str(exc)), "fold_scores": [],
+                "epochs_run": int(getattr(exc, "epoch", None) or state["epochs"]),
+                "duration_s": time.perf_counter() - started}
+    last = state["last"]
+    fold_scores = [] if last is None or last.val_metric is None else \
+        [float(v) for v in last.val_metric]
+    return {"end": "stopped" if state["stopped"] else "complete", "reason": "",
+            "fold_scores": fold_scores, "epochs_run": state["epochs"],
+            "duration_s": time.perf_counter() - started}
+
+
+# --------------------------------------------------------------------------------------------
+# controller-side helpers
+
+
+def one_line(text: str, limit: int = 300) -> str:
+    line = " ".join(str(text).split())
+    return line if len(line) <= limit else line[: limit - 1] + "…"
+
+
+def cv_summary(fold_scores: Sequence[float]) -> tuple[float, float]:
+    """(mean, sample standard deviation) of the fold scores; std 0 for a single fold."""
+    n = len(fold_scores)
+    if n == 0:
+        return float("nan"), float("nan")
+    mean = math.fsum(fold_scores) / n
+    if n == 1:
+        return mean, 0.0
+    var = math.fsum((s - mean) ** 2 for s in fold_scores) / (n - 1)
+    return mean, math.sqrt(var)
+
+
+def _finite_or_none(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def curve_attr(points: Sequence[EpochValues], max_points: int = CURVE_POINTS) -> dict[str, list]:
+    """The ``curve`` trial attr: fold means per epoch, at most ``max_points`` epochs kept.
+
+    The first and last epochs are always kept; the rest are evenly spaced. Non-finite values
+    become None (JSON has no NaN).
+    """
+    n = len(points)
+    if n > max_points:
+        step = (n - 1) / (max_points - 1)
+        keep = sorted({round(i * step) for i in range(max_points)})
+        points = [points[i] for i in keep]
+    return {
+        "epoch": [int(p[0]) for p in points],
+        "train_loss": [_finite_or_none(p[1]) for p in points],
+        "val_loss": [_finite_or_none(p[2]) for p in points],
+        "val_metric": [_finite_or_none(p[3]) for p in points],
+    }

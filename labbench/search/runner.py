@@ -1,0 +1,493 @@
+"""The search controller: ask/tell over worker processes, pruning, budgets, cancel, heartbeats.
+
+``SearchRunner(spec, emit, ...).run(cancel)`` runs in the calling thread (the command line's main
+thread, or the window's worker QThread) and never trains anything itself: trials are trained in
+``spawn``-started worker processes (``labbench.search.workers``) that receive only plain settings
+and send back one message per epoch. The controller
+
+* asks Optuna for a trial when a worker is free (after ``fail_stale_trials``, which turns trials
+  of a killed process into FAIL + a WAITING retry once their heartbeat is stale),
+* records heartbeats for its trials in flight from a small thread,
+* reports every epoch's fold-mean validation loss (step = epoch; sign-flipped for a maximised
+  metric, see ``strategy``), asks ``should_prune`` and tells the worker to stop a pruned trial,
+* tells COMPLETE / PRUNED / FAIL with the trial attrs of the storage contract,
+* emits the events of ``labbench.search.events`` through ``emit``,
+* stops asking when the trial budget (trials added by this run) or the time budget runs out.
+
+Cancel is cooperative: set the ``cancel`` event (or press Ctrl-C in a terminal) and the trials in
+flight stop after their current epoch and are told FAIL with ``end_reason`` "cancelled by the
+user"; the run ends with ``SearchEnded(reason="cancelled")`` and returns normally.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import os
+import threading
+import time
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+from labbench import errors
+from labbench.errors import LabbenchError, SpecError
+from labbench.search import events as ev
+from labbench.search.objective import curve_attr, cv_summary, one_line
+from labbench.search.storage import (LABBENCH_FORMAT, Heartbeat, mask_url, open_storage,
+                                     open_study, plain, resolve_url, versions)
+from labbench.search.strategy import (intermediate_sign, make_pruner, make_sampler,
+                                      route_optuna_logging)
+
+log = logging.getLogger("labbench.search.runner")
+
+CANCELLED = "cancelled by the user"
+LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
+STATE_NAMES = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
+               "RUNNING": "running", "WAITING": "waiting"}
+
+
+@dataclass(frozen=True)
+class SearchOutcome:
+    reason: str                          # "budget" | "time" | "cancelled" | "error"
+    study_name: str
+    storage: str                         # URL, passwords masked
+    counts: Mapping[str, int]            # trials per state in storage (all runs)
+    best_number: int | None
+    best_value: float | None
+    trials_run: int                      # trials this run finished
+    elapsed_s: float
+    message: str = ""
+    url: str = field(default="", repr=False)   # the real URL (to reopen the study)
+
+    @property
+    def cancelled(self) -> bool:
+        return self.reason == "cancelled"
+
+
+@dataclass
+class _InFlight:
+    trial: Any
+    slot: Any
+    settings: dict
+    started: float
+    points: list = field(default_factory=list)
+    stopping: str | None = None          # "pruned" | "cancelled"
+    stop_epoch: int = 0
+
+    @property
+    def number(self) -> int:
+        return self.trial.number
+
+
+class _Heartbeats:
+    """Records a heartbeat for every trial in flight every ``interval`` seconds."""
+
+    def __init__(self, storage, interval: float):
+        self._storage, self._interval = storage, interval
+        self._ids: set[int] = set()
+        self._lock = threading.Lock()
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._beat, name="labbench-heartbeat", daemon=True)
+
+    def start(self) -> None:
+        self._thread.start()
+
+    def add(self, trial_id: int) -> None:
+        self._storage.record_heartbeat(trial_id)
+        with self._lock:
+            self._ids.add(trial_id)
+
+    def discard(self, trial_id: int) -> None:
+        with self._lock:
+            self._ids.discard(trial_id)
+
+    def _beat(self) -> None:
+        while not self._stop.wait(self._interval):
+            with self._lock:
+                ids = list(self._ids)
+            for trial_id in ids:
+                try:
+                    self._storage.record_heartbeat(trial_id)
+                except Exception as exc:  # a busy database must not kill the search
+                    log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
+
+    def stop(self) -> None:
+        self._stop.set()
+        if self._thread.is_alive():
+            self._thread.join(5.0)
+
+
+def _positive(value, name: str, kind=int):
+    if value is None:
+        return None
+    try:
+        number = kind(value)
+    except (TypeError, ValueError):
+        number = None
+    if number is None or isinstance(value, bool) or not number > 0 or not math.isfinite(number):
+        what = "a whole number of at least 1" if kind is int else "a number above 0"
+        raise SpecError(f"{name}: {value!r} is not allowed; give {what}")
+    return number
+
+
+class SearchRunner:
+    """One run of a search (see the module text). ``emit`` receives every event, in order."""
+
+    def __init__(self, spec, emit: ev.Emit = ev.ignore, *, storage: str | None = None,
+                 trials: int | None = None, minutes: float | None = None,
+                 workers: int | None = None, fresh: bool = False,
+                 heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0):
+        self.spec = spec
+        self.emit = emit
+        self.storage_override = storage
+        self.trials = _positive(trials, "--trials") if trials is not None else spec.search.trials
+        self.minutes = (_positive(minutes, "--minutes", float) if minutes is not None
+                        else spec.search.minutes)
+        self.workers = _positive(workers, "--workers") if workers is not None else spec.search.workers
+        if self.trials is None and self.minutes is None:
+            raise SpecError("search: no budget; give trials or minutes")
+        self.fresh = fresh
+        self.heartbeat = heartbeat or Heartbeat.from_env()
+        self.stop_timeout_s = stop_timeout_s
+        self.poll_s = 0.05
+
+    # ------------------------------------------------------------------------------------
+    # setup
+
+    def _study_attrs(self, prepared) -> dict[str, Any]:
+        spec, table = self.spec, prepared.table
+        return plain({
+            "spec_toml": spec.to_toml(),
+            "spec_path": str(spec.source_path or ""),
+            "data_sha256": table.sha256,
+            "data_path": str(spec.data.path),
+            "task": prepared.task,
+            "metric": prepared.metric,
+            "direction": prepared.direction,
+            "classes": list(table.classes) if table.classes is not None else None,
+            "n_rows": int(len(prepared.train_pos)),
+            "n_holdout": int(len(prepared.holdout_pos)),
+            "versions": versions(),
+            "labbench_format": LABBENCH_FORMAT,
+            "searched": spec.space.searched_params(),
+            "log_scaled": spec.space.log_scaled_params(),
+            "intermediate_sign": intermediate_sign(prepared.direction),
+        })
+
+    def run(self, cancel: threading.Event | None = None) -> SearchOutcome:
+        from labbench.search.prepare import prepare
+        from labbench.search.workers import WorkerPool
+
+        self.cancel = cancel if cancel is not None else threading.Event()
+        self.t0 = time.monotonic()
+        route_optuna_logging()
+        prepared = prepare(self.spec)
+        self.direction = prepared.direction
+        self.sign = intermediate_sign(prepared.direction)
+        self.url = resolve_url(self.spec, self.storage_override)
+        storage = open_storage(self.url, self.heartbeat)
+        self.sampler = make_sampler(self.spec)
+        self.pruner = make_pruner(self.spec)
+        name = self.spec.study_name()
+        self.study, resumed = open_study(
+            storage, name, url=self.url, direction=prepared.direction,
+            attrs=self._study_attrs(prepared), sampler=self.sampler, pruner=self.pruner,
+            fresh=self.fresh)
+        existing = self.study.get_trials(deepcopy=False)
+        self.best = self._best_of(existing)
+        self.asked = self.finished = 0
+        self.in_flight: dict[int, _InFlight] = {}
+        self.stop_reason: str | None = None
+        self.message = ""
+        self.deadline: float | None = None
+        self.interrupts = 0
+        self.emit(ev.SearchStarted(
+            study_name=name, storage=mask_url(self.url), metric=prepared.metric,
+            direction=prepared.direction, budget_trials=self.trials,
+            budget_minutes=self.minutes, existing_trials=len(existing),
+            searched=tuple(self.spec.space.searched_params()),
+            log_scaled=tuple(self.spec.space.log_scaled_params())))
+        if resumed:
+            log.info("resuming study %s (%d trials stored)", name, len(existing))
+        if self.best is not None:
+            self._emit_best(self.best)
+        if self.workers > (os.cpu_count() or 1):
+            self.emit(ev.Notice(f"{self.workers} workers on {os.cpu_count()} CPU cores: trials "
+                                "will share cores and each will run slower", "info"))
+        self.emit(ev.Progress(0, self.trials, 0.0, None))
+
+        self.pool = WorkerPool(self.spec, self.workers, data_sha256=prepared.table.sha256)
+        self.beats = _Heartbeats(storage, self.heartbeat.interval)
+        error: BaseException | None = None
+        try:
+            self.pool.start()
+            self.beats.start()
+            self._loop()
+        except KeyboardInterrupt:            # outside the loop (while starting): a normal cancel
+            self.cancel.set()
+            self.stop_reason = "cancelled"
+        except BaseException as exc:
+            error = exc
+            self.stop_reason = "error"
+            self.message = one_line(str(exc)) if isinstance(exc, LabbenchError) else \
+                one_line(f"{type(exc).__name__}: {exc}")
+        finally:
+            try:
+                self._abandon_in_flight("the search stopped: " + self.message if error else CANCELLED)
+            finally:
+                self.beats.stop()
+                self.pool.shutdown()
+        outcome = self._outcome()
+        self.emit(ev.SearchEnded(reason=outcome.reason, counts=outcome.counts,
+                                 best_number=outcome.best_number, best_value=outcome.best_value,
+                                 message=outcome.message))
+        if error is not None:
+            raise error
+        return outcome
+
+    # ------------------------------------------------------------------------------------
+    # the loop
+
+    def _loop(self) -> None:
+        while True:
+            try:
+                if self._step():
+                    return
+            except KeyboardInterrupt:
+                self.interrupts += 1
+                log.info("interrupted: stopping the trials in flight")
+                self.cancel.set()
+                if self.interrupts > 1:       # a second Ctrl-C: do not wait for the epoch
+                    self.deadline = time.monotonic()
+
+    def _elapsed(self) -> float:
+        return time.monotonic() - self.t0
+
+    def _budget_left(self) -> bool:
+        if self.trials is not None and self.asked >= self.trials:
+            self.stop_reason = "budget"
+            return False
+        if self.minutes is not None and self._elapsed() >= 60.0 * self.minutes:
+            self.stop_reason = "time"
+            return False
+        from optuna.samplers import GridSampler
+
+        if isinstance(self.sampler, GridSampler) and self.sampler.is_exhausted(self.study):
+            self.stop_reason = "budget"
+            self.emit(ev.Notice("every point of the grid has been tried", "info"))
+            return False
+        return True
+
+    def _step(self) -> bool:
+        """One turn of the controller; True when the run is over."""
+        if self.cancel.is_set() and self.stop_reason != "cancelled":
+            self.stop_reason = "cancelled"
+            if self.deadline is None:
+                self.deadline = time.monotonic() + self.stop_timeout_s
+            for flight in self.in_flight.values():
+                flight.stopping = "cancelled"
+                self.pool.stop(flight.slot)
+        if self.stop_reason is None:
+            for slot in self.pool.idle():
+                if not self._budget_left():
+                    break
+                self._start_trial(slot)
+        if self.stop_reason is not None and not self.in_flight:
+            return True
+        if self.deadline is not None and time.monotonic() >= self.deadline:
+            return True                      # the finally block tells what is left FAIL
+        if not self.pool.alive():
+            raise RuntimeError("every worker process stopped; see the log for why")
+        message = self.pool.poll(self.poll_s)
+        if message is not None:
+            self._handle(message)
+        return False
+
+    def _start_trial(self, slot) -> None:
+        import optuna
+
+        optuna.storages.fail_stale_trials(self.study)
+        trial = self.study.ask()
+        self.asked += 1
+        try:
+            settings = self.spec.space.suggest(trial)
+        except ValueError as exc:             # a parameter changed kind/choices within the study
+            self.study.tell(trial, state=optuna.trial.TrialState.FAIL, skip_if_finished=True)
+            raise SpecError(
+                f"{self.spec.source_path or 'spec'}: space: {one_line(str(exc))}; the stored search "
+                "used this name differently, run with --fresh or set another [search] name"
+            ) from None
+        self.beats.add(trial._trial_id)
+        trial.set_user_attr("settings", plain(settings))
+        trial.set_user_attr("worker", slot.label)
+        trial.set_user_attr("end_reason", LOST)   # overwritten when the trial ends here
+        self.in_flight[slot.index] = _InFlight(trial, slot, settings, time.monotonic())
+        self.pool.assign(slot, trial.number, plain(settings))
+        self.emit(ev.TrialStarted(trial.number, dict(trial.params), plain(settings)))
+
+    def _handle(self, message: tuple) -> None:
+        kind, index = message[0], message[1]
+        slot = self.pool.slots[index]
+        flight = self.in_flight.get(index)
+        if kind == "ready":
+            slot.state, slot.pid = "idle", message[2]
+        elif kind == "epoch":
+            _, _, number, epoch, train_loss, val_loss, val_metric = message
+            if flight is not None and flight.number == number and flight.stopping is None:
+                self._epoch(flight, epoch, train_loss, val_loss, val_metric)
+        elif kind == "done":
+            _, _, number, result = message
+            slot.state, slot.number = "idle", None
+            if flight is not None and flight.number == number:
+                self._done(flight, result)
+        elif kind == "error":
+            _, _, number, text, trace = message
+            slot.state, slot.number = "idle", None
+            log.error("trial %s: error in the worker process:\n%s", number, trace)
+            if flight is not None and flight.number == number:
+                reason = f"internal error while training (not caused by your settings): {text}"
+                self._finish(flight, "FAIL", reason=reason)
+                self.emit(ev.Notice(f"trial {number} failed by an internal error: {one_line(text)} "
+                                    "— please report it with the log (labbench -v run ...)"))
+        elif kind == "died":
+            exitcode = message[2]
+            if flight is not None:
+                self._finish(flight, "FAIL", reason="its worker process stopped unexpectedly "
+                             f"(exit code {exitcode})")
+            restarted = self.pool.restart(slot)
+            self.emit(ev.Notice(f"worker process {index + 1} stopped unexpectedly (exit code "
+                                f"{exitcode}); " + ("started a new one" if restarted
+                                                    else "not restarted: it failed too often")))
+        elif kind == "fatal":
+            _, _, cls_name, text = message
+            cls = getattr(errors, cls_name, None)
+            if isinstance(cls, type) and issubclass(cls, LabbenchError):
+                raise cls(text)
+            log.error("a worker process could not start:\n%s", text)
+            raise RuntimeError(f"a worker process could not start: {one_line(text)}")
+
+    def _epoch(self, flight: _InFlight, epoch, train_loss, val_loss, val_metric) -> None:
+        flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
+        if math.isfinite(val_loss):
+            flight.trial.report(self.sign * float(val_loss), step=int(epoch))
+        self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
+                                 float(val_metric), int(flight.settings["epochs"])))
+        if self.stop_reason != "cancelled" and flight.trial.should_prune():
+            flight.stopping, flight.stop_epoch = "pruned", int(epoch)
+            self.pool.stop(flight.slot)
+
+    def _done(self, flight: _InFlight, result: Mapping[str, Any]) -> None:
+        if flight.stopping == "pruned":
+            last = flight.points[-1][2] if flight.points else float("nan")
+            reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "
+                      f"behind the other trials at that epoch ({self.spec.search.pruner} pruner)")
+            self._finish(flight, "PRUNED", reason=reason, epochs_run=flight.stop_epoch)
+        elif flight.stopping == "cancelled":
+            self._finish(flight, "FAIL", reason=CANCELLED)
+        elif result["end"] == "diverged":
+            self._finish(flight, "FAIL", reason=result["reason"], epochs_run=result["epochs_run"])
+        else:
+            scores = [float(s) for s in result["fold_scores"]]
+            mean, _ = cv_summary(scores)
+            if not scores or not math.isfinite(mean):
+                self._finish(flight, "FAIL", reason="the metric is not a finite number on every "
+                             "fold", fold_scores=scores, epochs_run=result["epochs_run"])
+            else:
+                self._finish(flight, "COMPLETE", value=mean, fold_scores=scores,
+                             epochs_run=result["epochs_run"])
+
+    # ------------------------------------------------------------------------------------
+    # ending trials
+
+    def _finish(self, flight: _InFlight, state: str, *, value: float | None = None,
+                reason: str = "", fold_scores=(), epochs_run: int | None = None) -> None:
+        from optuna.exceptions import UpdateFinishedTrialError
+        from optuna.trial import TrialState
+
+        trial = flight.trial
+        duration = time.monotonic() - flight.started
+        points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
+        runs = epochs_run if epochs_run is not None else (points[-1][0] if points else 0)
+        _, std = cv_summary(list(fold_scores))
+        attrs = {"curve": curve_attr(points), "fold_scores": [float(s) for s in fold_scores],
+                 "cv_std": float(std) if math.isfinite(std) else None,
+                 "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
+        try:
+            for key, val in attrs.items():
+                trial.set_user_attr(key, plain(val))
+        except UpdateFinishedTrialError:       # failed as stale by another process meanwhile
+            log.warning("trial %d was already finished elsewhere; its result is dropped",
+                        trial.number)
+        self.study.tell(trial, values=value if state == "COMPLETE" else None,
+                        state=getattr(TrialState, state), skip_if_finished=True)
+        self.in_flight.pop(flight.slot.index, None)
+        self.beats.discard(trial._trial_id)
+        self.finished += 1
+        shown = "cancelled" if reason == CANCELLED else STATE_NAMES[state]
+        self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
+                                reason, dict(trial.params), int(runs)))
+        if state == "COMPLETE" and self._better(value):
+            self.best = (trial.number, float(value), attrs["cv_std"] or 0.0,
+                         tuple(attrs["fold_scores"]), dict(trial.params))
+            self._emit_best(self.best)
+        elapsed = self._elapsed()
+        self.emit(ev.Progress(self.finished, self.trials, elapsed, self._eta(elapsed)))
+
+    def _abandon_in_flight(self, reason: str) -> None:
+        """Tell every trial still in flight FAIL (cancel deadline passed, or an error)."""
+        for flight in list(self.in_flight.values()):
+            if flight.stopping == "cancelled":
+                reason = CANCELLED
+            try:
+                self._finish(flight, "FAIL", reason=reason)
+            except Exception as exc:  # keep going: the others must not stay RUNNING either
+                log.error("could not end trial %d: %s", flight.number, exc)
+
+    # ------------------------------------------------------------------------------------
+    # bookkeeping
+
+    def _better(self, value: float) -> bool:
+        if self.best is None:
+            return True
+        return value > self.best[1] if self.direction == "maximize" else value < self.best[1]
+
+    def _best_of(self, trials) -> tuple | None:
+        from optuna.trial import TrialState
+
+        done = [t for t in trials if t.state == TrialState.COMPLETE and t.value is not None]
+        if not done:
+            return None
+        pick = max if self.direction == "maximize" else min
+        t = pick(done, key=lambda t: t.value)
+        return (t.number, float(t.value), float(t.user_attrs.get("cv_std") or 0.0),
+                tuple(t.user_attrs.get("fold_scores") or ()), dict(t.params))
+
+    def _emit_best(self, best: tuple) -> None:
+        number, value, std, folds, params = best
+        self.emit(ev.NewBest(number, value, std, folds, params))
+
+    def _eta(self, elapsed: float) -> float | None:
+        estimates = []
+        if self.trials is not None and self.finished:
+            estimates.append(max(0.0, (self.trials - self.finished) * elapsed / self.finished))
+        if self.minutes is not None:
+            estimates.append(max(0.0, 60.0 * self.minutes - elapsed))
+        return min(estimates) if estimates else None
+
+    def _outcome(self) -> SearchOutcome:
+        counts = {name: 0 for name in STATE_NAMES.values()}
+        trials = self.study.get_trials(deepcopy=False)
+        for t in trials:
+            counts[STATE_NAMES.get(t.state.name, t.state.name.lower())] = \
+                counts.get(STATE_NAMES.get(t.state.name, t.state.name.lower()), 0) + 1
+        best = self._best_of(trials)
+        reason = self.stop_reason or "budget"
+        message = self.message
+        if not message:
+            message = {"budget": "the trial budget is used up", "time": "the time budget ran out",
+                       "cancelled": "cancelled by the user"}.get(reason, "")
+        return SearchOutcome(reason=reason, study_name=self.study.study_name,
+                             storage=mask_url(self.url), counts=counts,
+                             best_number=best[0] if best else None,
+                             best_value=best[1] if best else None, trials_run=self.finished,
+                             elapsed_s=self._elapsed(), message=message, url=self.url)

@@ -1,0 +1,297 @@
+"""Where a search lives: storage URL resolution, the Optuna storage, create-or-resume of the study.
+
+One search is one Optuna study in an RDB storage. The default is a SQLite file beside the spec
+(``sqlite:///<spec dir>/<spec stem>.db``); any SQLAlchemy URL Optuna's ``RDBStorage`` accepts works
+(PostgreSQL for a search shared by several machines). Nothing here is SQLite-only.
+
+The storage always runs with a heartbeat: a process killed in the middle of a trial leaves that
+trial RUNNING until its heartbeat is older than the grace period; the next ``fail_stale_trials``
+call (the runner makes one before every ask) then marks it FAIL and queues a WAITING copy with the
+same parameters, which the next ask picks up.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+import platform
+import re
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Mapping
+
+from labbench.errors import SpecError
+
+log = logging.getLogger("labbench.search.storage")
+
+LABBENCH_FORMAT = 1
+
+#: Environment variable with "INTERVAL,GRACE" in seconds (a testing knob; the CLI has a hidden
+#: ``--heartbeat`` option that does the same).
+HEARTBEAT_ENV = "LABBENCH_HEARTBEAT"
+
+#: Study attrs that must agree between a stored study and the spec resuming it.
+_MUST_MATCH = ("data_sha256", "metric", "direction", "task")
+
+
+@dataclass(frozen=True)
+class Heartbeat:
+    """Heartbeat settings of the storage, in whole seconds (Optuna takes ints)."""
+
+    interval: int = 20
+    grace: int = 120
+
+    def __post_init__(self) -> None:
+        if int(self.interval) < 1 or int(self.grace) <= int(self.interval):
+            raise SpecError(
+                f"heartbeat: interval {self.interval} s and grace {self.grace} s are not usable; "
+                "give an interval of at least 1 s and a grace period longer than the interval"
+            )
+
+    @classmethod
+    def parse(cls, text: str, source: str = HEARTBEAT_ENV) -> "Heartbeat":
+        try:
+            interval, grace = (int(part) for part in str(text).split(","))
+        except ValueError:
+            raise SpecError(
+                f"{source}: {text!r} is not 'INTERVAL,GRACE' in whole seconds, e.g. '20,120'"
+            ) from None
+        return cls(interval, grace)
+
+    @classmethod
+    def from_env(cls) -> "Heartbeat":
+        text = os.environ.get(HEARTBEAT_ENV, "").strip()
+        return cls.parse(text) if text else cls()
+
+
+# --------------------------------------------------------------------------------------------
+# URLs
+
+
+def mask_url(url: str) -> str:
+    """The URL with any password replaced by ``***`` (for messages, events and the window)."""
+    try:
+        from sqlalchemy.engine import make_url
+
+        parsed = make_url(url)
+        if parsed.password is None:
+            return url
+        return parsed.render_as_string(hide_password=True)
+    except Exception:  # not parseable: mask anything that looks like user:password@
+        return re.sub(r"(://[^:/@]*:)[^@]*@", r"\1***@", url)
+
+
+def default_url(spec_path: str | os.PathLike) -> str:
+    """``sqlite:///<spec dir>/<spec stem>.db`` (absolute path)."""
+    path = Path(spec_path).resolve()
+    return f"sqlite:///{path.with_suffix('.db').as_posix()}"
+
+
+def _anchor_sqlite(url: str, base_dir: Path) -> str:
+    """A relative SQLite path in a spec file is relative to the spec file's folder."""
+    prefix_match = re.match(r"^(sqlite(?:\+\w+)?:///)(.*)$", url)
+    if not prefix_match:
+        return url
+    prefix, rest = prefix_match.groups()
+    if not rest or rest.startswith("/") or rest.startswith(":memory:") or rest.startswith("file:"):
+        return url
+    if re.match(r"^[A-Za-z]:[\\/]", rest):  # a Windows drive path is absolute
+        return url
+    return prefix + (base_dir / rest).resolve().as_posix()
+
+
+def resolve_url(spec: Any, override: str | None = None) -> str:
+    """The storage URL of a spec: ``override`` (CLI/window), else ``[search] storage``, else default.
+
+    A relative SQLite path written in the spec is taken relative to the spec file; one given as an
+    override is taken as SQLite takes it (relative to the current folder).
+    """
+    if override:
+        return _check_url(str(override), "--storage")
+    spec_path = getattr(spec, "source_path", None)
+    configured = getattr(getattr(spec, "search", None), "storage", None)
+    if configured:
+        base = Path(spec_path).resolve().parent if spec_path else Path.cwd()
+        return _check_url(_anchor_sqlite(str(configured), base), "[search] storage")
+    if not spec_path:
+        raise SpecError(
+            "[search] storage: the spec has no file to put the default database beside; "
+            "save the spec first or give a storage URL (e.g. sqlite:///search.db)"
+        )
+    return default_url(spec_path)
+
+
+def _check_url(url: str, source: str) -> str:
+    if "://" not in url:
+        raise SpecError(
+            f"{source}: {mask_url(url)!r} is not a database URL; write e.g. "
+            "'sqlite:///search.db' or 'postgresql+psycopg://user@host/db'"
+        )
+    return url
+
+
+# --------------------------------------------------------------------------------------------
+# Storage and study
+
+
+def quiet_optuna_warnings() -> None:
+    """Optuna's experimental-feature and heartbeat-with-ask/tell warnings say nothing to a user."""
+    import optuna
+
+    warnings.filterwarnings("ignore", category=optuna.exceptions.ExperimentalWarning)
+    warnings.filterwarnings("ignore", message="Heartbeat of storage is supposed to be used")
+
+
+def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int = 3):
+    """An ``optuna.storages.RDBStorage`` with heartbeat and retry of stale trials."""
+    import optuna
+    from optuna.storages import RDBStorage, RetryHeartbeatStaleTrialCallback
+
+    heartbeat = heartbeat or Heartbeat.from_env()
+    quiet_optuna_warnings()
+    shown = mask_url(url)
+    sqlite_file = re.match(r"^sqlite(?:\+\w+)?:///(?!:memory:)(.+)$", url)
+    if sqlite_file and not Path(sqlite_file.group(1)).parent.exists():
+        raise SpecError(
+            f"storage {shown}: the folder {Path(sqlite_file.group(1)).parent} does not exist; "
+            "create it or choose another path"
+        )
+    try:
+        return RDBStorage(
+            url,
+            heartbeat_interval=int(heartbeat.interval),
+            grace_period=int(heartbeat.grace),
+            heartbeat_stale_trial_callback=RetryHeartbeatStaleTrialCallback(max_retry=max_retry),
+        )
+    except ModuleNotFoundError as exc:
+        raise SpecError(
+            f"storage {shown}: the database driver '{exc.name}' is not installed "
+            f"(pip install it, e.g. pip install 'labbench[postgres]')"
+        ) from None
+    except (optuna.exceptions.StorageInternalError, Exception) as exc:  # SQLAlchemy's errors vary
+        reason = _one_line(exc)
+        raise SpecError(
+            f"storage {shown}: cannot open it ({reason}); check the URL in [search] storage or "
+            "--storage"
+        ) from None
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(getattr(exc, "orig", None) or exc).strip().splitlines()
+    first = text[0] if text else type(exc).__name__
+    return mask_password_text(first)[:200]
+
+
+def mask_password_text(text: str) -> str:
+    return re.sub(r"(://[^:/@\s]*:)[^@\s]*@", r"\1***@", text)
+
+
+def study_exists(storage, name: str) -> bool:
+    try:
+        storage.get_study_id_from_name(name)
+        return True
+    except KeyError:
+        return False
+
+
+def check_resumable(study, expected: Mapping[str, Any], url: str) -> None:
+    """Raise SpecError when the stored study was made for other data or another goal."""
+    stored = study.user_attrs
+    shown = mask_url(url)
+    how = (
+        "run again with --fresh to start a new search under this name (the old trials are "
+        "deleted), or give another storage (--storage / [search] storage)"
+    )
+    if stored.get("labbench_format") is None:
+        raise SpecError(
+            f"storage {shown}: study '{study.study_name}' exists but was not made by labbench; {how}"
+        )
+    if int(stored["labbench_format"]) > LABBENCH_FORMAT:
+        raise SpecError(
+            f"storage {shown}: study '{study.study_name}' was written by a newer labbench "
+            f"(format {stored['labbench_format']}); upgrade labbench or use another storage"
+        )
+    what = {
+        "data_sha256": "the data file's contents changed since the search began",
+        "metric": "the metric differs",
+        "direction": "the direction differs",
+        "task": "the task differs",
+    }
+    for key in _MUST_MATCH:
+        if key in stored and key in expected and stored[key] != expected[key]:
+            old, new = stored[key], expected[key]
+            if key == "data_sha256":
+                old, new = str(old)[:12] + "…", str(new)[:12] + "…"
+            raise SpecError(
+                f"storage {shown}: study '{study.study_name}' cannot be resumed: {what[key]} "
+                f"(stored {old}, spec {new}); {how}"
+            )
+
+
+def open_study(
+    storage,
+    name: str,
+    *,
+    url: str,
+    direction: str,
+    attrs: Mapping[str, Any],
+    sampler=None,
+    pruner=None,
+    fresh: bool = False,
+):
+    """Create the study, or resume it after checking it fits; ``fresh`` deletes it first.
+
+    Returns ``(study, resumed)``. The spec-describing attrs (spec text, path, versions, searched
+    settings) are rewritten on every run so they describe the latest run; the ones that must
+    match (data fingerprint, metric, direction, task) are checked first.
+    """
+    import optuna
+
+    exists = study_exists(storage, name)
+    if exists and fresh:
+        log.info("deleting study %s in %s (--fresh)", name, mask_url(url))
+        optuna.delete_study(study_name=name, storage=storage)
+        exists = False
+    if exists:
+        study = optuna.load_study(study_name=name, storage=storage, sampler=sampler, pruner=pruner)
+        check_resumable(study, {**attrs, "direction": direction}, url)
+        if study.direction.name.lower() != direction:
+            raise SpecError(
+                f"storage {mask_url(url)}: study '{name}' optimises in another direction; "
+                "run with --fresh to start afresh"
+            )
+    else:
+        study = optuna.create_study(
+            study_name=name, storage=storage, direction=direction, sampler=sampler, pruner=pruner,
+            load_if_exists=True,
+        )
+    for key, value in attrs.items():
+        study.set_user_attr(key, value)
+    return study, exists
+
+
+def versions() -> dict[str, str]:
+    """Package versions stored with a study (what it takes to reproduce a trial)."""
+    from importlib.metadata import PackageNotFoundError, version
+
+    out = {"python": platform.python_version(), "platform": platform.platform(terse=True)}
+    for package in ("labbench", "numpy", "pandas", "optuna", "sqlalchemy", "scipy"):
+        try:
+            out[package] = version(package)
+        except PackageNotFoundError:
+            continue
+    return out
+
+
+def plain(value: Any) -> Any:
+    """numpy scalars/arrays and tuples → plain Python (SQLite attrs refuse numpy values)."""
+    if isinstance(value, Mapping):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [plain(v) for v in value]
+    if hasattr(value, "tolist"):  # numpy scalar or array
+        return plain(value.tolist())
+    if isinstance(value, Path):
+        return str(value)
+    return value

@@ -1,0 +1,134 @@
+"""How the search picks and stops trials: the Optuna sampler and pruner a spec asks for.
+
+Pruners see one value per epoch: the fold-mean validation loss (step = epoch, 1-based). Optuna's
+pruners compare intermediate values in the study's direction, and a loss is always "lower is
+better", so for a study that maximises its metric the runner reports the loss with its sign
+flipped (``intermediate_sign``); the ``curve`` trial attr always holds the plain loss.
+
+Also here: routing Optuna's log lines into labbench's logging.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import logging
+from typing import Any
+
+from labbench.errors import SpecError
+
+log = logging.getLogger("labbench.search.strategy")
+
+
+def intermediate_sign(direction: str) -> float:
+    """+1 when the study minimises, -1 when it maximises (see the module text)."""
+    return -1.0 if direction == "maximize" else 1.0
+
+
+def _source(spec: Any) -> str:
+    return f"{spec.source_path}: " if getattr(spec, "source_path", None) else ""
+
+
+def make_sampler(spec: Any):
+    """The sampler of ``[search] sampler``, seeded with ``evaluation.seed``."""
+    import optuna
+
+    name = spec.search.sampler
+    seed = int(spec.evaluation.seed)
+    if name == "tpe":
+        return optuna.samplers.TPESampler(seed=seed)
+    if name == "random":
+        return optuna.samplers.RandomSampler(seed=seed)
+    if name == "grid":
+        return optuna.samplers.GridSampler(spec.space.grid(), seed=seed)
+    if name == "qmc":
+        _needs(spec, "scipy", "qmc")
+        return optuna.samplers.QMCSampler(seed=seed, scramble=True, warn_independent_sampling=False)
+    if name == "cmaes":
+        _needs(spec, "cmaes", "cmaes")
+        return optuna.samplers.CmaEsSampler(seed=seed, warn_independent_sampling=False)
+    raise SpecError(f"{_source(spec)}search.sampler: {name!r} is not known; use tpe, random, grid, "
+                    "qmc or cmaes")
+
+
+def _needs(spec: Any, module: str, sampler: str) -> None:
+    if importlib.util.find_spec(module) is None:
+        raise SpecError(f"{_source(spec)}search.sampler: {sampler!r} needs the Python package "
+                        f"'{module}' (pip install {module}), or choose tpe or random")
+
+
+def epoch_range(spec: Any) -> tuple[int, int]:
+    """(fewest, most) epochs a trial of this space can train."""
+    from labbench.search.space import Choices, Fixed, IntRange
+
+    s = spec.space["epochs"]
+    if isinstance(s, Fixed):
+        return int(s.value), int(s.value)
+    if isinstance(s, Choices):
+        return int(min(s.values)), int(max(s.values))
+    if isinstance(s, IntRange):
+        return int(s.low), int(s.high)
+    raise AssertionError(f"epochs cannot be {s!r}")
+
+
+def warmup_epochs(spec: Any) -> int:
+    """Epochs before any trial may be pruned: a fifth of the shortest trial, 2 to 10 (common
+    practice: the first epochs of a network say little about where it ends)."""
+    fewest, _ = epoch_range(spec)
+    return max(2, min(10, round(fewest / 5)))
+
+
+def make_pruner(spec: Any):
+    """The pruner of ``[search] pruner``; step = epoch (1-based), value = fold-mean val loss."""
+    import optuna
+
+    name = spec.search.pruner
+    warmup = warmup_epochs(spec)
+    _, most = epoch_range(spec)
+    if name == "none":
+        return optuna.pruners.NopPruner()
+    if name == "median":
+        # Compare only after five finished trials (Optuna's default) and after the warm-up epochs.
+        return optuna.pruners.MedianPruner(n_startup_trials=5, n_warmup_steps=warmup)
+    if name == "halving":
+        return optuna.pruners.SuccessiveHalvingPruner(min_resource=warmup, reduction_factor=3)
+    if name == "hyperband":
+        return optuna.pruners.HyperbandPruner(min_resource=warmup, max_resource=max(most, warmup + 1),
+                                              reduction_factor=3)
+    raise SpecError(f"{_source(spec)}search.pruner: {name!r} is not known; use none, median, "
+                    "halving or hyperband")
+
+
+# --------------------------------------------------------------------------------------------
+# Optuna's logging
+
+
+def route_optuna_logging() -> None:
+    """Optuna's log lines go through the "optuna" logger into labbench's handlers.
+
+    Optuna's own stderr handler is removed and the logger propagates; its level follows the
+    "labbench" logger (quiet by default: warnings only; ``-v`` shows info, ``-vv`` debug) and its
+    records are re-emitted under "labbench.optuna" so the handler the command line (or the window)
+    attached to "labbench" receives them.
+    """
+    import optuna
+
+    from labbench.search.storage import quiet_optuna_warnings
+
+    optuna.logging.disable_default_handler()
+    optuna.logging.enable_propagation()
+    ours = logging.getLogger("labbench")
+    level = ours.getEffectiveLevel()
+    optuna_logger = logging.getLogger("optuna")
+    optuna_logger.setLevel(max(level, logging.DEBUG))
+    if not any(isinstance(h, _ToLabbench) for h in optuna_logger.handlers):
+        optuna_logger.addHandler(_ToLabbench())
+    quiet_optuna_warnings()
+
+
+class _ToLabbench(logging.Handler):
+    """Re-emits Optuna's records under "labbench.optuna" (one handler chain for everything)."""
+
+    def emit(self, record: logging.LogRecord) -> None:
+        target = logging.getLogger("labbench.optuna")
+        if target.isEnabledFor(record.levelno):
+            target.handle(record)
