@@ -1,0 +1,179 @@
+"""ONNX export of a trained model: preprocessing and network in one graph of standard operators.
+
+Inputs, one per input column of the model, named after the column (letters, digits and ``_``;
+other characters become ``_``, a leading digit gets ``c_`` in front), each of shape [N, 1]:
+  * numeric column:     tensor(double); NaN means missing (replaced by the training median);
+  * categorical column: tensor(string), the category as text without surrounding spaces (whole
+    numbers without ".0", booleans as "True"/"False"); "" means missing (replaced by the most
+    frequent training value); a category not seen in training encodes as all zeros.
+Outputs:
+  * regression:      ``value`` tensor(float) [N]
+  * classification:  ``label`` tensor(string) [N] and ``probabilities`` tensor(float) [N, C]
+                     (columns in the order of the class list in the metadata).
+
+Operators: default domain opset 17 (Concat, IsNaN, Where, Sub, Div, Cast, Equal, Gemm, Relu, Tanh,
+Sigmoid, Softmax, ArgMax, GreaterOrEqual, Gather, Reshape) and, for the categories, ``LabelEncoder``
+of the ONNX-ML domain ``ai.onnx.ml`` (opset 2): ``Equal`` takes strings only from opset 19 on, so
+strings are first mapped to their one-hot position by the label encoder, then compared as int64.
+Numeric preprocessing runs in double (as labbench does), the network in its own dtype (float32 by
+default). The model's metadata_props carry the bundle metadata as JSON (``labbench``) and the
+column → input name map (``inputs``).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+
+from labbench.errors import LabbenchError
+from labbench.model import TrainedModel
+
+OPSET = 17
+ML_OPSET = 2
+IR_VERSION = 8   # the IR version that goes with opset 17
+_ACTIVATION_OPS = {"relu": "Relu", "tanh": "Tanh", "sigmoid": "Sigmoid"}
+
+
+def input_names(features) -> dict[str, str]:
+    """Column name -> ONNX input name (sanitised, unique)."""
+    out: dict[str, str] = {}
+    used: set[str] = set()
+    for col in features:
+        base = re.sub(r"[^A-Za-z0-9_]", "_", str(col)) or "column"
+        if base[0].isdigit():
+            base = "c_" + base
+        name, k = base, 2
+        while name in used:
+            name, k = f"{base}_{k}", k + 1
+        used.add(name)
+        out[col] = name
+    return out
+
+
+def build_onnx(model: TrainedModel):
+    """The ``onnx.ModelProto`` of ``model`` (not yet checked or saved)."""
+    try:
+        import onnx
+        from onnx import TensorProto, helper, numpy_helper
+    except ImportError:
+        raise LabbenchError("ONNX export needs the onnx package; install it with "
+                            "pip install 'labbench[onnx]'") from None
+    from labbench.export.bundle import bundle_arrays
+
+    state = model.preprocessor.to_state()
+    layers = model.weights.layers
+    net_dtype = np.asarray(layers[0][0]).dtype
+    net_type = TensorProto.DOUBLE if net_dtype == np.float64 else TensorProto.FLOAT
+    names = input_names(model.features)
+    nodes, inits = [], []
+
+    def const(name: str, value) -> str:
+        inits.append(numpy_helper.from_array(np.asarray(value), name=f"_lb.{name}"))
+        return f"_lb.{name}"
+
+    def node(op: str, inputs, output: str, domain: str = "", **attrs) -> str:
+        nodes.append(helper.make_node(op, list(inputs), [output], name=f"_lb.{output}.op",
+                                      domain=domain, **attrs))
+        return output
+
+    graph_inputs = []
+    for col in model.features:
+        kind = TensorProto.DOUBLE if model.kinds[col] == "numeric" else TensorProto.STRING
+        graph_inputs.append(helper.make_tensor_value_info(names[col], kind, ["N", 1]))
+
+    blocks = []
+    numeric = state["numeric"]
+    if numeric:
+        raw = node("Concat", [names[c] for c in numeric], "_lb.numeric", axis=1) if len(numeric) > 1 else names[numeric[0]]
+        missing = node("IsNaN", [raw], "_lb.numeric_missing")
+        filled = node("Where", [missing, const("impute", np.array(state["impute"], np.float64)), raw], "_lb.numeric_filled")
+        centred = node("Sub", [filled, const("center", np.array(state["center"], np.float64))], "_lb.numeric_centred")
+        scaled = node("Div", [centred, const("scale", np.array(state["scale"], np.float64))], "_lb.numeric_scaled")
+        blocks.append(node("Cast", [scaled], "_lb.numeric_block", to=net_type))
+    for j, (col, cats, fill) in enumerate(zip(state["categorical"], state["categories"], state["cat_impute"])):
+        if not cats:
+            continue  # no category in training: the column contributes no inputs
+        keys = list(cats) + ([""] if "" not in cats else [])
+        values = list(range(len(cats))) + ([cats.index(fill) if fill in cats else -1] if "" not in cats else [])
+        codes = node("LabelEncoder", [names[col]], f"_lb.cat{j}_code", domain="ai.onnx.ml",
+                     keys_strings=keys, values_int64s=values, default_int64=-1)
+        hot = node("Equal", [codes, const(f"cat{j}_positions", np.arange(len(cats), dtype=np.int64)[None, :])],
+                   f"_lb.cat{j}_equal")
+        blocks.append(node("Cast", [hot], f"_lb.cat{j}_block", to=net_type))
+    h = node("Concat", blocks, "_lb.inputs", axis=1) if len(blocks) > 1 else blocks[0]
+
+    for i, (W, b) in enumerate(layers):
+        h = node("Gemm", [h, const(f"W{i}", np.asarray(W)), const(f"b{i}", np.asarray(b))], f"_lb.layer{i}")
+        if i < len(layers) - 1:
+            h = node(_ACTIVATION_OPS[model.weights.activation], [h], f"_lb.hidden{i}")
+
+    outputs = []
+    if model.task == "regression":
+        node("Reshape", [h, const("flat", np.array([-1], np.int64))], "value")
+        outputs.append(helper.make_tensor_value_info("value", net_type, ["N"]))
+    else:
+        classes = const("classes", np.array(list(model.classes), dtype=object))
+        if model.task == "binary":
+            p = node("Sigmoid", [h], "_lb.p1")
+            q = node("Sub", [const("one", np.ones((1, 1), dtype=net_dtype)), p], "_lb.p0")
+            node("Concat", [q, p], "probabilities", axis=1)
+            flat = node("Reshape", [p, const("flat", np.array([-1], np.int64))], "_lb.p1_flat")
+            hit = node("GreaterOrEqual", [flat, const("half", np.array(0.5, dtype=net_dtype))], "_lb.is_second")
+            index = node("Cast", [hit], "_lb.label_index", to=TensorProto.INT64)
+        else:
+            node("Softmax", [h], "probabilities", axis=1)
+            index = node("ArgMax", ["probabilities"], "_lb.label_index", axis=1, keepdims=0)
+        node("Gather", [classes, index], "label", axis=0)
+        outputs.append(helper.make_tensor_value_info("label", TensorProto.STRING, ["N"]))
+        outputs.append(helper.make_tensor_value_info("probabilities", net_type, ["N", len(model.classes)]))
+
+    graph = helper.make_graph(nodes, "labbench_model", graph_inputs, outputs, initializer=inits)
+    proto = helper.make_model(
+        graph, producer_name="labbench", producer_version=_version(), ir_version=IR_VERSION,
+        opset_imports=[helper.make_opsetid("", OPSET), helper.make_opsetid("ai.onnx.ml", ML_OPSET)],
+        doc_string=_doc(model, names),
+    )
+    meta = bytes(bundle_arrays(model)["meta"]).decode("utf-8")
+    helper.set_model_props(proto, {"labbench": meta, "inputs": json.dumps(names)})
+    return proto
+
+
+def _version() -> str:
+    from labbench import __version__
+    return __version__
+
+
+def _doc(model: TrainedModel, names: dict[str, str]) -> str:
+    from labbench.export.bundle import CAUTION
+
+    lines = [f"labbench model: predicts {model.target!r} ({model.task}) from {len(model.features)} column(s).",
+             "Inputs, one per column, shape [N, 1]:"]
+    for col in model.features:
+        kind = model.kinds[col]
+        what = "double, NaN = missing" if kind == "numeric" else "string, '' = missing, unseen = all zeros"
+        lines.append(f"  {names[col]}  <- column {col!r} ({kind}: {what})")
+    if model.task == "regression":
+        lines.append("Output: value [N] (float).")
+    else:
+        lines.append(f"Outputs: label [N] (string), probabilities [N, {len(model.classes)}] "
+                     f"in class order {list(model.classes)}.")
+    lines.append(CAUTION)
+    return "\n".join(lines)
+
+
+def export_onnx(model: TrainedModel, path: str | os.PathLike) -> Path:
+    """Write ``model`` as an ONNX file after ``onnx.checker.check_model(full_check=True)``."""
+    import onnx
+
+    proto = build_onnx(model)
+    onnx.checker.check_model(proto, full_check=True)
+    target = Path(path)
+    if not target.suffix:
+        target = target.with_suffix(".onnx")
+    target.parent.mkdir(parents=True, exist_ok=True)
+    onnx.save_model(proto, str(target))
+    return target
