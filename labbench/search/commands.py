@@ -131,18 +131,67 @@ def run_command(args) -> int:
         print(f"labbench: no trial completed, so there is no winner; see `labbench show "
               f"{args.spec}` for why the trials failed", file=sys.stderr)
         return EXIT_NO_WINNER
-    from labbench.search.report_text import winner_text
+    from labbench.search import events
     from labbench.search.winner import finalize
 
-    with _Interrupts(cancel, say):
-        summary = finalize(spec, outcome.url, target, emit=progress, cancel=cancel)
+    files: list[str] = []
+
+    def collect(event) -> None:
+        if isinstance(event, events.WinnerReady):
+            files.extend(event.files)
+        progress(event)
+
+    summary, _model = finalize(spec, runner.study, runner.prepared, emit=collect, out_dir=target)
     progress.close()
-    if cancel.is_set():
-        print("labbench: interrupted while checking the winner; the search itself is stored",
-              file=sys.stderr)
-        return EXIT_INTERRUPTED
-    print(winner_text(summary))
+    print(winner_text(summary, files))
     return EXIT_OK
+
+
+def _fmt(value) -> str:
+    from labbench.search.insight import fmt
+
+    return fmt(value)
+
+
+def winner_text(summary: dict, files: list[str] = ()) -> str:
+    """The winner summary ``labbench run`` prints at the end."""
+    s, metric = summary, summary["metric"]
+    folds = s.get("fold_scores") or []
+    lines = [f"winner: trial {s['trial_number']} of search '{s.get('study_name', '')}'",
+             f"  {metric}, cross-validated over {len(folds)} folds: {_fmt(s['cv_mean'])} "
+             f"± {_fmt(s['cv_std'])} (mean ± standard deviation across folds)",
+             "  per fold: " + "  ".join(_fmt(v) for v in folds)]
+    comparison = s.get("cv_vs_holdout") or {}
+    lines.append(f"  hold-out ({s.get('holdout_rows', '?')} rows, scored once): "
+                 f"{_fmt(s.get('holdout_score'))}")
+    if comparison.get("text"):
+        lines.append(f"    {comparison['text']}")
+    spread = s.get("seed_spread")
+    if spread and spread.get("scores"):
+        lines.append(f"  seed spread ({len(spread['scores'])} seeds): {_fmt(spread['mean'])} "
+                     f"± {_fmt(spread['std'])}, from {_fmt(spread['min'])} to {_fmt(spread['max'])}")
+    else:
+        lines.append("  seed spread: not measured")
+    if s.get("runner_up") and s["runner_up"].get("text"):
+        lines.append(f"    {s['runner_up']['text']}")
+    settings = s.get("settings") or {}
+    if settings:
+        lines.append("  settings: " + ", ".join(f"{k} {v}" for k, v in settings.items()))
+    imp = s.get("importance") or {}
+    if imp.get("values"):
+        lines.append(f"  importance ({imp.get('method')}): " + ", ".join(
+            f"{k} {v:.2f}" for k, v in imp["values"].items()))
+    if imp.get("message"):
+        lines.append(f"    {imp['message']}")
+    counts = s.get("trials") or {}
+    lines.append("  trials: " + ", ".join(f"{n} {k}" for k, n in counts.items() if n))
+    for warning in s.get("warnings") or []:
+        lines.append(f"  warning: {warning}")
+    if files:
+        lines.append("  files: " + ", ".join(str(f) for f in files))
+    if s.get("caution"):
+        lines.append(f"  note: {s['caution']}")
+    return "\n".join(lines)
 
 
 # --------------------------------------------------------------------------------------------

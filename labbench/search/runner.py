@@ -131,7 +131,11 @@ def _positive(value, name: str, kind=int):
 
 
 class SearchRunner:
-    """One run of a search (see the module text). ``emit`` receives every event, in order."""
+    """One run of a search (see the module text). ``emit`` receives every event, in order.
+
+    After ``run`` the runner keeps ``prepared`` (the spec's data, as the trials saw it) and
+    ``study`` (the Optuna study) for the after-search work (``labbench.search.winner.finalize``).
+    """
 
     def __init__(self, spec, emit: ev.Emit = ev.ignore, *, storage: str | None = None,
                  trials: int | None = None, minutes: float | None = None,
@@ -181,7 +185,7 @@ class SearchRunner:
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
-        prepared = prepare(self.spec)
+        prepared = self.prepared = prepare(self.spec)
         self.direction = prepared.direction
         self.sign = intermediate_sign(prepared.direction)
         self.url = resolve_url(self.spec, self.storage_override)

@@ -13,13 +13,15 @@ worker → controller (one shared queue):
     ("died", index, exitcode)                        synthesised by ``poll`` when a process is gone
 
 Stopping a trial after its current epoch: the controller writes the trial number into the
-worker's shared ``stop`` value; the worker checks it after every epoch. Workers ignore SIGINT: a
+worker's shared ``stop`` value; the worker checks it after every epoch. A worker whose controller
+has gone (killed) stops after the current epoch, or within a second when idle. Workers ignore SIGINT: a
 Ctrl-C in a terminal reaches the whole process group, and only the controller decides what to do.
 """
 
 from __future__ import annotations
 
 import logging
+import multiprocessing
 import os
 import pickle
 import queue
@@ -59,8 +61,15 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
         return
     outbox.put(("ready", index, os.getpid()))
     seed = int(spec.evaluation.seed)
+    parent = multiprocessing.parent_process()
+    orphaned = (lambda: not parent.is_alive()) if parent is not None else (lambda: False)
     while True:
-        message = inbox.get()
+        try:
+            message = inbox.get(timeout=1.0)
+        except queue.Empty:
+            if orphaned():        # the controller was killed: nobody will ever read our results
+                return
+            continue
         if message is None:
             break
         _, number, settings = message
@@ -70,7 +79,7 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
 
         try:
             result = run_trial(prepared, settings, seed=seed, on_epoch=send,
-                               should_stop=lambda number=number: stop.value == number)
+                               should_stop=lambda number=number: stop.value == number or orphaned())
         except Exception as exc:
             outbox.put(("error", index, number, f"{type(exc).__name__}: {exc}",
                         traceback.format_exc()))
@@ -100,8 +109,6 @@ class WorkerPool:
 
     def __init__(self, spec: Any, n: int, *, data_sha256: str = "", threads: int | None = None,
                  max_restarts: int = 2):
-        import multiprocessing
-
         self._ctx = multiprocessing.get_context("spawn")
         self._blob = pickle.dumps(spec)
         self._sha = data_sha256

@@ -1,0 +1,139 @@
+"""``labbench run`` / ``labbench show`` through the real entry point ``labbench.cli.main``."""
+
+from __future__ import annotations
+
+import io
+import json
+import shutil
+from pathlib import Path
+
+import pytest
+
+from labbench.cli import main
+from labbench.search import events as ev
+from labbench.search.progress import ProgressLine
+from labbench.search.spec import load_spec, save_spec
+from runner_support import ROOT, iris_csv, load, write_spec
+
+WINNER_KEYS = {"metric", "direction", "cv_mean", "cv_std", "fold_scores", "holdout_score",
+               "seed_spread", "params", "trial_number", "trials", "importance", "data_sha256",
+               "versions"}
+
+
+@pytest.fixture
+def orchard(tmp_path) -> Path:
+    """The orchard demo set copied to a temp folder, with 3 epochs per trial to stay quick."""
+    demo = ROOT / "demo_sets"
+    spec = load_spec(demo / "orchard.toml")
+    shutil.copy(spec.data.path, tmp_path / Path(spec.data.path).name)
+    spec = load_spec(save_spec(spec, tmp_path / "orchard.toml").source_path)
+    spec = spec.with_space(spec.space.with_setting("epochs", 3)).with_evaluation(seed_spread=2)
+    save_spec(spec, tmp_path / "orchard.toml")
+    return tmp_path / "orchard.toml"
+
+
+def test_run_on_the_orchard_demo_writes_the_winner_and_show_lists_the_trials(orchard, capsys):
+    assert main(["run", str(orchard), "--trials", "3", "--workers", "2"]) == 0
+    out, err = capsys.readouterr()
+    assert "winner: trial" in out and "hold-out" in out and "seed spread (2 seeds)" in out
+    assert "estimate" in out                      # the caution that CV is an estimate
+    assert "trial 0 complete" in err or "trial 0 " in err    # one line per trial off a terminal
+    folder = orchard.parent / "orchard_out"
+    summary = json.loads((folder / "winner.json").read_text())
+    assert WINNER_KEYS <= set(summary)
+    assert (folder / "winner.toml").exists() and str(folder / "winner.toml") in out
+    study = load(orchard.parent / "orchard.db", "orchard")
+    assert len(study.trials) == 3 and summary["trial_number"] in [t.number for t in study.trials]
+
+    assert main(["show", str(orchard)]) == 0
+    table = capsys.readouterr().out
+    rows = [line for line in table.splitlines() if line.split()[:1] in (["0"], ["1"], ["2"])]
+    assert len(rows) == 3 and all("complete" in r for r in rows)
+    assert f"best: trial {summary['trial_number']}" in table
+
+    url = f"sqlite:///{orchard.parent / 'orchard.db'}"
+    assert main(["show", url]) == 0
+    assert "search 'orchard'" in capsys.readouterr().out
+
+
+def test_resume_adds_trials_and_leaves_the_first_ones_unchanged(tmp_path, capsys):
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=40)
+    assert main(["run", str(spec), "--trials", "5", "--out", str(tmp_path / "o")]) == 0
+    db = tmp_path / "exp.db"
+    first = [(t.number, t.params, t.value, t.user_attrs, t.intermediate_values)
+             for t in load(db).trials]
+    assert main(["run", str(spec), "--trials", "5", "--out", str(tmp_path / "o")]) == 0
+    trials = load(db).trials
+    assert len(trials) == 10
+    assert [(t.number, t.params, t.value, t.user_attrs, t.intermediate_values)
+            for t in trials[:5]] == first
+    assert "5 already stored" in capsys.readouterr().err
+
+    assert main(["run", str(spec), "--trials", "2", "--fresh", "--out", str(tmp_path / "o")]) == 0
+    assert len(load(db).trials) == 2
+
+
+def test_bad_input_is_one_line_and_exit_2(tmp_path, capsys):
+    assert main(["run", str(tmp_path / "missing.toml")]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("labbench:") and "\n" not in err and "missing.toml" in err
+
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=1)
+    assert main(["run", str(spec), "--workers", "0"]) == 2
+    assert "--workers" in capsys.readouterr().err
+    assert main(["run", str(spec), "--storage", "nowhere.db"]) == 2
+    assert "not a database URL" in capsys.readouterr().err
+    assert main(["show", str(spec)]) == 2
+    assert "no search is stored there yet" in capsys.readouterr().err
+
+
+def test_a_changed_data_file_refuses_to_resume(tmp_path, capsys):
+    csv = iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=1)
+    assert main(["run", str(spec), "--quiet", "--out", str(tmp_path / "o")]) == 0
+    capsys.readouterr()
+    csv.write_text(csv.read_text().replace("5.1,3.5", "5.2,3.5", 1))
+    assert main(["run", str(spec)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "contents changed" in err and "--fresh" in err and "\n" not in err
+
+
+def test_quiet_prints_no_progress_and_optuna_logs_follow_verbosity(tmp_path, capsys):
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=2)
+    assert main(["run", str(spec), "--quiet", "--out", str(tmp_path / "o")]) == 0
+    out, err = capsys.readouterr()
+    assert "trial 0" not in err and "[I " not in err     # no progress, no Optuna default handler
+    assert "winner: trial" in out
+    assert main(["-v", "run", str(spec), "--trials", "1", "--out", str(tmp_path / "o")]) == 0
+    err = capsys.readouterr().err
+    assert "INFO optuna" in err and "[I " not in err      # Optuna's lines, through our handler
+
+
+def _feed(line: ProgressLine) -> None:
+    line(ev.SearchStarted("exp", "sqlite:///x.db", "rmse", "minimize", 2, None, 0))
+    line(ev.TrialStarted(0, {"learning_rate": 0.1}, {"epochs": 3}))
+    for epoch in (1, 2, 3):
+        line(ev.EpochScored(0, epoch, 1.0, 0.9, 0.8, 3))
+    line(ev.TrialEnded(0, "complete", 0.8, (0.7, 0.9), 1.5, "", {}, 3))
+    line(ev.NewBest(0, 0.8, 0.14, (0.7, 0.9), {}))
+    line(ev.Progress(1, 2, 1.5, 1.5))
+    line(ev.Notice("something to know"))
+    line(ev.SearchEnded("budget", {"complete": 1}, 0, 0.8))
+
+
+def test_progress_line_redraws_on_a_terminal_and_writes_lines_elsewhere():
+    tty = io.StringIO()
+    _feed(ProgressLine(tty, tty=True, min_redraw_s=0.0))
+    text = tty.getvalue()
+    assert "\r" in text and "1/2 trials" in text and "best rmse 0.8000 (trial 0)" in text
+    assert "left 2s" in text and "warning: something to know\n" in text
+
+    pipe = io.StringIO()
+    _feed(ProgressLine(pipe, tty=False))
+    lines = pipe.getvalue().splitlines()
+    assert "\r" not in pipe.getvalue()
+    assert any(line.startswith("trial 0 complete rmse 0.8000 in 2s, 3 epochs") for line in lines)
+    assert lines[-1].startswith("search ended (budget): 1 complete")

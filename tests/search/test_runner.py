@@ -1,0 +1,217 @@
+"""The ask/tell runner through its Python API: events, stored attrs, reproducibility, pruning,
+divergence, cancel from another thread."""
+
+from __future__ import annotations
+
+import math
+import threading
+
+import numpy as np
+import pytest
+
+from labbench.search import events as ev
+from labbench.search.runner import CANCELLED, SearchRunner
+from labbench.search.spec import load_spec
+from labbench.search.storage import Heartbeat
+from runner_support import diabetes_csv, iris_csv, load, write_spec
+
+STUDY_ATTRS = {"spec_toml", "spec_path", "data_sha256", "data_path", "task", "metric", "direction",
+               "classes", "n_rows", "n_holdout", "versions", "labbench_format", "searched",
+               "log_scaled"}
+TRIAL_ATTRS = {"settings", "fold_scores", "cv_std", "curve", "duration_s", "epochs_run",
+               "end_reason", "worker"}
+
+
+class Recorder(list):
+    def __call__(self, event):
+        self.append(event)
+
+    def of(self, kind):
+        return [e for e in self if isinstance(e, kind)]
+
+
+def run(spec_path, db, **kw):
+    events = Recorder()
+    cancel = kw.pop("cancel", None) or threading.Event()
+    runner = SearchRunner(load_spec(spec_path), events, storage=f"sqlite:///{db}", **kw)
+    outcome = runner.run(cancel)
+    return outcome, events
+
+
+def test_a_search_stores_the_contract_and_emits_the_events(tmp_path):
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=3)
+    db = tmp_path / "s.db"
+    outcome, events = run(spec, db)
+    assert outcome.reason == "budget" and outcome.trials_run == 3
+    assert isinstance(events[0], ev.SearchStarted) and isinstance(events[-1], ev.SearchEnded)
+    assert events[0].metric == "balanced_accuracy" and events[0].direction == "maximize"
+    assert set(events[0].searched) == {"learning_rate", "units_1", "activation"}
+    assert events[0].log_scaled == ("learning_rate",)
+    ended = events.of(ev.TrialEnded)
+    assert [e.state for e in ended] == ["complete"] * 3
+    study = load(db)
+    assert STUDY_ATTRS <= set(study.user_attrs)
+    assert study.user_attrs["classes"] == ["setosa", "versicolor", "virginica"]
+    assert study.user_attrs["n_rows"] + study.user_attrs["n_holdout"] == 150
+    for t in study.trials:
+        assert t.state.name == "COMPLETE"
+        assert TRIAL_ATTRS <= set(t.user_attrs)
+        ua = t.user_attrs
+        assert len(ua["fold_scores"]) == 3 and ua["end_reason"] == ""
+        assert t.value == pytest.approx(np.mean(ua["fold_scores"]), abs=1e-12)
+        assert ua["cv_std"] == pytest.approx(np.std(ua["fold_scores"], ddof=1), abs=1e-12)
+        assert ua["curve"]["epoch"] == [1, 2, 3, 4] and ua["epochs_run"] == 4
+        # intermediate values: the fold-mean validation loss, sign-flipped for a maximised metric
+        assert [t.intermediate_values[s] for s in (1, 2, 3, 4)] == \
+            pytest.approx([-v for v in ua["curve"]["val_loss"]], abs=1e-12)
+        assert ua["settings"]["epochs"] == 4 and ua["settings"]["hidden"][0] == t.params["units_1"]
+    scored = events.of(ev.EpochScored)
+    assert len(scored) == 12 and {e.epochs_total for e in scored} == {4}
+    best = events.of(ev.NewBest)[-1]
+    assert best.value == max(t.value for t in study.trials)
+    assert events.of(ev.Progress)[-1].done == 3
+    assert outcome.counts["complete"] == 3 and outcome.best_value == best.value
+
+
+def test_a_seeded_sequential_search_is_reproduced_exactly(tmp_path):
+    """Same spec, one worker, seeded TPE (past its 10 random start-up trials) → same trials."""
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=12, pruner="median")
+    results = []
+    for name in ("a.db", "b.db"):
+        run(spec, tmp_path / name)
+        results.append([(t.params, t.value, t.user_attrs["fold_scores"], t.state.name)
+                        for t in load(tmp_path / name).trials])
+    assert len(results[0]) == 12
+    assert results[0] == results[1]
+    assert len({str(r[0]) for r in results[0]}) > 6      # the sampler really varied the settings
+
+
+def test_pruning_stops_hopeless_trials_early(tmp_path):
+    """A learning rate of 1e-7 cannot move the network in 20 epochs; the median pruner (after
+    its 5 start-up trials) must stop such trials, and only those."""
+    iris_csv(tmp_path)
+    space = """
+learning_rate = { choices = [1e-7, 0.05] }
+hidden_layers = 1
+hidden_units = 8
+epochs = 20
+batch_size = 16
+"""
+    spec = write_spec(tmp_path, trials=12, sampler="random", pruner="median", space=space, seed=1)
+    db = tmp_path / "s.db"
+    run(spec, db)
+    trials = load(db).trials
+    pruned = [t for t in trials if t.state.name == "PRUNED"]
+    assert pruned, [(t.params, t.state.name) for t in trials]
+    for t in pruned:
+        assert t.params["learning_rate"] == 1e-7
+        assert t.user_attrs["epochs_run"] < 20 and "pruned after epoch" in t.user_attrs["end_reason"]
+    good = [t for t in trials if t.params["learning_rate"] == 0.05]
+    assert good and all(t.state.name == "COMPLETE" for t in good)
+
+
+def test_a_diverging_trial_fails_with_its_reason_and_the_search_goes_on(tmp_path):
+    diabetes_csv(tmp_path)
+    space = """
+learning_rate = { choices = [1e-3, 1e6] }
+optimizer = "sgd"
+hidden_layers = 1
+hidden_units = 8
+epochs = 5
+"""
+    spec = write_spec(tmp_path, data="diabetes.csv", target="target", trials=6, sampler="grid",
+                      space=space)
+    db = tmp_path / "s.db"
+    outcome, events = run(spec, db)
+    by_lr = {t.params["learning_rate"]: t for t in load(db).trials}
+    assert by_lr[1e6].state.name == "FAIL" and by_lr[1e6].user_attrs["end_reason"]
+    assert by_lr[1e-3].state.name == "COMPLETE"
+    # the grid has two points: the search stops there with a notice
+    assert outcome.trials_run == 2 and outcome.reason == "budget"
+    assert any("grid" in n.text for n in events.of(ev.Notice))
+
+
+def test_holdout_rows_never_reach_any_trial(tmp_path):
+    """Poison the target of every hold-out row with 1e7 (diabetes targets are 25–346): a hold-out
+    row in any fold's training or validation rows would push that fold's RMSE far above 1e3 (or
+    make training diverge). Control: poisoning one *training* row instead is caught."""
+    import pandas as pd
+
+    from labbench.search.prepare import prepare
+
+    space = "learning_rate = 0.01\nhidden_layers = 1\nhidden_units = 8\nepochs = 3"
+    base = diabetes_csv(tmp_path)
+    spec_path = write_spec(tmp_path, data="diabetes.csv", target="target", trials=1, space=space)
+    split = prepare(load_spec(spec_path))
+    frame = pd.read_csv(base)
+
+    def search_with_poison(rows, tag):
+        poisoned = frame.copy()
+        poisoned.loc[rows, "target"] = 1e7
+        poisoned.to_csv(tmp_path / f"{tag}.csv", index=False)
+        path = write_spec(tmp_path, data=f"{tag}.csv", target="target", trials=1, space=space,
+                          name=f"{tag}.toml")
+        again = prepare(load_spec(path))
+        assert np.array_equal(again.holdout_pos, split.holdout_pos)   # same split as unpoisoned
+        run(path, tmp_path / f"{tag}.db")
+        return load(tmp_path / f"{tag}.db", tag).trials[0]
+
+    clean = search_with_poison(split.holdout_pos, "holdout")
+    assert clean.state.name == "COMPLETE"
+    assert max(clean.user_attrs["fold_scores"]) < 1e3
+    leaked = search_with_poison(split.train_pos[:1], "leak")
+    assert leaked.state.name == "FAIL" or max(leaked.user_attrs["fold_scores"]) > 1e4
+
+
+def test_cancel_from_another_thread_ends_the_trial_as_failed(tmp_path):
+    iris_csv(tmp_path)
+    space = "learning_rate = { low = 0.001, high = 0.01 }\nhidden_layers = 1\nhidden_units = 8\n" \
+            "epochs = 100000\nbatch_size = 8"
+    spec = write_spec(tmp_path, trials=5, space=space, workers=2)
+    db = tmp_path / "s.db"
+    cancel = threading.Event()
+    events = Recorder()
+    box = {}
+
+    def watch(event):
+        events(event)
+        if isinstance(event, ev.EpochScored) and event.epoch >= 3:
+            cancel.set()
+
+    runner = SearchRunner(load_spec(spec), watch, storage=f"sqlite:///{db}")
+    thread = threading.Thread(target=lambda: box.setdefault("outcome", runner.run(cancel)))
+    thread.start()
+    thread.join(120)
+    assert not thread.is_alive()
+    outcome = box["outcome"]
+    assert outcome.reason == "cancelled" and outcome.cancelled
+    assert events[-1].reason == "cancelled"
+    trials = load(db).trials
+    assert trials and all(t.state.name == "FAIL" for t in trials)
+    assert all(t.user_attrs["end_reason"] == CANCELLED for t in trials)
+    assert {e.state for e in events.of(ev.TrialEnded)} == {"cancelled"}
+    # stopped after a handful of its 100000 epochs
+    assert all(t.user_attrs["epochs_run"] < 1000 for t in trials)
+
+
+def test_bad_budget_values_are_refused(tmp_path):
+    from labbench.errors import SpecError
+
+    iris_csv(tmp_path)
+    spec = load_spec(write_spec(tmp_path))
+    for kw, words in (({"trials": 0}, "--trials"), ({"minutes": -1}, "--minutes"),
+                      ({"workers": 0}, "--workers")):
+        with pytest.raises(SpecError, match=words):
+            SearchRunner(spec, storage="sqlite:///x.db", **kw)
+
+
+def test_time_budget_stops_asking(tmp_path):
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=10_000)
+    outcome, events = run(spec, tmp_path / "s.db", minutes=0.05,
+                          heartbeat=Heartbeat(10, 60))
+    assert outcome.reason == "time"
+    assert 0 < outcome.trials_run < 10_000
+    assert math.isfinite(outcome.best_value)
