@@ -1,0 +1,174 @@
+"""Search overhead and worker scaling of ``labbench.search.runner`` (issue 3 §7).
+
+1. Overhead: a 200-trial search of a small workload (seeded TPE, no pruning, one worker, SQLite
+   on disk) against a reference measured in the same run: the same 200 settings trained directly
+   in this process, one after another, with no Optuna, no storage and no processes. The overhead
+   is (search wall time − reference) / reference; goal ≤ 5 %. Worker start-up (spawn, imports,
+   preparing the folds once) is reported apart, since it is paid once per run, not per trial.
+2. Throughput with 2 workers vs 1 on the same trials (random sampler, no pruning); goal ≥ 1.8 ×.
+
+Data: scikit-learn's bundled breast-cancer set (569 rows, 30 features) for a quick workload and
+its digits set (1,797 rows, 64 features) for the heavier one of the scaling test.
+
+Run:  python benchmarks/bench_search.py [--trials 200] [--scaling-trials 24]
+The machine may be shared: the load average is printed before and after each part.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+
+def write_table(folder: Path, which: str) -> Path:
+    from sklearn import datasets
+
+    loader = {"cancer": datasets.load_breast_cancer, "digits": datasets.load_digits}[which]
+    frame = loader(as_frame=True).frame
+    frame["target"] = frame["target"].map(lambda v: f"c{v}")
+    path = folder / f"{which}.csv"
+    frame.to_csv(path, index=False)
+    return path
+
+
+def write_spec(folder: Path, csv: Path, *, name: str, sampler: str, epochs: int, trials: int,
+               units: str, workers: int = 1) -> Path:
+    text = f"""
+[data]
+path = "{csv.name}"
+target = "target"
+[evaluation]
+folds = 5
+holdout = 0.2
+seed = 11
+seed_spread = 0
+[search]
+trials = {trials}
+sampler = "{sampler}"
+pruner = "none"
+workers = {workers}
+[space]
+learning_rate = {{ low = 0.001, high = 0.05, log = true }}
+hidden_layers = 1
+hidden_units = {units}
+epochs = {epochs}
+batch_size = {{ choices = [32, 64] }}
+activation = {{ choices = ["relu", "tanh"] }}
+"""
+    path = folder / f"{name}.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+class Clock:
+    """Records when the first trial started and when the search ended (event times)."""
+
+    def __init__(self):
+        self.first_start = None
+        self.ended = None
+        self.trials = 0
+
+    def __call__(self, event):
+        from labbench.search import events as ev
+
+        now = time.perf_counter()
+        if isinstance(event, ev.TrialStarted) and self.first_start is None:
+            self.first_start = now
+        elif isinstance(event, ev.TrialEnded):
+            self.trials += 1
+            self.last_end = now
+        elif isinstance(event, ev.SearchEnded):
+            self.ended = now
+
+
+def search(spec_path: Path, workers: int):
+    from labbench.search.runner import SearchRunner
+    from labbench.search.spec import load_spec
+
+    clock = Clock()
+    runner = SearchRunner(load_spec(spec_path), clock, workers=workers, fresh=True)
+    t0 = clock.t0 = time.perf_counter()
+    outcome = runner.run(threading.Event())
+    total = time.perf_counter() - t0
+    return runner, clock, outcome, total
+
+
+def load_avg() -> str:
+    return "load average %.2f %.2f %.2f" % os.getloadavg()
+
+
+def overhead(folder: Path, trials: int) -> None:
+    from labbench.search.objective import run_trial
+
+    csv = write_table(folder, "cancer")
+    spec = write_spec(folder, csv, name="overhead", sampler="tpe", epochs=15, trials=trials,
+                      units="{ low = 8, high = 32 }")
+    print(f"\n[1] overhead: {trials} trials, breast cancer (455 training rows × 30), 5 folds, "
+          f"15 epochs, TPE, SQLite, 1 worker   ({load_avg()})")
+    runner, clock, outcome, total = search(spec, 1)
+    startup = clock.first_start - clock.t0
+    searching = clock.last_end - clock.first_start
+    settings = [t.user_attrs["settings"] for t in runner.study.get_trials(deepcopy=False)]
+    prepared = runner.prepared
+    t0 = time.perf_counter()
+    for s in settings:
+        run_trial(prepared, s, seed=11, on_epoch=lambda v: None, should_stop=lambda: False)
+    reference = time.perf_counter() - t0
+    per_trial = reference / len(settings)
+    print(f"    reference (same {len(settings)} settings trained in-process): {reference:.2f} s "
+          f"({1000 * per_trial:.0f} ms per trial)")
+    print(f"    search, first trial start → last trial end: {searching:.2f} s; worker start-up "
+          f"{startup:.2f} s; whole run {total:.2f} s")
+    print(f"    overhead per trial (sampler + storage + hand-off): "
+          f"{1000 * (searching - reference) / len(settings):.1f} ms = "
+          f"{100 * (searching - reference) / reference:.1f} % of trial time (goal ≤ 5 %)")
+    print(f"    including start-up: {100 * (total - reference) / reference:.1f} %   ({load_avg()})")
+
+
+def scaling(folder: Path, trials: int) -> None:
+    csv = write_table(folder, "digits")
+    spec = write_spec(folder, csv, name="scaling", sampler="random", epochs=12, trials=trials,
+                      units="{ low = 48, high = 96 }")
+    print(f"\n[2] throughput: {trials} trials, digits (1,437 training rows × 64), 5 folds, "
+          f"12 epochs, random sampler   ({load_avg()})")
+    rates = {}
+    for workers in (1, 2):
+        _, clock, outcome, total = search(spec, workers)
+        span = clock.last_end - clock.first_start
+        rates[workers] = clock.trials / span
+        print(f"    {workers} worker(s): {clock.trials} trials in {span:.2f} s "
+              f"({rates[workers]:.2f} trials/s; whole run {total:.2f} s)   ({load_avg()})")
+    print(f"    2 workers vs 1: {rates[2] / rates[1]:.2f} × (goal ≥ 1.8 ×) on {os.cpu_count()} cores")
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--trials", type=int, default=200)
+    parser.add_argument("--scaling-trials", type=int, default=24)
+    parser.add_argument("--only", choices=("overhead", "scaling"))
+    args = parser.parse_args()
+    try:
+        from threadpoolctl import threadpool_info
+
+        blas = [f"{i.get('internal_api')} {i.get('version')} ({i.get('threading_layer')}, "
+                f"{i.get('num_threads')} threads, {i.get('architecture')})" for i in threadpool_info()]
+        print("BLAS:", "; ".join(blas) or "unknown")
+    except ImportError:
+        print("BLAS: threadpoolctl not installed")
+    print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores")
+    with tempfile.TemporaryDirectory() as tmp:
+        folder = Path(tmp)
+        if args.only in (None, "overhead"):
+            overhead(folder, args.trials)
+        if args.only in (None, "scaling"):
+            scaling(folder, args.scaling_trials)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
