@@ -44,6 +44,8 @@ class ReadResult:
 
 def show(value: object, width: int = 40) -> str:
     """A value for a one-line message: repr, no line breaks, shortened."""
+    if isinstance(value, np.generic):
+        value = value.item()
     text = repr(value).replace("\n", "\\n").replace("\r", "\\r")
     return text if len(text) <= width else text[: width - 3] + "..."
 

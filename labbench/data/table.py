@@ -113,8 +113,11 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
         if kinds_[col] == "numeric":
             _check_finite(feats[col], col, where, lines)
 
+    # constant columns carry nothing to learn from (checked on the rows with a target, before
+    # missing = "drop" so an empty column does not take every row with it, and again after)
+    features = _drop_constant(feats.loc[keep], features, where, notes)
     if missing == "drop":
-        incomplete = feats.isna().any(axis=1).to_numpy() & keep
+        incomplete = feats[features].isna().any(axis=1).to_numpy() & keep
         if incomplete.any():
             notes.append(f"{where}: dropped {int(incomplete.sum())} row(s) with missing values "
                          f"({_lines_text(lines[incomplete])}) as missing = 'drop' asks")
@@ -122,23 +125,12 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
         if not keep.any():
             raise DataError(f"{where}: no row is complete, so missing = 'drop' leaves nothing; "
                             "use missing = 'impute' or ignore the emptiest columns")
+        features = _drop_constant(feats.loc[keep], features, where, notes)
 
-    feats = feats.loc[keep].reset_index(drop=True)
+    feats = feats.loc[keep, features].reset_index(drop=True)
     y_kept = y_raw.loc[keep].reset_index(drop=True)
     lines_kept = lines[keep]
-
-    # constant columns carry nothing to learn from
     distinct = feats.nunique(dropna=True)
-    for col in features:
-        if distinct[col] <= 1:
-            if distinct[col] == 0:
-                notes.append(f"{where}: column {show(col)} is empty in every row; dropped it")
-            else:
-                value = feats[col].dropna().iloc[0]
-                notes.append(f"{where}: column {show(col)} has the same value ({show(value)}) in every row; dropped it")
-    features = [c for c in features if distinct[c] > 1]
-    if not features:
-        raise DataError(f"{where}: every feature column is constant or empty; the table has nothing to learn from")
     for col in features:
         if kinds_[col] == "categorical" and distinct[col] > 20 and distinct[col] > 0.5 * len(feats):
             notes.append(f"{where}: column {show(col)} has {int(distinct[col])} different values in "
@@ -155,6 +147,20 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     return Table(path=where, frame=feats, target=target, features=tuple(features), kinds=kinds_final,
                  task=task_, classes=classes, y=y, ids=ids, id_column=id_column,
                  sha256=hashlib.sha256(read.raw).hexdigest(), warnings=tuple(notes))
+
+
+def _drop_constant(feats: pd.DataFrame, features: list[str], where: str, notes: list[str]) -> list[str]:
+    distinct = feats[features].nunique(dropna=True)
+    for col in features:
+        if distinct[col] == 0:
+            notes.append(f"{where}: column {show(col)} is empty in every row; dropped it")
+        elif distinct[col] == 1:
+            value = feats[col].dropna().iloc[0]
+            notes.append(f"{where}: column {show(col)} has the same value ({show(value)}) in every row; dropped it")
+    kept = [c for c in features if distinct[c] > 1]
+    if not kept:
+        raise DataError(f"{where}: every feature column is constant or empty; the table has nothing to learn from")
+    return kept
 
 
 def _check_finite(series: pd.Series, col: str, where: str, lines: np.ndarray) -> None:
