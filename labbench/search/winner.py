@@ -1,0 +1,274 @@
+"""After the search: pick the winner, refit it, check it once on the hold-out and across seeds.
+
+``finalize(spec, study)`` does, in order (one ``FinalStage`` event per step):
+
+1. the winner = the best COMPLETE trial by its CV value (the study's metric direction);
+2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows);
+3. score that model ONCE on the locked hold-out rows, beside the CV estimate;
+4. seed spread: the same settings retrained with several seeds on the same folds, all
+   seeds × folds stacked into one ``StackTrainer``;
+5. parameter importance (PED-ANOVA, or fANOVA with a fixed seed);
+6. ``winner.json`` (the summary) and ``winner.toml`` (a spec with every setting fixed).
+
+It returns the summary and the refit ``TrainedModel``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import logging
+import math
+import platform
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+
+from labbench.errors import LabbenchError
+from labbench.search import events
+from labbench.search.insight import (compare_cv_holdout, counts_by_state, fmt,
+                                     lead_inside_spread, param_importance, spread_stats)
+from labbench.search.prepare import Prepared, prepare
+from labbench.search.space import settings_to_config
+from labbench.search.spec import Spec, save_spec
+
+log = logging.getLogger("labbench.search.winner")
+
+CAUTION = ("A cross-validated score is an estimate from this data set, not a guarantee of how the "
+           "model will do on new data. A model used for decisions that affect people, money or "
+           "safety needs independent validation on fresh data and must follow the rules and "
+           "standards of that field.")
+
+
+def _seed_list(base: int, n: int) -> list[int]:
+    """The seeds of the spread check; the first is the search's own seed."""
+    return [int(base) + i for i in range(n)]
+
+
+def _member_seeds(seed: int, n_members: int) -> list[int]:
+    # The same derivation the trials use (labbench.search.objective.member_seeds).
+    from labbench.search.objective import member_seeds
+
+    return member_seeds(seed, n_members)
+
+
+def pick_winner(trials: list[Any], direction: str) -> tuple[Any, Any | None]:
+    """(best complete trial, best complete trial whose settings differ) — ties go to the earlier."""
+    done = [t for t in trials if t.value is not None and math.isfinite(t.value)]
+    if not done:
+        return None, None
+    sign = -1.0 if direction == "maximize" else 1.0
+    ranked = sorted(done, key=lambda t: (sign * t.value, t.number))
+    best = ranked[0]
+    key = _settings_key(best)
+    runner_up = next((t for t in ranked[1:] if _settings_key(t) != key), None)
+    return best, runner_up
+
+
+def _settings_key(trial: Any) -> str:
+    settings = trial.user_attrs.get("settings")
+    return json.dumps(settings if settings is not None else trial.params, sort_keys=True)
+
+
+def _versions() -> dict[str, str]:
+    import optuna
+    import pandas
+
+    from labbench import __version__
+
+    return {"labbench": __version__, "numpy": np.__version__, "pandas": pandas.__version__,
+            "optuna": optuna.__version__, "python": platform.python_version()}
+
+
+def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling: str,
+          dtype: str = "float32"):
+    """Train the settings on all training rows; returns ``(Preprocessor, NetWeights)``."""
+    from labbench.data import Preprocessor
+    from labbench.nets import StackTrainer
+
+    table = prepared.table
+    numeric = [c for c in table.features if table.kinds[c] == "numeric"]
+    categorical = [c for c in table.features if table.kinds[c] == "categorical"]
+    pre = Preprocessor(numeric, categorical, scaling=scaling)
+    X = pre.fit_transform(table.frame.iloc[prepared.train_pos])
+    y = table.y[prepared.train_pos]
+    trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
+                           prepared.n_outputs, [X], [y], seeds=_member_seeds(seed, 1))
+    trainer.run()
+    return pre, trainer.weights(0)
+
+
+def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: list[int],
+                dtype: str = "float32") -> dict[str, Any]:
+    """CV score of the settings for each seed; seeds × folds trained as one stack."""
+    from labbench.nets import StackTrainer
+
+    fa = prepared.fold_arrays
+    k = len(fa.X_train)
+    member_seeds = [s for seed in seeds for s in _member_seeds(seed, k)]
+    trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
+                           prepared.n_outputs, list(fa.X_train) * len(seeds),
+                           list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
+                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric)
+    history = trainer.run()
+    per_member = np.asarray(history[-1].val_metric, dtype=np.float64)
+    scores = [float(per_member[i * k:(i + 1) * k].mean()) for i in range(len(seeds))]
+    return spread_stats(scores, seeds)
+
+
+def holdout_score(model: Any, prepared: Prepared) -> float:
+    from labbench.nets.metrics import compute
+
+    rows = prepared.holdout_pos
+    output = model.output(prepared.table.frame.iloc[rows], source="the hold-out rows")
+    return float(compute(prepared.metric, prepared.table.y[rows], output, prepared.task,
+                         n_classes=prepared.n_classes))
+
+
+def winner_spec(spec: Spec, settings: Mapping[str, Any]) -> Spec:
+    """The spec with every setting fixed to ``settings``; one trial, its own study name."""
+    search = dataclasses.replace(spec.search, trials=1, minutes=None, sampler="random",
+                                 pruner="none", workers=1, name=f"{spec.study_name()}-winner")
+    return dataclasses.replace(spec, search=search, space=spec.space.fixed_at(settings))
+
+
+def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
+             emit: events.Emit = events.ignore, out_dir: str | Path | None = None,
+             importance: str = "ped_anova", seed_spread: int | None = None, *,
+             dtype: str = "float32") -> tuple[dict, Any]:
+    """Refit, hold-out, seed spread, importance, files. Returns ``(summary, TrainedModel)``.
+
+    ``seed_spread``: number of seeds (default ``spec.evaluation.seed_spread``; 0 or 1 skips it).
+    ``out_dir``: where winner.json / winner.toml go (default: the spec's folder).
+    """
+    from optuna.trial import TrialState
+
+    from labbench.model import TrainedModel
+
+    n_seeds = spec.evaluation.seed_spread if seed_spread is None else int(seed_spread)
+    prepared = prepared or prepare(spec)
+    direction, metric, seed = prepared.direction, prepared.metric, spec.evaluation.seed
+    trials = study.get_trials(deepcopy=False)
+    complete = [t for t in trials if t.state == TrialState.COMPLETE]
+    best, runner_up = pick_winner(complete, direction)
+    if best is None:
+        raise LabbenchError(f"study {study.study_name}: no complete trial yet, so there is no "
+                            "winner; run more trials (or widen the search if every trial failed)")
+    warnings: list[str] = []
+    if study.user_attrs.get("data_sha256") not in (None, prepared.table.sha256):
+        warnings.append("The data file changed since the search ran (its fingerprint differs); "
+                        "the refit and hold-out use the file as it is now.")
+    if study.user_attrs.get("metric") not in (None, metric):
+        warnings.append(f"The search ranked trials by {study.user_attrs['metric']}, but the spec "
+                        f"now asks for {metric}; the hold-out is scored with {metric}.")
+    settings = dict(best.user_attrs.get("settings") or spec.space.settings_from_params(best.params))
+    fold_scores = [float(s) for s in best.user_attrs.get("fold_scores", [])]
+    cv_mean = float(best.value)
+    cv_std = best.user_attrs.get("cv_std")
+    if cv_std is None:              # sample standard deviation across folds, as the trials store it
+        cv_std = float(np.std(fold_scores, ddof=1)) if len(fold_scores) > 1 else 0.0
+    cv_std = float(cv_std)
+
+    def stage(name: str, text: str) -> None:
+        log.info("%s: %s", name, text)
+        emit(events.FinalStage(stage=name, text=text))
+
+    stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
+    pre, weights = refit(prepared, settings, seed=seed, scaling=spec.data.scaling, dtype=dtype)
+    table = prepared.table
+    model = TrainedModel(preprocessor=pre, weights=weights, task=prepared.task, target=table.target,
+                         features=tuple(table.features), kinds=dict(table.kinds),
+                         classes=None if table.classes is None else tuple(table.classes),
+                         settings=settings, metric=metric, data_sha256=table.sha256,
+                         id_column=table.id_column)
+
+    stage("holdout", f"Scoring the refit model once on {len(prepared.holdout_pos)} hold-out rows")
+    h_score = holdout_score(model, prepared)
+    comparison = compare_cv_holdout(cv_mean, cv_std, h_score, metric, direction)
+    if comparison["differs"]:
+        warnings.append(comparison["text"])
+
+    spread = None
+    lead = lead_inside_spread(cv_mean, None if runner_up is None else runner_up.value, None, metric)
+    if n_seeds >= 2:
+        seeds = _seed_list(seed, n_seeds)
+        stage("seed_spread", f"Retraining the winner with {n_seeds} seeds × "
+              f"{len(prepared.fold_arrays.X_train)} folds in one stack")
+        try:
+            spread = measure_seed_spread(prepared, settings, seeds, dtype=dtype)
+        except LabbenchError as exc:      # e.g. a seed that diverges: report it, keep the winner
+            warnings.append(f"The seed-spread check stopped: {exc}")
+        if spread is not None:
+            lead = lead_inside_spread(cv_mean, None if runner_up is None else runner_up.value,
+                                      spread, metric)
+            if lead["inside"]:
+                warnings.append(lead["text"])
+
+    stage("importance", f"Parameter importance ({importance})")
+    imp = param_importance(study, importance, seed=seed)
+
+    model = dataclasses.replace(model, scores={
+        "cv_mean": cv_mean, "cv_std": cv_std, "fold_scores": fold_scores, "holdout_score": h_score,
+        "seed_spread_mean": None if spread is None else spread["mean"],
+        "seed_spread_std": None if spread is None else spread["std"],
+        "trial_number": int(best.number)})
+    summary = _plain({
+        "study_name": study.study_name,
+        "task": prepared.task, "target": table.target,
+        "classes": None if table.classes is None else list(table.classes),
+        "metric": metric, "direction": direction,
+        "trial_number": int(best.number),
+        "cv_mean": cv_mean, "cv_std": cv_std, "fold_scores": fold_scores,
+        "holdout_score": h_score, "holdout_rows": int(len(prepared.holdout_pos)),
+        "train_rows": int(len(prepared.train_pos)),
+        "cv_vs_holdout": comparison,
+        "seed_spread": spread,
+        "runner_up": None if runner_up is None else {
+            "trial_number": int(runner_up.number), "value": float(runner_up.value),
+            "lead": lead["lead"], "inside_spread": lead["inside"], "text": lead["text"]},
+        "params": {k: _plain(v) for k, v in best.params.items()},
+        "settings": settings,
+        "trials": counts_by_state(trials),
+        "importance": imp,
+        "data_sha256": table.sha256,
+        "versions": _versions(),
+        "search_versions": study.user_attrs.get("versions"),
+        "warnings": warnings,
+        "caution": CAUTION,
+    })
+
+    out = Path(out_dir) if out_dir is not None else Path(spec.base_dir())
+    stage("files", f"Writing winner.json and winner.toml to {out}")
+    files = write_winner_files(spec, summary, out)
+    emit(events.WinnerReady(summary=summary, files=tuple(files)))
+    log.info("winner: trial %d, CV %s ± %s, hold-out %s", best.number, fmt(cv_mean), fmt(cv_std),
+             fmt(h_score))
+    return summary, model
+
+
+def _plain(v: Any) -> Any:
+    """JSON-safe plain Python: numpy scalars unwrapped, NaN/inf as None."""
+    if isinstance(v, (np.floating, np.integer, np.bool_)):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    if isinstance(v, Mapping):
+        return {str(k): _plain(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_plain(x) for x in v]
+    return v
+
+
+def write_winner_files(spec: Spec, summary: Mapping[str, Any], out_dir: Path) -> list[str]:
+    out_dir.mkdir(parents=True, exist_ok=True)
+    json_path, toml_path = out_dir / "winner.json", out_dir / "winner.toml"
+    json_path.write_text(json.dumps(_plain(summary), indent=2, allow_nan=False) + "\n",
+                         encoding="utf-8")
+    fixed = save_spec(winner_spec(spec, summary["settings"]), toml_path)
+    header = (f"# The winning settings of search {summary['study_name']!r} (trial "
+              f"{summary['trial_number']}), every setting fixed.\n"
+              f"# CV {summary['metric']} {fmt(summary['cv_mean'])} ± {fmt(summary['cv_std'])}, "
+              f"hold-out {fmt(summary['holdout_score'])}. Run it as-is: labbench run winner.toml\n")
+    toml_path.write_text(header + fixed.to_toml(out_dir.resolve()), encoding="utf-8")
+    return [str(json_path), str(toml_path)]
