@@ -90,7 +90,7 @@ class Preprocessor:
         for col, cats, fill in zip(self.categorical, self.categories_, self.cat_impute_):
             text = category_text(frame[col])
             text[pd.isna(text)] = fill
-            codes = pd.Categorical(text, categories=cats).codes if cats else np.full(n, -1)
+            codes = pd.Index(cats, dtype=object).get_indexer(text) if cats else np.full(n, -1)
             onehot = np.zeros((n, len(cats)), dtype=np.float64)
             seen = codes >= 0
             onehot[np.flatnonzero(seen), codes[seen]] = 1.0

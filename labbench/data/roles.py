@@ -104,11 +104,11 @@ def class_labels(series: pd.Series) -> tuple[tuple[str, ...], np.ndarray]:
     text = category_text(series)
     if is_numeric(series) and not pd.api.types.is_bool_dtype(series):
         values = series.to_numpy(dtype=np.float64)
-        uniq_vals, first = np.unique(values, return_index=True)
+        _, first = np.unique(values, return_index=True)
         classes = tuple(str(t) for t in text[first])
     else:
         classes = tuple(sorted(set(text.tolist())))
-    codes = pd.Categorical(text, categories=list(classes)).codes.astype(np.int64)
+    codes = pd.Index(list(classes), dtype=object).get_indexer(text).astype(np.int64)
     return classes, codes
 
 
