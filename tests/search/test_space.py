@@ -177,3 +177,13 @@ def test_settings_to_config():
                                  "batch_size": 16, "epochs": 3}, dtype="float64")
     assert config.hidden == (8, 4) and config.activation == "tanh" and config.dtype == "float64"
     assert (config.momentum, config.l2, config.batch_size, config.epochs) == (0.8, 1e-4, 16, 3)
+
+
+def test_fixed_at_a_linear_model():
+    space = SearchSpace.from_dict(WIDE)
+    settings = {"hidden": [], "activation": "tanh", "optimizer": "sgd", "learning_rate": 0.01,
+                "momentum": 0.9, "l2": 0.0, "batch_size": 32, "epochs": 20}
+    fixed = space.fixed_at(settings)
+    assert fixed.to_dict()["hidden_layers"] == 0 and fixed.to_dict()["hidden_units"] == []
+    assert SearchSpace.from_dict(fixed.to_dict()) == fixed
+    assert fixed.settings_from_params({}) == settings

@@ -1,0 +1,237 @@
+"""After the search: data preparation, the winner's refit, hold-out, seed spread and files.
+
+The search here is built with Optuna directly (no runner): each trial trains the fold models of
+the prepared data with StackTrainer and stores the attrs of the storage contract.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import optuna
+import pandas as pd
+import pytest
+from optuna.distributions import FloatDistribution
+from sklearn.datasets import load_diabetes, load_iris
+from sklearn.metrics import balanced_accuracy_score, mean_squared_error
+
+from labbench.errors import LabbenchError
+from labbench.search import events
+from labbench.search.prepare import prepare
+from labbench.search.space import Fixed
+from labbench.search.spec import load_spec, loads_spec
+from labbench.search.winner import finalize, pick_winner, winner_spec
+
+optuna.logging.set_verbosity(optuna.logging.WARNING)
+
+SUMMARY_KEYS = {"metric", "direction", "cv_mean", "cv_std", "fold_scores", "holdout_score",
+                "seed_spread", "params", "settings", "trial_number", "trials", "importance",
+                "data_sha256", "versions", "warnings", "caution", "cv_vs_holdout", "runner_up"}
+
+
+def iris_csv(tmp_path):
+    # scikit-learn's bundled iris data set (Fisher 1936), with an id column to ignore
+    iris = load_iris(as_frame=True)
+    frame = iris.data.copy()
+    frame.insert(0, "plant_id", np.arange(len(frame)))
+    frame["species"] = [iris.target_names[i] for i in iris.target]
+    path = tmp_path / "iris.csv"
+    frame.to_csv(path, index=False)
+    return path
+
+
+def diabetes_csv(tmp_path, n=160):
+    # scikit-learn's bundled diabetes data set (Efron et al. 2004), first n rows
+    d = load_diabetes(as_frame=True)
+    frame = d.data.iloc[:n].copy()
+    frame["progression"] = d.target.iloc[:n].to_numpy()
+    path = tmp_path / "diabetes.csv"
+    frame.to_csv(path, index=False)
+    return path
+
+
+def make_spec(tmp_path, csv, target, extra_space="", evaluation="", ignore='["plant_id"]'):
+    text = f"""
+[data]
+path = "{csv.name}"
+target = "{target}"
+ignore = {ignore}
+
+[evaluation]
+folds = 3
+holdout = 0.25
+seed = 3
+seed_spread = 3
+{evaluation}
+
+[search]
+trials = 12
+sampler = "random"
+
+[space]
+hidden_layers = 1
+hidden_units = {{ choices = [4, 12] }}
+learning_rate = {{ low = 0.003, high = 0.08, log = true }}
+epochs = 25
+batch_size = 16
+{extra_space}
+"""
+    (tmp_path / "exp.toml").write_text(text, encoding="utf-8")
+    return load_spec(tmp_path / "exp.toml")
+
+
+def run_search(spec, prepared, n_trials):
+    """A small real search: every trial trains its fold models stacked, like the runner does."""
+    from labbench.nets import StackTrainer
+    from labbench.search.objective import member_seeds   # the runner's seed derivation
+    from labbench.search.space import settings_to_config
+
+    study = optuna.create_study(direction=prepared.direction, study_name="tiny",
+                                sampler=optuna.samplers.RandomSampler(seed=11))
+    fa = prepared.fold_arrays
+    study.set_user_attr("data_sha256", prepared.table.sha256)
+    study.set_user_attr("metric", prepared.metric)
+    for _ in range(n_trials):
+        trial = study.ask()
+        settings = spec.space.suggest(trial)
+        trainer = StackTrainer(settings_to_config(settings), prepared.task, prepared.n_outputs,
+                               fa.X_train, fa.y_train, fa.X_val, fa.y_val,
+                               seeds=member_seeds(spec.evaluation.seed, len(fa.X_train)),
+                               metric=prepared.metric)
+        scores = [float(v) for v in trainer.run()[-1].val_metric]
+        trial.set_user_attr("settings", settings)
+        trial.set_user_attr("fold_scores", scores)
+        trial.set_user_attr("cv_std", float(np.std(scores, ddof=1)))
+        study.tell(trial, float(np.mean(scores)))
+    return study
+
+
+# --------------------------------------------------------------------------------------------
+# prepare
+
+
+def test_holdout_rows_never_reach_a_fold(tmp_path):
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    p = prepare(spec)
+    n = len(p.table.y)
+    holdout = set(p.holdout_pos.tolist())
+    assert len(holdout) == round(0.25 * n) or abs(len(holdout) - 0.25 * n) < 1
+    assert sorted(holdout | set(p.train_pos.tolist())) == list(range(n))
+    assert not holdout & set(p.train_pos.tolist())
+    fa = p.fold_arrays
+    assert len(fa.X_train) == 3
+    for tr, va, pre in zip(fa.train_rows, fa.val_rows, fa.preprocessors):
+        assert not holdout & set(tr.tolist()) and not holdout & set(va.tolist())
+        # each fold's scaling is fitted on that fold's training rows only (numpy reference)
+        state = pre.to_state()
+        first = state["numeric"][0]
+        assert math.isclose(state["center"][0], float(np.mean(p.table.frame[first].iloc[tr])),
+                            rel_tol=1e-12)
+    assert (p.task, p.metric, p.direction, p.n_outputs) == ("multiclass", "balanced_accuracy",
+                                                            "maximize", 3)
+
+
+# --------------------------------------------------------------------------------------------
+# the winner, end to end
+
+
+def test_finalize_end_to_end_on_iris(tmp_path):
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    prepared = prepare(spec)
+    study = run_search(spec, prepared, 12)
+    seen: list = []
+    out = tmp_path / "out"
+    summary, model = finalize(spec, study, prepared, emit=seen.append, out_dir=out)
+
+    assert SUMMARY_KEYS <= set(summary)
+    assert summary["trial_number"] == study.best_trial.number        # Optuna's own pick
+    best = study.best_trial
+    assert summary["cv_mean"] == best.value and summary["fold_scores"] == best.user_attrs["fold_scores"]
+    assert summary["trials"]["complete"] == 12
+    # the hold-out score, recomputed independently with scikit-learn on the hold-out rows
+    rows = prepared.holdout_pos
+    frame = prepared.table.frame.iloc[rows]
+    truth = np.asarray(prepared.table.classes, dtype=object)[prepared.table.y[rows]]
+    assert math.isclose(summary["holdout_score"],
+                        balanced_accuracy_score(truth, model.predict(frame)), rel_tol=1e-12)
+    # the refit model: preprocessing fitted on all training rows (numpy reference for the mean)
+    first = model.preprocessor.to_state()["numeric"][0]
+    assert math.isclose(model.preprocessor.to_state()["center"][0],
+                        float(prepared.table.frame[first].iloc[prepared.train_pos].mean()),
+                        rel_tol=1e-12)
+    assert model.settings == best.user_attrs["settings"] and model.classes == prepared.table.classes
+    # seed spread over 3 seeds; the first seed is the search's own, so it repeats the trial value
+    spread = summary["seed_spread"]
+    assert spread["seeds"] == [3, 4, 5] and len(spread["scores"]) == 3
+    assert spread["min"] <= spread["mean"] <= spread["max"]
+    assert math.isclose(spread["std"], float(np.std(spread["scores"], ddof=1)), rel_tol=1e-9)
+    assert math.isclose(spread["scores"][0], best.value, abs_tol=1e-6)
+    # importance: 12 complete trials is enough to show numbers, with a hint that it is few
+    assert summary["importance"]["values"] and "rough hint" in summary["importance"]["message"]
+
+    stages = [e.stage for e in seen if isinstance(e, events.FinalStage)]
+    assert stages == ["refit", "holdout", "seed_spread", "importance", "files"]
+    ready = [e for e in seen if isinstance(e, events.WinnerReady)]
+    assert len(ready) == 1 and len(ready[0].files) == 2
+
+    written = json.loads((out / "winner.json").read_text(encoding="utf-8"))
+    assert written == json.loads(json.dumps(summary))
+    assert "not a guarantee" in written["caution"]
+    fixed = load_spec(out / "winner.toml")
+    assert fixed.space.searched_params() == []
+    assert all(isinstance(s, Fixed) for s in fixed.space.entries.values())
+    assert fixed.space.settings_from_params({}) == summary["settings"]
+    assert fixed.data.path == spec.data.path and fixed.search.trials == 1
+    assert fixed.study_name() == "exp-winner"
+
+
+def test_finalize_regression_minimizes_and_warns_honestly(tmp_path):
+    spec = make_spec(tmp_path, diabetes_csv(tmp_path), "progression", ignore="[]",
+                     evaluation="", extra_space="")
+    prepared = prepare(spec)
+    assert (prepared.metric, prepared.direction) == ("rmse", "minimize")
+    study = run_search(spec, prepared, 4)
+    summary, model = finalize(spec, study, prepared, out_dir=tmp_path / "o", seed_spread=0)
+    values = [t.value for t in study.trials]
+    assert summary["cv_mean"] == min(values)                          # lower RMSE wins
+    rows = prepared.holdout_pos
+    # scikit-learn reference for RMSE on the hold-out
+    rmse = math.sqrt(mean_squared_error(prepared.table.y[rows],
+                                        model.predict(prepared.table.frame.iloc[rows])))
+    assert math.isclose(summary["holdout_score"], rmse, rel_tol=1e-9)
+    assert summary["seed_spread"] is None
+    assert summary["importance"]["values"] == {}
+    assert "Only 4 trial(s) completed" in summary["importance"]["message"]
+
+
+def test_pick_winner_respects_direction_and_skips_identical_settings():
+    study = optuna.create_study(direction="minimize")
+    dist = {"x": FloatDistribution(0, 1)}
+    for number, (value, x) in enumerate([(0.5, 0.1), (0.2, 0.2), (0.2, 0.2), (0.3, 0.4)]):
+        study.add_trial(optuna.trial.create_trial(value=value, params={"x": x}, distributions=dist,
+                                                  user_attrs={"settings": {"x": x}}))
+    best, runner_up = pick_winner(study.get_trials(), "minimize")
+    assert best.number == 1 and runner_up.number == 3                 # trial 2 repeats trial 1
+    best, runner_up = pick_winner(study.get_trials(), "maximize")
+    assert best.number == 0 and runner_up.number == 3
+
+
+def test_no_complete_trial_is_a_clear_error(tmp_path):
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    study = optuna.create_study(study_name="empty")
+    trial = study.ask()
+    study.tell(trial, state=optuna.trial.TrialState.FAIL)
+    with pytest.raises(LabbenchError, match="study empty: no complete trial yet"):
+        finalize(spec, study, out_dir=tmp_path)
+
+
+def test_winner_spec_is_runnable_as_is(tmp_path):
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    settings = {"hidden": [12], "activation": "relu", "optimizer": "adam", "learning_rate": 0.01,
+                "momentum": 0.9, "l2": 0.0, "batch_size": 16, "epochs": 25}
+    fixed = winner_spec(spec, settings)
+    again = loads_spec(fixed.to_toml(), tmp_path, "w.toml")
+    assert again == fixed and again.space.searched_params() == []
+    assert prepare(again).fold_arrays.X_train[0].shape[0] > 0
