@@ -39,7 +39,7 @@ def make_sampler(spec: Any):
     if name == "random":
         return optuna.samplers.RandomSampler(seed=seed)
     if name == "grid":
-        return optuna.samplers.GridSampler(spec.space.grid(), seed=seed)
+        return _GridSampler(spec.space.grid(), seed=seed)
     if name == "qmc":
         _needs(spec, "scipy", "qmc")
         return optuna.samplers.QMCSampler(seed=seed, scramble=True, warn_independent_sampling=False)
@@ -48,6 +48,23 @@ def make_sampler(spec: Any):
         return optuna.samplers.CmaEsSampler(seed=seed, warn_independent_sampling=False)
     raise SpecError(f"{_source(spec)}search.sampler: {name!r} is not known; use tpe, random, grid, "
                     "qmc or cmaes")
+
+
+def _grid_sampler_class():
+    import optuna
+
+    class AskTellGridSampler(optuna.samplers.GridSampler):
+        """Optuna's grid sampler calls ``study.stop()`` once the grid is used up, which raises
+        outside ``optimize``; the runner checks ``is_exhausted`` before every ask instead."""
+
+        def after_trial(self, study, trial, state, values) -> None:
+            return None
+
+    return AskTellGridSampler
+
+
+def _GridSampler(*args, **kwargs):
+    return _grid_sampler_class()(*args, **kwargs)
 
 
 def _needs(spec: Any, module: str, sampler: str) -> None:
