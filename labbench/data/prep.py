@@ -84,18 +84,21 @@ class Preprocessor:
             raise RuntimeError("Preprocessor.transform called before fit (or from_state)")
         self._check_columns(frame)
         n = len(frame)
+        p = len(self.numeric)
+        out = np.zeros((n, len(self.feature_names_)), dtype=np.float64)
         X = self._numeric_block(frame)
-        numeric = (np.where(np.isnan(X), self.impute_, X) - self.center_) / self.scale_
-        blocks = [numeric]
+        out[:, :p] = (np.where(np.isnan(X), self.impute_, X) - self.center_) / self.scale_
+        offset = p
+        rows = np.arange(n)
         for col, cats, fill in zip(self.categorical, self.categories_, self.cat_impute_):
-            text = category_text(frame[col])
-            text[pd.isna(text)] = fill
-            codes = pd.Index(cats, dtype=object).get_indexer(text) if cats else np.full(n, -1)
-            onehot = np.zeros((n, len(cats)), dtype=np.float64)
-            seen = codes >= 0
-            onehot[np.flatnonzero(seen), codes[seen]] = 1.0
-            blocks.append(onehot)
-        return np.hstack(blocks) if blocks else np.zeros((n, 0))
+            if cats:
+                text = category_text(frame[col])
+                text[pd.isna(text)] = fill
+                codes = pd.Index(cats, dtype=object).get_indexer(text)
+                seen = codes >= 0
+                out[rows[seen], offset + codes[seen]] = 1.0
+            offset += len(cats)
+        return out
 
     # ------------------------------------------------------------------ state
     def to_state(self) -> dict[str, Any]:

@@ -199,28 +199,28 @@ def _scan_records(data: bytes, delimiter: str) -> tuple[np.ndarray, np.ndarray]:
     it, which is why a mismatch is confirmed with the csv module before it is reported.
     """
     a = np.frombuffer(data, dtype=np.uint8)
-    newline = a == 10
-    delim = a == ord(delimiter)
-    quote = a == 34
-    if quote.any():
-        outside = (np.cumsum(quote) & 1) == 0
-        delim &= outside
-        end_mask = newline & outside
+    newlines = np.flatnonzero(a == 10)
+    delims = np.flatnonzero(a == ord(delimiter))
+    quotes = np.flatnonzero(a == 34)
+    if quotes.size:
+        # a position is outside quotes when an even number of quotes comes before it
+        delims = delims[(np.searchsorted(quotes, delims) & 1) == 0]
+        ends = newlines[(np.searchsorted(quotes, newlines) & 1) == 0]
     else:
-        end_mask = newline
-    ends = np.flatnonzero(end_mask)
+        ends = newlines
     if a.size and (ends.size == 0 or ends[-1] != a.size - 1):
         ends = np.append(ends, a.size)
     starts = np.concatenate(([0], ends[:-1] + 1))
-    delims_before = np.concatenate(([0], np.cumsum(delim, dtype=np.int64)))
-    n_delims = delims_before[ends] - delims_before[starts]
+    n_delims = np.searchsorted(delims, ends) - np.searchsorted(delims, starts)
     length = ends - starts
-    last = np.clip(ends - 1, 0, max(a.size - 1, 0))
-    blank = (length - ((length > 0) & (a[last] == 13))) == 0 if a.size else np.zeros(0, bool)
-    newlines_before = np.concatenate(([0], np.cumsum(newline, dtype=np.int64)))
-    line = newlines_before[starts] + 1
+    if a.size:
+        last = np.clip(ends - 1, 0, a.size - 1)
+        blank = (length - ((length > 0) & (a[last] == 13))) == 0
+    else:
+        blank = np.zeros(0, dtype=bool)
+    line = np.searchsorted(newlines, starts) + 1
     keep = ~blank
-    return (n_delims + 1)[keep], line[keep]
+    return (n_delims + 1)[keep].astype(np.int64), line[keep].astype(np.int64)
 
 
 def _raise_ragged(text: str, delimiter: str, width: int, name: str,

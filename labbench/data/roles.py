@@ -91,7 +91,10 @@ def category_text(series: pd.Series) -> np.ndarray:
         other = ~whole & ~missing
         out[other] = v[other].astype(str)
     else:
-        out[:] = series.astype(str).str.strip().to_numpy(dtype=object, na_value=None)
+        # strip and convert the distinct values only, then spread them back (vectorised)
+        codes, uniques = pd.factorize(series, use_na_sentinel=True)
+        labels = np.array([str(u).strip() for u in uniques] + [None], dtype=object)
+        out[:] = labels[codes]        # code -1 (missing) picks the trailing None
     out[missing] = None
     return out
 

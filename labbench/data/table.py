@@ -20,7 +20,7 @@ import pandas as pd
 
 from labbench.errors import DataError
 from labbench.data.reading import read_file, show
-from labbench.data.roles import (TASKS, as_float, category_text, check_kinds, class_labels,
+from labbench.data.roles import (TASKS, as_float, check_kinds, class_labels,
                                  infer_kinds, infer_task, is_numeric)
 
 log = logging.getLogger("labbench.data")
@@ -130,9 +130,10 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     feats = feats.loc[keep, features].reset_index(drop=True)
     y_kept = y_raw.loc[keep].reset_index(drop=True)
     lines_kept = lines[keep]
-    distinct = feats.nunique(dropna=True)
-    for col in features:
-        if kinds_[col] == "categorical" and distinct[col] > 20 and distinct[col] > 0.5 * len(feats):
+    categorical = [c for c in features if kinds_[c] == "categorical"]
+    distinct = feats[categorical].nunique(dropna=True)
+    for col in categorical:
+        if distinct[col] > 20 and distinct[col] > 0.5 * len(feats):
             notes.append(f"{where}: column {show(col)} has {int(distinct[col])} different values in "
                          f"{len(feats)} rows (an id or free text?); consider ignoring it")
     feats = feats[features]
@@ -150,7 +151,15 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
 
 
 def _drop_constant(feats: pd.DataFrame, features: list[str], where: str, notes: list[str]) -> list[str]:
-    distinct = feats[features].nunique(dropna=True)
+    distinct = {}
+    for col in features:
+        s = feats[col]
+        if is_numeric(s) and not pd.api.types.is_bool_dtype(s):
+            v = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            present = v[~np.isnan(v)]
+            distinct[col] = 0 if present.size == 0 else (1 if present.min() == present.max() else 2)
+        else:
+            distinct[col] = min(int(s.nunique(dropna=True)), 2)
     for col in features:
         if distinct[col] == 0:
             notes.append(f"{where}: column {show(col)} is empty in every row; dropped it")
@@ -202,10 +211,9 @@ def _first(classes: tuple[str, ...], limit: int = 6) -> str:
 
 def _mostly_numbers(y: pd.Series) -> bool:
     """A text target where nine in ten values are numbers is a number column with typos."""
-    text = category_text(y)
-    if len(set(text.tolist())) <= 20:
+    if y.nunique() <= 20:
         return False
-    converted = pd.to_numeric(pd.Series(text), errors="coerce")
+    converted = pd.to_numeric(y, errors="coerce")
     return bool(converted.notna().mean() >= 0.9)
 
 
