@@ -105,10 +105,14 @@ def _make_axis(values: np.ndarray, log: bool, categories: Sequence[str] | None,
 
 
 def xy_chart(series: Sequence[Series], *, x_label: str, y_label: str, x_log: bool = False,
-             x_categories: Sequence[str] | None = None, width: int = 720, height: int = 300) -> bytes:
-    """Points and/or lines against x. ``x_categories``: x holds positions 0..k-1 of those labels."""
+             x_categories: Sequence[str] | None = None, y_range: tuple[float, float] | None = None,
+             width: int = 720, height: int = 300) -> bytes:
+    """Points and/or lines against x. ``x_categories``: x holds positions 0..k-1 of those labels;
+    ``y_range``: the y values to show (others are clipped at the plot's edge)."""
     xs = np.concatenate([_finite(s.x) for s in series]) if series else np.zeros(0)
     ys = np.concatenate([_finite(s.y) for s in series]) if series else np.zeros(0)
+    if y_range is not None:
+        ys = np.asarray(y_range, dtype=float)
     ax_x = _make_axis(xs, x_log, x_categories)
     ax_y = _make_axis(ys, False, None)
     y_label_w = max((font.text_size(t, SCALE)[0] for t in ax_y.labels), default=0)

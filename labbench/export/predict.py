@@ -1,0 +1,106 @@
+"""Predictions for a CSV file from a saved model bundle (what ``labbench predict`` runs).
+
+Column handling (documented for users):
+  * every input column of the model must be present (by name; order does not matter) - else a
+    one-line error names the missing ones;
+  * other columns are ignored (one line on the log says which); the model's id column, when the
+    data has it, is copied in front of the predictions;
+  * a numeric column must hold numbers (empty = missing); text there is an error naming the column
+    and the file line;
+  * a category the model never saw is encoded as all zeros (no category), with one warning line
+    per column naming the column and the values.
+"""
+
+from __future__ import annotations
+
+import logging
+import os
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from labbench.errors import DataError
+from labbench.model import TrainedModel
+
+log = logging.getLogger("labbench.export.predict")
+
+
+def default_output(data_path: str | os.PathLike) -> Path:
+    data = Path(data_path)
+    return data.with_name(f"{data.stem}_predictions.csv")
+
+
+def prediction_column(model: TrainedModel) -> str:
+    return f"predicted_{model.target}"
+
+
+def _short(values, limit: int = 6) -> str:
+    shown = ", ".join(repr(v) for v in values[:limit])
+    return shown + (f", ... ({len(values)} in all)" if len(values) > limit else "")
+
+
+def check_frame(model: TrainedModel, frame: pd.DataFrame, source: str,
+                lines: np.ndarray | None = None) -> None:
+    """Refuse what cannot be predicted; log what is ignored or unseen (see the module docstring)."""
+    from labbench.data.roles import as_float, category_text
+
+    missing = [c for c in model.features if c not in frame.columns]
+    if missing:
+        raise DataError(f"{source}: missing column(s) {', '.join(missing)}; the model needs "
+                        f"{', '.join(model.features)} (any order, extra columns are ignored)")
+    extra = [str(c) for c in frame.columns if c not in model.features and c != model.id_column]
+    if extra:
+        log.warning("%s: ignored column(s) the model does not use: %s", source, _short(extra))
+    state = model.preprocessor.to_state()
+    for col in model.features:
+        if model.kinds[col] == "numeric":
+            values = as_float(frame[col], col, where=source, lines=lines)
+            bad = np.flatnonzero(np.isinf(values))
+            if bad.size:
+                pos = int(bad[0])
+                place = f"line {int(lines[pos])}" if lines is not None else f"row {pos + 1}"
+                raise DataError(f"{source}: column {col!r}, {place}: {values[pos]} is not a finite number; "
+                                "replace it with a real value or leave it empty for missing")
+    for col, cats in zip(state["categorical"], state["categories"]):
+        text = category_text(frame[col])
+        present = text[pd.notna(text)]
+        unseen = sorted(set(present.tolist()) - set(cats))
+        if unseen:
+            log.warning("%s: column %r has value(s) the model never saw (%s); they are encoded as no "
+                        "category (all zeros)", source, col, _short(unseen))
+
+
+def predict_frame(model: TrainedModel, frame: pd.DataFrame, source: str = "the data",
+                  lines: np.ndarray | None = None) -> pd.DataFrame:
+    """The predictions table: [id column,] predicted_<target>[, proba_<class> ...]."""
+    check_frame(model, frame, source, lines)
+    out = pd.DataFrame(index=range(len(frame)))
+    if model.id_column and model.id_column in frame.columns:
+        out[model.id_column] = frame[model.id_column].to_numpy()
+    labels = model.predict(frame, source)
+    if model.task == "regression":
+        out[prediction_column(model)] = np.asarray(labels, dtype=np.float64)
+    else:
+        out[prediction_column(model)] = [str(v) for v in labels]
+        proba = model.predict_proba(frame, source)
+        for j, cls in enumerate(model.classes):
+            out[f"proba_{cls}"] = np.asarray(proba[:, j], dtype=np.float64)
+    return out
+
+
+def predict_file(bundle_path: str | os.PathLike, data_path: str | os.PathLike,
+                 out_path: str | os.PathLike | None = None) -> tuple[Path, int]:
+    """Load the bundle, predict every row of the CSV, write the table; returns (path, rows)."""
+    from labbench.data.reading import read_file
+    from labbench.export.bundle import load_bundle
+
+    model = load_bundle(bundle_path)
+    read = read_file(data_path)
+    out = Path(out_path) if out_path is not None else default_output(data_path)
+    if out.resolve() == Path(data_path).resolve():
+        raise DataError(f"{out}: is the data file itself; choose another output file with -o")
+    table = predict_frame(model, read.frame, str(data_path), read.lines)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    table.to_csv(out, index=False)
+    return out, len(table)
