@@ -1,0 +1,332 @@
+"""Step 1 — the data: open a CSV, preview its first rows, say what to predict and from what."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any, Mapping
+
+import pandas as pd
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, Signal
+from PySide6.QtGui import QPalette
+from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QFormLayout, QGroupBox,
+                               QHBoxLayout, QHeaderView, QLabel, QPushButton, QSplitter,
+                               QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+
+from labbench.gui import core, theme
+
+PREVIEW_ROWS = 200
+AUTO = "auto"
+
+
+class PreviewModel(QAbstractTableModel):
+    """The first rows of the file, headers showing each column's name and kind."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.frame = pd.DataFrame()
+        self.kinds: dict[str, str] = {}
+        self.roles: dict[str, str] = {}
+
+    def set_frame(self, frame: pd.DataFrame, kinds: Mapping[str, str]) -> None:
+        self.beginResetModel()
+        self.frame = frame.head(PREVIEW_ROWS)
+        self.kinds = dict(kinds)
+        self.endResetModel()
+
+    def set_roles(self, roles: Mapping[str, str]) -> None:
+        self.roles = dict(roles)
+        if self.frame.shape[1]:
+            self.headerDataChanged.emit(Qt.Orientation.Horizontal, 0, self.frame.shape[1] - 1)
+            self.dataChanged.emit(self.index(0, 0), self.index(self.rowCount() - 1, self.columnCount() - 1))
+
+    def rowCount(self, parent=QModelIndex()) -> int:
+        return 0 if parent.isValid() else len(self.frame)
+
+    def columnCount(self, parent=QModelIndex()) -> int:
+        return 0 if parent.isValid() else self.frame.shape[1]
+
+    def data(self, index: QModelIndex, role: int = Qt.ItemDataRole.DisplayRole) -> Any:
+        if not index.isValid():
+            return None
+        col = str(self.frame.columns[index.column()])
+        value = self.frame.iat[index.row(), index.column()]
+        if role == Qt.ItemDataRole.DisplayRole:
+            return "" if pd.isna(value) else str(value)
+        if role == Qt.ItemDataRole.TextAlignmentRole and self.kinds.get(col) == "numeric":
+            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        if role == Qt.ItemDataRole.ForegroundRole and self.roles.get(col) == "ignored":
+            return QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
+        if role == Qt.ItemDataRole.ToolTipRole and pd.isna(value):
+            return "missing value"
+        return None
+
+    def headerData(self, section: int, orientation: Qt.Orientation, role: int = Qt.ItemDataRole.DisplayRole):
+        if role != Qt.ItemDataRole.DisplayRole:
+            return None
+        if orientation == Qt.Orientation.Vertical:
+            return str(section + 1)
+        col = str(self.frame.columns[section])
+        role_word = self.roles.get(col, "")
+        tail = {"target": " · target", "ignored": " · ignored"}.get(role_word, "")
+        return f"{col}\n{self.kinds.get(col, '')}{tail}"
+
+
+class DataPage(QWidget):
+    """Reads the file with ``labbench.data.read_csv`` and asks the core for kinds and task."""
+
+    changed = Signal()
+    open_requested = Signal()
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.path: str | None = None
+        self.frame: pd.DataFrame | None = None
+        self.inferred_kinds: dict[str, str] = {}
+        self.inferred_task: str | None = None
+        self.task_error = ""
+        self._explicit_kinds: set[str] = set()
+        self._loading = False
+
+        outer = QVBoxLayout(self)
+        top = QHBoxLayout()
+        self.open_button = QPushButton(theme.icon("open"), "Open CSV…")
+        self.open_button.setToolTip("Choose a CSV file (you can also drop one onto the window)")
+        self.open_button.clicked.connect(self.open_requested)
+        top.addWidget(self.open_button)
+        self.file_label = QLabel("No table yet: open a CSV file or drop one here.")
+        self.file_label.setObjectName("fileLabel")
+        self.file_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        top.addWidget(self.file_label, 1)
+        outer.addLayout(top)
+
+        split = QSplitter(Qt.Orientation.Horizontal)
+        self.preview = QTableView()
+        self.preview_model = PreviewModel(self)
+        self.preview.setModel(self.preview_model)
+        self.preview.setAlternatingRowColors(True)
+        self.preview.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectColumns)
+        self.preview.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
+        self.preview.verticalHeader().setDefaultSectionSize(22)
+        self.preview.setToolTip(f"The first {PREVIEW_ROWS} rows of the file, as read")
+        split.addWidget(self.preview)
+
+        side = QWidget()
+        side_layout = QVBoxLayout(side)
+        side_layout.setContentsMargins(0, 0, 0, 0)
+        goal = QGroupBox("What to predict")
+        form = QFormLayout(goal)
+        self.target_box = QComboBox()
+        self.target_box.setToolTip("The column the network learns to predict")
+        self.task_box = QComboBox()
+        self.task_box.setToolTip("Regression predicts a number; binary and multiclass predict a class label")
+        self.metric_box = QComboBox()
+        self.metric_box.setToolTip("The score every trial is judged by, averaged over the folds")
+        self.missing_box = QComboBox()
+        self.missing_box.addItems(["impute", "drop"])
+        self.missing_box.setToolTip("Fill missing feature values (median or most frequent, learned per fold) or drop those rows")
+        self.scaling_box = QComboBox()
+        self.scaling_box.addItems(["standard", "minmax"])
+        self.scaling_box.setToolTip("How numeric columns are scaled: to mean 0 and spread 1, or into 0…1")
+        form.addRow("Target column", self.target_box)
+        form.addRow("Task", self.task_box)
+        form.addRow("Score by", self.metric_box)
+        form.addRow("Missing values", self.missing_box)
+        form.addRow("Scaling", self.scaling_box)
+        self.task_note = QLabel("")
+        self.task_note.setWordWrap(True)
+        self.task_note.setObjectName("errorText")
+        form.addRow(self.task_note)
+        side_layout.addWidget(goal)
+
+        cols = QGroupBox("Columns used as inputs")
+        cols_layout = QVBoxLayout(cols)
+        self.columns = QTableWidget(0, 3)
+        self.columns.setHorizontalHeaderLabels(["Column", "Kind", "Use"])
+        self.columns.verticalHeader().hide()
+        self.columns.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
+        self.columns.setToolTip("Untick a column to leave it out (an id, a leak of the answer); "
+                                "change a kind when numbers are really labels")
+        cols_layout.addWidget(self.columns)
+        side_layout.addWidget(cols, 1)
+        split.addWidget(side)
+        split.setStretchFactor(0, 3)
+        split.setStretchFactor(1, 2)
+        outer.addWidget(split, 1)
+
+        self.target_box.currentTextChanged.connect(self._target_changed)
+        self.task_box.currentIndexChanged.connect(self._task_changed)
+        for box in (self.metric_box, self.missing_box, self.scaling_box):
+            box.currentIndexChanged.connect(self._emit)
+
+    # ------------------------------------------------------------------ loading
+    def load(self, path: str) -> None:
+        """Read the file (raises the core's DataError) and fill the page."""
+        from labbench.data import infer_kinds, read_csv
+
+        frame = read_csv(path)
+        kinds = infer_kinds(frame)
+        self._loading = True
+        try:
+            self.path = str(Path(path).resolve())
+            self.frame = frame
+            self._explicit_kinds = set()
+            self.inferred_kinds = dict(kinds)
+            self.preview_model.set_frame(frame, kinds)
+            self.preview.resizeColumnsToContents()
+            self.file_label.setText(f"<b>{Path(path).name}</b> — {len(frame):,} rows × {frame.shape[1]} columns"
+                                    f" <span style='color:gray'>({self.path})</span>")
+            self.target_box.clear()
+            self.target_box.addItems([str(c) for c in frame.columns])
+            self.target_box.setCurrentIndex(frame.shape[1] - 1)
+            self._fill_columns([])
+        finally:
+            self._loading = False
+        self._target_changed(self.target_box.currentText())
+
+    def _fill_columns(self, ignored: list[str], kinds: Mapping[str, str] | None = None) -> None:
+        assert self.frame is not None
+        self.columns.setRowCount(0)
+        for name in map(str, self.frame.columns):
+            row = self.columns.rowCount()
+            self.columns.insertRow(row)
+            item = QTableWidgetItem(name)
+            item.setFlags(item.flags() & ~Qt.ItemFlag.ItemIsEditable)
+            self.columns.setItem(row, 0, item)
+            kind = QComboBox()
+            kind.addItems(["numeric", "categorical"])
+            kind.setCurrentText((kinds or {}).get(name, self.inferred_kinds.get(name, "numeric")))
+            kind.setToolTip(f"inferred: {self.inferred_kinds.get(name, '?')}")
+            kind.currentIndexChanged.connect(self._kinds_changed)
+            self.columns.setCellWidget(row, 1, kind)
+            use = QCheckBox()
+            use.setChecked(name not in ignored)
+            use.setToolTip(f"Use “{name}” as an input")
+            use.toggled.connect(self._kinds_changed)
+            self.columns.setCellWidget(row, 2, use)
+        self.columns.resizeColumnToContents(1)
+        self.columns.resizeColumnToContents(2)
+        self._sync_roles()
+
+    def _row_widgets(self):
+        for row in range(self.columns.rowCount()):
+            yield (self.columns.item(row, 0).text(), self.columns.cellWidget(row, 1),
+                   self.columns.cellWidget(row, 2))
+
+    def _sync_roles(self) -> None:
+        target = self.target_box.currentText()
+        roles = {}
+        for name, kind, use in self._row_widgets():
+            is_target = name == target
+            use.setEnabled(not is_target)
+            kind.setEnabled(not is_target)
+            roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
+        self.preview_model.set_roles(roles)
+
+    # ------------------------------------------------------------------ choices
+    def _target_changed(self, target: str) -> None:
+        if self._loading or self.frame is None or not target:
+            return
+        from labbench.data import infer_task
+
+        try:
+            self.inferred_task, self.task_error = infer_task(self.frame[target]), ""
+        except Exception as exc:  # the core's one-line DataError (a constant target, ...)
+            self.inferred_task, self.task_error = None, str(exc)
+        self._loading = True
+        keep = self.task_box.currentData()
+        self.task_box.clear()
+        self.task_box.addItem(f"{AUTO} ({self.inferred_task or 'unknown'})", AUTO)
+        for task in ("regression", "binary", "multiclass"):
+            self.task_box.addItem(task, task)
+        i = self.task_box.findData(keep) if keep else 0
+        self.task_box.setCurrentIndex(max(i, 0))
+        self._loading = False
+        self.task_note.setText(self.task_error)
+        self._sync_roles()
+        self._task_changed()
+
+    def task(self) -> str | None:
+        data = self.task_box.currentData()
+        return None if data in (None, AUTO) else str(data)
+
+    def effective_task(self) -> str | None:
+        return self.task() or self.inferred_task
+
+    def _task_changed(self, *_a) -> None:
+        if self._loading:
+            return
+        task = self.effective_task()
+        keep = self.metric_box.currentData()
+        self._loading = True
+        self.metric_box.clear()
+        try:
+            default = core.default_metric(task) if task else None
+            names = core.metrics_for(task)
+        except ImportError:     # the metric table is not there yet
+            default, names = None, []
+        self.metric_box.addItem(f"{AUTO} ({core.metric_label(default) if default else '—'})", AUTO)
+        for n in names:
+            self.metric_box.addItem(core.metric_label(n), n)
+        i = self.metric_box.findData(keep) if keep else 0
+        self.metric_box.setCurrentIndex(max(i, 0))
+        self._loading = False
+        self._emit()
+
+    def _kinds_changed(self, *_a) -> None:
+        if not self._loading:
+            self._sync_roles()
+            self._emit()
+
+    def _emit(self, *_a) -> None:
+        if not self._loading:
+            self.changed.emit()
+
+    # ------------------------------------------------------------------ spec
+    def metric(self) -> str | None:
+        data = self.metric_box.currentData()
+        return None if data in (None, AUTO) else str(data)
+
+    def data_dict(self) -> dict[str, Any] | None:
+        """The [data] section (path absolute), or None before a file is loaded."""
+        if self.frame is None or not self.path:
+            return None
+        target = self.target_box.currentText()
+        ignore, kinds = [], {}
+        for name, kind, use in self._row_widgets():
+            if name == target:
+                continue
+            if not use.isChecked():
+                ignore.append(name)
+            elif kind.currentText() != self.inferred_kinds.get(name) or name in self._explicit_kinds:
+                kinds[name] = kind.currentText()
+        d: dict[str, Any] = {"path": self.path, "target": target}
+        if ignore:
+            d["ignore"] = ignore
+        if self.task():
+            d["task"] = self.task()
+        if kinds:
+            d["kinds"] = kinds
+        d["missing"] = self.missing_box.currentText()
+        d["scaling"] = self.scaling_box.currentText()
+        return d
+
+    def set_from_spec(self, data, metric: str | None) -> None:
+        """Show a loaded spec's [data] (the file is read again; DataError propagates)."""
+        self.load(data.path)
+        self._explicit_kinds = set(data.kinds)
+        self._loading = True
+        self.target_box.setCurrentText(data.target)
+        self._loading = False
+        self._target_changed(data.target)
+        self._loading = True
+        self._fill_columns(list(data.ignore), dict(data.kinds))
+        self.task_box.setCurrentIndex(max(self.task_box.findData(data.task or AUTO), 0))
+        self.missing_box.setCurrentText(data.missing)
+        self.scaling_box.setCurrentText(data.scaling)
+        self._loading = False
+        self._task_changed()
+        self._loading = True
+        self.metric_box.setCurrentIndex(max(self.metric_box.findData(metric or AUTO), 0))
+        self._loading = False
+        self._sync_roles()
+        self._emit()

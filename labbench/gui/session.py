@@ -1,0 +1,269 @@
+"""One search as the window sees it: run it (events) or watch it in storage (polls), and redraw.
+
+The session owns the ``TrialBook``, the worker thread of a running search, the background reader
+(storage polls, importance) and the redraw timer. Everything it hands to the widgets happens on
+the GUI thread; everything slow (the controller, ``get_trials``, importance) happens elsewhere.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from typing import Any
+
+from PySide6.QtCore import QObject, QTimer, Signal
+
+from labbench.gui import core, theme
+from labbench.gui.bridge import Background, SearchThread
+from labbench.gui.trialbook import TrialBook
+from labbench.search import events as ev
+
+log = logging.getLogger("labbench.gui")
+
+REDRAW_MS = 40          # the plots redraw at most this often, never per event
+POLL_MS = 2000          # storage poll while watching a search run elsewhere
+IMPORTANCE_S = 4.0      # importance is recomputed at most this often
+
+
+def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
+    """What ``labbench run`` does, in the worker thread: the search, then the winner check."""
+    from labbench.search.commands import out_dir
+    from labbench.search.runner import SearchRunner
+    from labbench.search.winner import finalize
+
+    runner = SearchRunner(spec, emit, fresh=fresh)
+    outcome = runner.run(cancel)
+    result: dict[str, Any] = {"outcome": outcome, "summary": None, "model": None, "files": ()}
+    if outcome.cancelled or outcome.best_number is None or cancel.is_set():
+        return result
+    files: list[str] = []
+
+    def relay(event) -> None:
+        if isinstance(event, ev.WinnerReady):
+            files.extend(event.files)
+        emit(event)
+
+    summary, model = finalize(spec, runner.study, runner.prepared, emit=relay,
+                              out_dir=out_dir(spec, None))
+    result.update(summary=summary, model=model, files=tuple(files))
+    return result
+
+
+class _Studies:
+    """Optuna studies opened for reading, cached per (url, name); used on the reader thread only."""
+
+    def __init__(self) -> None:
+        self.cache: dict[tuple[str, str], Any] = {}
+
+    def get(self, url: str, name: str):
+        key = (url, name)
+        if key not in self.cache:
+            import optuna
+            from labbench.search.storage import quiet_optuna_warnings
+            from labbench.search.strategy import route_optuna_logging
+
+            route_optuna_logging()
+            quiet_optuna_warnings()
+            from labbench.errors import SpecError
+            from labbench.search.storage import mask_url
+
+            storage = optuna.storages.RDBStorage(url, skip_table_creation=True)
+            try:
+                self.cache[key] = optuna.load_study(study_name=name, storage=storage)
+            except KeyError:
+                raise SpecError(f"storage {mask_url(url)}: no search named '{name}' is stored "
+                                "there yet") from None
+        return self.cache[key]
+
+
+class SearchSession(QObject):
+    changed = Signal()            # running / watching / winner state changed
+    failed = Signal(str)          # a one-line message for a dialog
+    finished = Signal(object)     # the run_search result (dict) or None after an error
+
+    def __init__(self, view, parent=None):
+        super().__init__(parent)
+        self.view = view
+        self.book = TrialBook()
+        self.selected: int | None = None
+        self.thread: SearchThread | None = None
+        self.result: dict[str, Any] | None = None
+        self.spec = None
+        self.url: str | None = None
+        self.study_name: str | None = None
+        self.watching = False
+        self._quiet_missing = False
+        self.reader = Background(self)
+        self.reader.done.connect(self._read_done)
+        self.studies = _Studies()
+        self._drawn = None
+        self._imp_key = None
+        self._seen: dict[int, tuple] = {}
+        self._imp_at = 0.0
+        self.redraw = QTimer(self)
+        self.redraw.setInterval(REDRAW_MS)
+        self.redraw.timeout.connect(self.draw)
+        self.redraw.start()
+        self.poll = QTimer(self)
+        self.poll.setInterval(POLL_MS)
+        self.poll.timeout.connect(self._poll)
+        self.imp_timer = QTimer(self)
+        self.imp_timer.setInterval(1000)
+        self.imp_timer.timeout.connect(self._maybe_importance)
+        self.imp_timer.start()
+        view.picked.connect(self.select)
+
+    # ------------------------------------------------------------------ state
+    @property
+    def running(self) -> bool:
+        return self.thread is not None
+
+    def select(self, number: int | None) -> None:
+        self.selected = number
+
+    def _reset(self) -> None:
+        self.book.clear()
+        self.view.reset()
+        self.view.importance.show_result({}, "")
+        self.result = None
+        self._imp_key = None
+        self._seen: dict[int, tuple] = {}
+        self.selected = None
+
+    # ------------------------------------------------------------------ running
+    def start(self, spec, *, fresh: bool = False) -> None:
+        from labbench.search.storage import resolve_url
+
+        if self.running:
+            return
+        self.stop_watching()
+        self._reset()
+        self.spec = spec
+        self.url = resolve_url(spec)
+        self.study_name = spec.study_name()
+        self.thread = SearchThread(lambda emit, cancel: run_search(spec, emit, cancel, fresh=fresh), self)
+        self.thread.event.connect(self._on_event)
+        self.thread.failed.connect(self._on_failed)
+        self.thread.outcome.connect(self._on_outcome)
+        self.thread.finished.connect(self._on_thread_finished)
+        self.thread.start()
+        self.changed.emit()
+
+    def stop(self) -> None:
+        if self.thread is not None:
+            self.thread.stop()
+            self.changed.emit()
+
+    @property
+    def stopping(self) -> bool:
+        return self.thread is not None and self.thread.cancel.is_set()
+
+    def _on_event(self, event: ev.Event) -> None:
+        self.book.apply(event)
+        if isinstance(event, ev.SearchStarted) and event.existing_trials and self.url:
+            url, name = self.url, event.study_name
+            # the trials of earlier runs come from storage (new ones arrive as events)
+            self.reader.submit("earlier", lambda: core.read_study(self.studies.get(url, name)))
+        if isinstance(event, (ev.SearchEnded, ev.WinnerReady)):
+            self.changed.emit()
+
+    def _on_failed(self, message: str) -> None:
+        self.result = None
+        self.failed.emit(message)
+
+    def _on_outcome(self, result: dict) -> None:
+        self.result = result
+
+    def _on_thread_finished(self) -> None:
+        thread, self.thread = self.thread, None
+        if thread is not None:
+            thread.deleteLater()
+        self._imp_key = None       # one last importance read with every trial in
+        self.finished.emit(self.result)
+        self.changed.emit()
+
+    # ------------------------------------------------------------------ watching storage
+    def watch(self, url: str, name: str, spec=None, *, quiet: bool = False) -> None:
+        """Show (and keep polling) the trials a storage holds for one search.
+
+        ``quiet``: a storage without that search yet is not an error (an experiment never run).
+        """
+        if self.running:
+            return
+        self._reset()
+        self._quiet_missing = quiet
+        self.url, self.study_name, self.spec = url, name, spec
+        self.watching = True
+        self.studies.cache.pop((url, name), None)
+        self._poll()
+        self.poll.start()
+        self.changed.emit()
+
+    def stop_watching(self) -> None:
+        self.poll.stop()
+        self.watching = False
+
+    def _poll(self) -> None:
+        if self.url and self.study_name:
+            url, name = self.url, self.study_name
+            self.reader.submit("poll", lambda: core.read_study(self.studies.get(url, name)))
+
+    def _read_done(self, key: str, result, error: str | None) -> None:
+        if key == "importance":
+            values, message = result if error is None else ({}, f"Importance could not be read: {error}")
+            self.view.importance.show_result(values, message)
+            self._drawn = None
+            return
+        if error is not None:
+            if key == "poll":
+                self.stop_watching()
+                if not (self._quiet_missing and "no search named" in error):
+                    self.failed.emit(error)
+                self.url = self.url if self.spec is not None else None
+            return
+        snaps, best, attrs = result
+        if key == "earlier":
+            known = set(self.book.records)
+            self.book.merge_snapshots([s for s in snaps if s.number not in known],
+                                      best_number=self.book.best_number if self.book.best_number
+                                      is not None else best)
+            return
+        if key == "poll" and self.watching:
+            b = self.book
+            searched = tuple(attrs.get("searched") or ())
+            if (searched, attrs.get("direction")) != (b.searched, b.direction):
+                b.searched, b.log_scaled = searched, tuple(attrs.get("log_scaled") or ())
+                b.structure_version += 1
+            b.metric = str(attrs.get("metric", "") or "")
+            b.direction = str(attrs.get("direction", "maximize") or "maximize")
+            b.storage, b.study_name = self.url or "", self.study_name or ""
+            b.merge_snapshots(core.changed_only(snaps, self._seen), best_number=best)
+
+    # ------------------------------------------------------------------ importance
+    def _maybe_importance(self) -> None:
+        if not (self.url and self.study_name):
+            return
+        done = sum(1 for r in self.book.records.values() if r.state == "complete")
+        key = (self.url, self.study_name, done)
+        if key == self._imp_key or time.monotonic() - self._imp_at < IMPORTANCE_S:
+            return
+        if self.reader.busy("importance"):
+            return
+        self._imp_key, self._imp_at = key, time.monotonic()
+        url, name = self.url, self.study_name
+        self.reader.submit("importance", lambda: core.importance(self.studies.get(url, name)))
+
+    # ------------------------------------------------------------------ drawing
+    def draw(self) -> None:
+        t = theme.Theme.current()
+        key = (self.book.version, self.selected, t.background.name())
+        if key == self._drawn:
+            return
+        self._drawn = key
+        self.view.refresh(self.book, self.book.take_changed(), self.selected, t)
+
+    def close(self) -> None:
+        self.redraw.stop()
+        self.poll.stop()
+        self.imp_timer.stop()
+        self.reader.close()

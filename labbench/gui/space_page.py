@@ -1,0 +1,287 @@
+"""Step 2 — the search: which settings are searched and how, how trials are scored, the budget."""
+
+from __future__ import annotations
+
+import os
+import re
+from typing import Any
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout,
+                               QGroupBox, QHBoxLayout, QLabel, QLineEdit, QScrollArea, QSpinBox,
+                               QVBoxLayout, QWidget)
+
+from labbench.gui.setting_row import SettingRow
+
+KEY = re.compile(r"(?:^|: )(data|evaluation|search|space)\.([A-Za-z_0-9]+)")
+
+# one sentence each (the tooltips of the evaluation and search settings)
+TIPS = {
+    "folds": "Each trial trains this many models, each scored on the rows the others trained on.",
+    "repeats": "Run the whole fold split this many times with different shuffles and average them.",
+    "holdout": "Share of rows locked away before the search and used once, to check the winner.",
+    "seed": "Fixes the hold-out split, the folds and the sampler so a search can be repeated.",
+    "seed_spread": "Retrain the winner with this many seeds to show how much its score moves (0 skips it).",
+    "trials": "Stop after this many trials have been added by this run.",
+    "minutes": "Stop starting new trials after this many minutes.",
+    "sampler": "How the next trial's settings are picked: tpe learns from earlier trials, random does not.",
+    "pruner": "Stops trials early whose validation loss lags behind earlier trials at the same epoch.",
+    "workers": "Trials trained at the same time in separate processes (one per core is plenty).",
+    "storage": "Database the trials are kept in; empty means a SQLite file next to the spec file.",
+    "name": "Name of the search inside the storage; empty means the spec file's name.",
+}
+
+
+def key_of(message: str) -> tuple[str, str] | None:
+    """("space", "learning_rate") from a SpecError text naming the dotted key."""
+    m = KEY.search(message)
+    return (m.group(1), m.group(2)) if m else None
+
+
+class SpacePage(QWidget):
+    changed = Signal()
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        from labbench.search.space import SETTINGS
+        from labbench.search.spec import PRUNERS, SAMPLERS
+
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(0, 0, 0, 0)
+        scroll = QScrollArea()
+        scroll.setWidgetResizable(True)
+        scroll.setFrameShape(QScrollArea.Shape.NoFrame)
+        outer.addWidget(scroll)
+        inner = QWidget()
+        scroll.setWidget(inner)
+        page = QVBoxLayout(inner)
+
+        self.banner = QLabel("")
+        self.banner.setObjectName("errorBanner")
+        self.banner.setWordWrap(True)
+        self.banner.hide()
+        page.addWidget(self.banner)
+
+        net = QGroupBox("Network settings")
+        grid = QGridLayout(net)
+        grid.setColumnStretch(1, 1)
+        self.rows: dict[str, SettingRow] = {}
+        self.errors: dict[str, QLabel] = {}
+        for i, (name, info) in enumerate(SETTINGS.items()):
+            label = QLabel(info.label)
+            label.setToolTip(info.help)
+            row = SettingRow(info)
+            row.setToolTip(info.help)
+            label.setBuddy(row.mode)
+            err = QLabel("")
+            err.setObjectName("errorText")
+            err.setWordWrap(True)
+            err.hide()
+            grid.addWidget(label, 2 * i, 0, Qt.AlignmentFlag.AlignTop)
+            grid.addWidget(row, 2 * i, 1)
+            grid.addWidget(err, 2 * i + 1, 1)
+            row.changed.connect(self._changed)
+            self.rows[name] = row
+            self.errors[f"space.{name}"] = err
+        page.addWidget(net)
+
+        lower = QHBoxLayout()
+        ev = QGroupBox("How each trial is scored")
+        f = QFormLayout(ev)
+        self.folds = self._spin(2, 50, 5)
+        self.repeats = self._spin(1, 20, 1)
+        self.holdout = QDoubleSpinBox()
+        self.holdout.setRange(0.01, 0.89)
+        self.holdout.setSingleStep(0.05)
+        self.holdout.setDecimals(3)
+        self.holdout.setValue(0.2)
+        self.holdout.valueChanged.connect(self._changed)
+        self.seed = self._spin(0, 2**31 - 1, 0)
+        self.seed_spread = self._spin(0, 50, 5)
+        for key, label, w in (("folds", "Folds", self.folds), ("repeats", "Repeats", self.repeats),
+                              ("holdout", "Hold-out share", self.holdout), ("seed", "Seed", self.seed),
+                              ("seed_spread", "Seeds for the spread check", self.seed_spread)):
+            self._add(f, "evaluation", key, label, w)
+        lower.addWidget(ev, 1)
+
+        se = QGroupBox("Budget and method")
+        g = QFormLayout(se)
+        self.trials_on = QCheckBox()
+        self.trials = self._spin(1, 100_000, 40)
+        self.minutes_on = QCheckBox()
+        self.minutes = QDoubleSpinBox()
+        self.minutes.setRange(0.1, 10_000)
+        self.minutes.setValue(10)
+        self.minutes.setSuffix(" min")
+        self.minutes.valueChanged.connect(self._changed)
+        self.trials_on.setChecked(True)
+        for box, w in ((self.trials_on, self.trials), (self.minutes_on, self.minutes)):
+            box.toggled.connect(w.setEnabled)
+            box.toggled.connect(self._changed)
+        self.minutes.setEnabled(False)
+        self.sampler = QComboBox()
+        self.sampler.addItems(list(SAMPLERS))
+        self.pruner = QComboBox()
+        self.pruner.addItems(list(PRUNERS))
+        for box in (self.sampler, self.pruner):
+            box.currentIndexChanged.connect(self._changed)
+        self.workers = self._spin(1, max(1, (os.cpu_count() or 1) * 2), 1)
+        self.storage = QLineEdit()
+        self.storage.setPlaceholderText("next to the spec file")
+        self.name = QLineEdit()
+        self.name.setPlaceholderText("the spec file's name")
+        for w in (self.storage, self.name):
+            w.textChanged.connect(self._changed)
+        self._add(g, "search", "trials", "Trials", _pair(self.trials_on, self.trials))
+        self._add(g, "search", "minutes", "Time limit", _pair(self.minutes_on, self.minutes))
+        self._add(g, "search", "sampler", "Sampler", self.sampler)
+        self._add(g, "search", "pruner", "Early stopping", self.pruner)
+        self._add(g, "search", "workers", "Workers", self.workers)
+        self._add(g, "search", "storage", "Storage URL", self.storage)
+        self._add(g, "search", "name", "Search name", self.name)
+        lower.addWidget(se, 1)
+        page.addLayout(lower)
+        page.addStretch(1)
+        self._quiet = False
+        self._defaults()
+
+    def _defaults(self) -> None:
+        """Start from the spec's own defaults (labbench.search.spec), not from guesses here."""
+        from labbench.search.spec import EvaluationSpec, SearchSettings
+
+        e, s = EvaluationSpec(), SearchSettings()
+        self._quiet = True
+        self.folds.setValue(e.folds)
+        self.repeats.setValue(e.repeats)
+        self.holdout.setValue(e.holdout)
+        self.seed.setValue(e.seed)
+        self.seed_spread.setValue(e.seed_spread)
+        self.trials_on.setChecked(s.trials is not None)
+        if s.trials is not None:
+            self.trials.setValue(s.trials)
+        self.sampler.setCurrentText(s.sampler)
+        self.pruner.setCurrentText(s.pruner)
+        self.workers.setValue(s.workers)
+        self._quiet = False
+
+    # ------------------------------------------------------------------ building
+    def _spin(self, low: int, high: int, value: int) -> QSpinBox:
+        s = QSpinBox()
+        s.setRange(low, high)
+        s.setValue(value)
+        s.valueChanged.connect(self._changed)
+        return s
+
+    def _add(self, form: QFormLayout, section: str, key: str, label: str, w: QWidget) -> None:
+        tip = TIPS[key]
+        lab = QLabel(label)
+        lab.setToolTip(tip)
+        w.setToolTip(tip)
+        for child in w.findChildren(QWidget):
+            child.setToolTip(tip)
+        form.addRow(lab, w)
+        err = QLabel("")
+        err.setObjectName("errorText")
+        err.setWordWrap(True)
+        err.hide()
+        form.addRow(err)
+        self.errors[f"{section}.{key}"] = err
+
+    def _changed(self, *_a) -> None:
+        if not self._quiet:
+            self.changed.emit()
+
+    # ------------------------------------------------------------------ the spec sections
+    def space_dict(self) -> dict[str, Any]:
+        return {name: row.raw() for name, row in self.rows.items()}
+
+    def evaluation_dict(self, metric: str | None) -> dict[str, Any]:
+        d: dict[str, Any] = {"folds": self.folds.value(), "repeats": self.repeats.value(),
+                             "holdout": round(self.holdout.value(), 4), "seed": self.seed.value(),
+                             "seed_spread": self.seed_spread.value()}
+        if metric:
+            d["metric"] = metric
+        return d
+
+    def search_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {}
+        if self.trials_on.isChecked():
+            d["trials"] = self.trials.value()
+        if self.minutes_on.isChecked():
+            d["minutes"] = float(self.minutes.value())
+        d.update(sampler=self.sampler.currentText(), pruner=self.pruner.currentText(),
+                 workers=self.workers.value())
+        if self.storage.text().strip():
+            d["storage"] = self.storage.text().strip()
+        if self.name.text().strip():
+            d["name"] = self.name.text().strip()
+        return d
+
+    def set_from_spec(self, spec) -> None:
+        self._quiet = True
+        try:
+            for name, raw in spec.space.to_dict().items():
+                if name in self.rows:
+                    self.rows[name].set_raw(raw)
+            e, s = spec.evaluation, spec.search
+            self.folds.setValue(e.folds)
+            self.repeats.setValue(e.repeats)
+            self.holdout.setValue(e.holdout)
+            self.seed.setValue(e.seed)
+            self.seed_spread.setValue(e.seed_spread)
+            self.trials_on.setChecked(s.trials is not None)
+            if s.trials is not None:
+                self.trials.setValue(s.trials)
+            self.minutes_on.setChecked(s.minutes is not None)
+            if s.minutes is not None:
+                self.minutes.setValue(s.minutes)
+            self.sampler.setCurrentText(s.sampler)
+            self.pruner.setCurrentText(s.pruner)
+            self.workers.setValue(s.workers)
+            self.storage.setText(s.storage or "")
+            self.name.setText(s.name or "")
+        finally:
+            self._quiet = False
+        self.changed.emit()
+
+    # ------------------------------------------------------------------ validation
+    def check_space(self) -> dict[str, str]:
+        """Per-setting messages from the core (each setting alone, then all together)."""
+        from labbench.errors import SpecError
+        from labbench.search.space import SearchSpace
+
+        problems: dict[str, str] = {}
+        raw = self.space_dict()
+        for name, value in raw.items():
+            try:
+                SearchSpace.from_dict({name: value})
+            except SpecError as exc:
+                problems[f"space.{name}"] = str(exc)
+        if not problems:
+            try:
+                SearchSpace.from_dict(raw)
+            except SpecError as exc:
+                k = key_of(str(exc))
+                problems[f"{k[0]}.{k[1]}" if k else "space"] = str(exc)
+        return problems
+
+    def show_problems(self, problems: dict[str, str]) -> None:
+        loose = []
+        for key, label in self.errors.items():
+            text = problems.get(key, "")
+            label.setText(text)
+            label.setVisible(bool(text))
+        for key, text in problems.items():
+            if key not in self.errors:
+                loose.append(text)
+        self.banner.setText("\n".join(loose))
+        self.banner.setVisible(bool(loose))
+
+
+def _pair(box: QCheckBox, w: QWidget) -> QWidget:
+    holder = QWidget()
+    lay = QHBoxLayout(holder)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.addWidget(box)
+    lay.addWidget(w, 1)
+    return holder

@@ -1,0 +1,150 @@
+"""Colours, pens and icons of the window, derived from the running palette (light or dark).
+
+The state colours are labbench's own: a neutral ink for finished trials so that the two that
+matter (the one training now and the best so far) stand out, a cool slate for pruned ones and a
+brick red for failures. Each is lightened on a dark palette so it stays readable.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from PySide6.QtCore import QSize, Qt
+from PySide6.QtGui import QColor, QIcon, QPainter, QPalette, QPixmap
+from PySide6.QtSvg import QSvgRenderer
+from PySide6.QtWidgets import QApplication
+
+RESOURCES = Path(__file__).resolve().parents[2] / "resources"
+
+# name -> (light-palette colour, dark-palette colour)
+_STATE_COLOURS = {
+    "running": ("#d9822b", "#f0a35e"),    # amber: the trial training right now
+    "best": ("#1f8a5b", "#4cc38a"),       # deep green: the best finished trial
+    "complete": ("#5b6472", "#a9b1bd"),   # ink grey: every other finished trial
+    "pruned": ("#6f7fb8", "#98a6d8"),     # slate blue, dashed: stopped early by the pruner
+    "failed": ("#b8433a", "#e2766c"),     # brick red, dotted: the trial raised an error
+    "cancelled": ("#8e8e8e", "#9a9a9a"),  # plain grey, dotted: stopped by the user
+    "waiting": ("#8e8e8e", "#9a9a9a"),
+    "selected": ("#7a3fb0", "#c39bef"),   # violet: the row picked in the trials table
+}
+
+STATE_WORDS = {
+    "running": "training",
+    "complete": "finished",
+    "pruned": "stopped early",
+    "failed": "failed",
+    "cancelled": "cancelled",
+    "waiting": "queued",
+}
+
+
+def is_dark(palette: QPalette | None = None) -> bool:
+    pal = palette or QApplication.palette()
+    return pal.color(QPalette.ColorRole.Window).lightness() < 128
+
+
+@dataclass(frozen=True)
+class Theme:
+    """Everything a plot needs to draw in the current palette."""
+
+    background: QColor
+    foreground: QColor
+    grid_alpha: float
+    dark: bool
+
+    @classmethod
+    def current(cls) -> "Theme":
+        pal = QApplication.palette()
+        dark = is_dark(pal)
+        return cls(
+            background=pal.color(QPalette.ColorRole.Base),
+            foreground=pal.color(QPalette.ColorRole.Text),
+            grid_alpha=0.18 if dark else 0.12,
+            dark=dark,
+        )
+
+    def state(self, name: str, alpha: int = 255) -> QColor:
+        light, dark = _STATE_COLOURS.get(name, _STATE_COLOURS["complete"])
+        colour = QColor(dark if self.dark else light)
+        colour.setAlpha(alpha)
+        return colour
+
+
+def state_colour(name: str, alpha: int = 255) -> QColor:
+    return Theme.current().state(name, alpha)
+
+
+def pen_style(state: str) -> Qt.PenStyle:
+    if state == "pruned":
+        return Qt.PenStyle.DashLine
+    if state in ("failed", "cancelled"):
+        return Qt.PenStyle.DotLine
+    return Qt.PenStyle.SolidLine
+
+
+def icon(name: str, colour: QColor | None = None) -> QIcon:
+    """An icon from resources/icons/NAME.svg, recoloured to the palette's text colour.
+
+    The SVGs draw with ``currentColor``; the pixmaps are rendered at 1x and 2x so they stay crisp
+    on high-DPI screens.
+    """
+    path = RESOURCES / "icons" / f"{name}.svg"
+    if not path.exists():
+        return QIcon()
+    text = path.read_text(encoding="utf-8")
+    if colour is None:
+        colour = QApplication.palette().color(QPalette.ColorRole.WindowText)
+    text = text.replace("currentColor", colour.name())
+    renderer = QSvgRenderer(text.encode("utf-8"))
+    result = QIcon()
+    for size in (16, 20, 24, 32, 48):
+        for scale in (1, 2):
+            pix = QPixmap(QSize(size * scale, size * scale))
+            pix.fill(Qt.GlobalColor.transparent)
+            painter = QPainter(pix)
+            renderer.render(painter)
+            painter.end()
+            pix.setDevicePixelRatio(scale)
+            result.addPixmap(pix)
+            if scale == 2:
+                # a disabled look of our own: the same glyph at a third of its ink
+                faded = QPixmap(pix.size())
+                faded.fill(Qt.GlobalColor.transparent)
+                p = QPainter(faded)
+                p.setOpacity(0.35)
+                p.drawPixmap(0, 0, pix)
+                p.end()
+                faded.setDevicePixelRatio(scale)
+                result.addPixmap(faded, QIcon.Mode.Disabled)
+    return result
+
+
+def stylesheet() -> str:
+    """resources/labbench.qss with its @colours taken from the running palette."""
+    path = RESOURCES / "labbench.qss"
+    if not path.exists():
+        return ""
+    pal = QApplication.palette()
+    t = Theme.current()
+    text = pal.color(QPalette.ColorRole.Text)
+    window = pal.color(QPalette.ColorRole.Window)
+    accent = t.state("best")
+    soft = QColor(accent)
+    soft.setAlpha(60)
+    line = QColor(text)
+    line.setAlpha(45)
+    muted = QColor(text)
+    muted.setAlpha(150)
+    on_accent = QColor("#101010") if t.dark else QColor("#ffffff")
+
+    def rgba(c: QColor) -> str:
+        return f"rgba({c.red()}, {c.green()}, {c.blue()}, {c.alpha()})"
+
+    colours = {"@accent_soft": rgba(soft), "@accent": accent.name(), "@line": rgba(line),
+               "@muted": rgba(muted), "@error": t.state("failed").name(),
+               "@on_accent": on_accent.name(), "@window": window.name()}
+    qss = path.read_text(encoding="utf-8")
+    for key in sorted(colours, key=len, reverse=True):
+        qss = qss.replace(key, colours[key])
+    return qss
