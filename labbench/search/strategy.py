@@ -39,7 +39,7 @@ def make_sampler(spec: Any):
     if name == "random":
         return optuna.samplers.RandomSampler(seed=seed)
     if name == "grid":
-        return _GridSampler(spec.space.grid(), seed=seed)
+        return _grid_sampler(spec.space.grid(), seed)
     if name == "qmc":
         _needs(spec, "scipy", "qmc")
         return optuna.samplers.QMCSampler(seed=seed, scramble=True, warn_independent_sampling=False)
@@ -50,21 +50,17 @@ def make_sampler(spec: Any):
                     "qmc or cmaes")
 
 
-def _grid_sampler_class():
+def _grid_sampler(grid: dict, seed: int):
+    """Optuna's grid sampler calls ``study.stop()`` once the grid is used up, which raises outside
+    ``optimize`` (and leaves the trial RUNNING); the runner checks ``is_exhausted`` before every
+    ask instead, so that call is dropped."""
     import optuna
 
     class AskTellGridSampler(optuna.samplers.GridSampler):
-        """Optuna's grid sampler calls ``study.stop()`` once the grid is used up, which raises
-        outside ``optimize``; the runner checks ``is_exhausted`` before every ask instead."""
-
         def after_trial(self, study, trial, state, values) -> None:
             return None
 
-    return AskTellGridSampler
-
-
-def _GridSampler(*args, **kwargs):
-    return _grid_sampler_class()(*args, **kwargs)
+    return AskTellGridSampler(grid, seed=seed)
 
 
 def _needs(spec: Any, module: str, sampler: str) -> None:

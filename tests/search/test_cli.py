@@ -107,7 +107,7 @@ def test_quiet_prints_no_progress_and_optuna_logs_follow_verbosity(tmp_path, cap
     out, err = capsys.readouterr()
     assert "trial 0" not in err and "[I " not in err     # no progress, no Optuna default handler
     assert "winner: trial" in out
-    assert main(["-v", "run", str(spec), "--trials", "1", "--out", str(tmp_path / "o")]) == 0
+    assert main(["-v", "run", str(spec), "--trials", "1", "--fresh", "--out", str(tmp_path / "o")]) == 0
     err = capsys.readouterr().err
     assert "INFO optuna" in err and "[I " not in err      # Optuna's lines, through our handler
 

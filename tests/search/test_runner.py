@@ -216,3 +216,47 @@ def test_time_budget_stops_asking(tmp_path):
     assert outcome.reason == "time"
     assert 0 < outcome.trials_run < 10_000
     assert math.isfinite(outcome.best_value)
+
+
+FAULTS = '''
+# Injected into the spawned worker processes of one test only (through PYTHONPATH).
+import os
+import labbench.search.objective as objective
+
+_real = objective.run_trial
+
+
+def run_trial(prepared, settings, **kw):
+    if settings["hidden"] == [5]:
+        raise TypeError("an injected bug")
+    if settings["hidden"] == [6]:
+        os._exit(3)
+    return _real(prepared, settings, **kw)
+
+
+objective.run_trial = run_trial
+'''
+
+
+def test_worker_bugs_and_crashes_fail_the_trial_with_a_notice_and_the_search_goes_on(
+        tmp_path, monkeypatch):
+    inject = tmp_path / "inject"
+    inject.mkdir()
+    (inject / "sitecustomize.py").write_text(FAULTS)
+    monkeypatch.setenv("PYTHONPATH", str(inject))
+    iris_csv(tmp_path)
+    space = "learning_rate = 0.01\nhidden_layers = 1\nhidden_units = { choices = [5, 6, 7] }\n" \
+            "epochs = 2"
+    spec = write_spec(tmp_path, trials=3, sampler="grid", space=space)
+    db = tmp_path / "s.db"
+    outcome, events = run(spec, db)
+    by_units = {t.params["units_1"]: t for t in load(db).trials}
+    assert by_units[5].state.name == "FAIL"
+    assert "internal error" in by_units[5].user_attrs["end_reason"]
+    assert "TypeError: an injected bug" in by_units[5].user_attrs["end_reason"]
+    assert by_units[6].state.name == "FAIL"
+    assert "exit code 3" in by_units[6].user_attrs["end_reason"]
+    assert by_units[7].state.name == "COMPLETE"          # on a fresh worker after the crash
+    notices = " ".join(n.text for n in events.of(ev.Notice))
+    assert "internal error" in notices and "stopped unexpectedly" in notices
+    assert outcome.reason == "budget"
