@@ -147,6 +147,9 @@ def scaling(folder: Path, trials: int) -> None:
 
 
 def main() -> int:
+    import logging
+
+    logging.getLogger("labbench").setLevel(logging.ERROR)   # the digits' blank pixels warn
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--trials", type=int, default=200)
     parser.add_argument("--scaling-trials", type=int, default=24)
