@@ -169,9 +169,6 @@ def test_kinds_are_built_from_toml_values():
 
 
 def test_settings_to_config():
-    nets = pytest.importorskip("labbench.nets")
-    if not hasattr(nets, "NetConfig"):
-        pytest.skip("labbench.nets not written yet")   # TEMP until the nets package lands
     config = settings_to_config({"hidden": [8, 4], "activation": "tanh", "optimizer": "momentum",
                                  "learning_rate": 0.01, "momentum": 0.8, "l2": 1e-4,
                                  "batch_size": 16, "epochs": 3}, dtype="float64")
