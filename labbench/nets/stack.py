@@ -1,0 +1,321 @@
+"""``StackTrainer``: m networks of one shape trained together, one batched matmul per step.
+
+Members are the k fold models of a trial, or seeds × folds of one setting. All parameters live
+in one (m, P) block (``layout.py``); a step runs ``np.matmul`` on (m, batch, width) arrays, so the
+Python overhead of a step is paid once for the whole stack.
+
+Epochs and ragged members. An epoch is one pass over each member's own training rows, shuffled
+by that member's own generator. Each epoch the rows are copied, in their shuffled order, into a
+contiguous (m, N, d + 1) block (N = the longest member; a column of ones carries the bias), so a
+batch is a plain slice. Batches are [0, B), [B, 2B), ... of that block; every member takes the same
+number of steps, ceil(N / B). A member with fewer rows sees a short (or empty) last batch: the
+output error of its padded rows is multiplied by zero, its gradient is divided by its own row
+count, and in a step where it has no rows at all its parameters and optimiser state stay as they
+are (an Adam member counts only the steps it took). A one-member stack is therefore exactly the
+plain single-network computation, and a member of a stack follows the same path as the same
+member trained alone (see tests/nets/test_stack.py).
+
+Randomness: member i draws its initial weights and then one permutation per epoch from
+``numpy.random.default_rng(seeds[i])``, nothing else, so results are bit-for-bit reproducible.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass
+from typing import Callable, Sequence
+
+import numpy as np
+
+from labbench.errors import DivergenceError
+from labbench.nets.activations import ACTIVATIONS
+from labbench.nets.config import EpochScores, NetConfig
+from labbench.nets.init import init_network
+from labbench.nets.layout import Layout
+from labbench.nets.losses import OUTPUT_FOR_TASK, TASKS, encode_targets, output_for
+from labbench.nets.metrics import check_metric, compute, default_metric
+from labbench.nets.optim import make_optimizer
+from labbench.nets.weights import NetWeights
+
+log = logging.getLogger("labbench.nets.stack")
+
+
+class _Buffers:
+    """Work arrays for batches of one width (allocated once, reused every step)."""
+
+    def __init__(self, m: int, width: int, sizes: tuple[int, ...], dtype: np.dtype):
+        hidden, k = sizes[1:-1], sizes[-1]
+        self.h = [np.ones((m, width, fo + 1), dtype) for fo in hidden]   # last column stays 1
+        self.hv = [h[..., :-1] for h in self.h]
+        self.hT = [h.transpose(0, 2, 1) for h in self.h]
+        self.scratch = [np.zeros((m, width, fo), dtype) for fo in hidden]
+        self.dh = [np.zeros((m, width, fo), dtype) for fo in hidden]
+        self.out = np.zeros((m, width, k), dtype)
+        self.out_scratch = np.zeros((m, width, 1), dtype)
+        self.term_scratch = np.zeros((m, width, k), dtype)
+
+
+@dataclass
+class _Step:
+    xb: np.ndarray                   # (m, w, d + 1) slice of the epoch block
+    xbT: np.ndarray
+    yb: np.ndarray                   # (m, w, k)
+    q: np.ndarray                    # (m, w) per-row loss terms
+    buf: _Buffers
+    rowmask: np.ndarray | None       # (m, w, 1) 1/0, None when every member fills the batch
+    scale: float | np.ndarray        # 1 / rows: a float, or (m, 1) when the counts differ
+    active: np.ndarray | None        # (m,) members with any rows, None when all have
+
+
+def _as_list(arrays, what: str) -> list[np.ndarray]:
+    if isinstance(arrays, np.ndarray):
+        raise TypeError(f"{what}: give a sequence of arrays, one per stacked member")
+    return list(arrays)
+
+
+class StackTrainer:
+    def __init__(self, config: NetConfig, task: str, n_outputs: int, X_train: Sequence[np.ndarray],
+                 y_train: Sequence[np.ndarray], X_val: Sequence[np.ndarray] | None = None,
+                 y_val: Sequence[np.ndarray] | None = None, *, seeds: Sequence[int],
+                 metric: str | None = None):
+        if task not in TASKS:
+            raise ValueError(f"task {task!r} is not one of {', '.join(TASKS)}")
+        X_train, y_train = _as_list(X_train, "X_train"), _as_list(y_train, "y_train")
+        seeds = [int(s) for s in seeds]
+        m = len(X_train)
+        if m == 0 or len(y_train) != m or len(seeds) != m:
+            raise ValueError(f"X_train, y_train and seeds need one entry per member (got {m}, {len(y_train)}, {len(seeds)})")
+        k = int(n_outputs)
+        if (task == "multiclass") != (k > 1) or (task == "multiclass" and k < 2):
+            raise ValueError(f"n_outputs={k} does not fit a {task} task (1 for regression and binary, C >= 2 classes)")
+        self.config, self.task, self.n_outputs, self.seeds = config, task, k, tuple(seeds)
+        self.dtype = dtype = np.dtype(config.dtype)
+        d = int(np.shape(X_train[0])[1])
+        for i, (x, y) in enumerate(zip(X_train, y_train)):
+            if np.ndim(x) != 2 or np.shape(x)[1] != d or np.shape(x)[0] == 0 or len(y) != np.shape(x)[0]:
+                raise ValueError(f"member {i}: training X must be (n >= 1, {d}) with one target per row")
+        self._act = ACTIVATIONS[config.activation]
+        self._out = output_for(task)
+        self._layout = layout = Layout((d, *config.hidden, k))
+        self.n_members, self.n_features = m, d
+
+        # parameters: drawn per member from its own generator, then one (m, P) block
+        self._rngs = [np.random.default_rng(s) for s in seeds]
+        self._params = np.empty((m, layout.size), dtype)
+        for i, rng in enumerate(self._rngs):
+            self._params[i] = layout.pack(init_network(rng, layout.sizes, config.init_scheme))
+        self._W = layout.views(self._params)
+        self._WT = [w[:, :-1, :].transpose(0, 2, 1) for w in self._W]
+        self._grad = np.zeros_like(self._params)
+        self._gW = layout.views(self._grad)
+        self._l2 = float(config.l2)
+        self._l2w = (layout.weight_mask() * self._l2).astype(dtype)
+        self._l2tmp = np.zeros_like(self._params)
+        self._optimizer = make_optimizer(config, self._params)
+
+        # training rows, with a column of ones, and the epoch block they are shuffled into
+        self._n = np.array([np.shape(x)[0] for x in X_train], dtype=np.int64)
+        self._X = [self._augment(x) for x in X_train]
+        self._Y = [encode_targets(task, y, k, dtype) for y in y_train]
+        n_max = int(self._n.max())
+        self._Xe = np.zeros((m, n_max, d + 1), dtype)
+        self._Xe[..., d] = 1
+        self._Ye = np.zeros((m, n_max, k), dtype)
+        self._q = np.zeros((m, n_max), dtype)
+        self._steps = self._plan_steps(min(int(config.batch_size), n_max))
+
+        # validation rows: one padded block, one batched forward pass per epoch
+        self._has_val = X_val is not None
+        if self._has_val:
+            X_val, y_val = _as_list(X_val, "X_val"), _as_list(y_val, "y_val")
+            if len(X_val) != m or len(y_val) != m:
+                raise ValueError("X_val and y_val need one entry per member")
+            self._nv = [int(np.shape(x)[0]) for x in X_val]
+            self._Xv = np.zeros((m, max(self._nv), d + 1), dtype)
+            self._Xv[..., d] = 1
+            for i, x in enumerate(X_val):
+                self._Xv[i, :self._nv[i], :d] = x
+            self._val_buf = _Buffers(m, max(self._nv), self._layout.sizes, dtype)
+            self._yv = [np.asarray(y) for y in y_val]
+            self._Yv = [encode_targets(task, y, k, np.float64) for y in y_val]
+            self.metric = metric or default_metric(task)
+            check_metric(self.metric, task)
+        else:
+            self.metric = metric
+        self.epoch = 0
+
+    # ---------------------------------------------------------------- set-up helpers
+    def _augment(self, x) -> np.ndarray:
+        x = np.asarray(x)
+        out = np.empty((x.shape[0], x.shape[1] + 1), self.dtype)
+        out[:, :-1] = x
+        out[:, -1] = 1
+        return out
+
+    def _plan_steps(self, batch: int) -> list[_Step]:
+        m, n, dtype = self.n_members, self._n, self.dtype
+        n_max = self._Xe.shape[1]
+        buffers: dict[int, _Buffers] = {}
+        steps = []
+        for start in range(0, n_max, batch):
+            stop = min(start + batch, n_max)
+            width = stop - start
+            if width not in buffers:
+                buffers[width] = _Buffers(m, width, self._layout.sizes, dtype)
+            counts = np.clip(n - start, 0, width)
+            rowmask, active = None, None
+            scale: float | np.ndarray = 1.0 / width
+            if np.any(counts != width):
+                rowmask = (np.arange(width)[None, :] < counts[:, None]).astype(dtype)[..., None]
+                scale = (1.0 / np.maximum(counts, 1) * (counts > 0)).astype(dtype).reshape(m, 1)
+                if np.any(counts == 0):
+                    active = counts > 0
+            xb = self._Xe[:, start:stop]
+            steps.append(_Step(xb, xb.transpose(0, 2, 1), self._Ye[:, start:stop], self._q[:, start:stop],
+                               buffers[width], rowmask, scale, active))
+        return steps
+
+    # ---------------------------------------------------------------- the computation
+    def _forward(self, a: np.ndarray, buf: _Buffers) -> np.ndarray:
+        """Forward pass of an (m, w, d + 1) batch into ``buf``; returns the output buffer."""
+        matmul, W = np.matmul, self._W
+        act_forward = self._act.forward
+        last = len(W) - 1
+        for j in range(last):
+            z = buf.hv[j]
+            matmul(a, W[j], out=z)
+            act_forward(z, buf.scratch[j])
+            a = buf.h[j]
+        out = buf.out
+        matmul(a, W[last], out=out)
+        self._out.forward(out, buf.out_scratch)
+        return out
+
+    def _backprop(self, st: _Step) -> None:
+        """Forward and backward pass of one batch; raw gradient sums (+ α W) land in ``_grad``."""
+        matmul = np.matmul
+        W, gW, WT, buf = self._W, self._gW, self._WT, st.buf
+        act_backward = self._act.backward
+        last = len(W) - 1
+        out = self._forward(st.xb, buf)
+        np.subtract(out, st.yb, out=out)                 # error at the output pre-activation
+        if st.rowmask is not None:
+            np.multiply(out, st.rowmask, out=out)        # padded rows contribute nothing
+        self._out.row_terms(out, st.q, buf.term_scratch)
+        delta = out
+        for j in range(last, 0, -1):
+            matmul(buf.hT[j - 1], delta, out=gW[j])
+            back = buf.dh[j - 1]
+            matmul(delta, WT[j], out=back)
+            act_backward(buf.hv[j - 1], back, buf.scratch[j - 1])
+            delta = back
+        matmul(st.xbT, delta, out=gW[0])
+        if self._l2:
+            np.multiply(self._params, self._l2w, out=self._l2tmp)
+            np.add(self._grad, self._l2tmp, out=self._grad)
+
+    def _shuffle(self) -> None:
+        for i, rng in enumerate(self._rngs):
+            n = int(self._n[i])
+            perm = rng.permutation(n)
+            np.take(self._X[i], perm, axis=0, out=self._Xe[i, :n], mode="clip")
+            np.take(self._Y[i], perm, axis=0, out=self._Ye[i, :n], mode="clip")
+
+    def _train_epoch(self) -> None:
+        backprop, step, grad = self._backprop, self._optimizer.step, self._grad
+        for st in self._steps:
+            backprop(st)
+            step(grad, st.scale, st.active)
+
+    def _member_output(self, out: np.ndarray) -> np.ndarray:
+        return out[:, 0] if self.task != "multiclass" else out
+
+    def _score(self) -> EpochScores:
+        m = self.n_members
+        train = np.array([self._out.epoch_loss(self._q[i, :self._n[i]], self.dtype) for i in range(m)])
+        val_loss = val_metric = None
+        if self._has_val:
+            outs = self._forward(self._Xv, self._val_buf)
+            val_loss = np.empty(m)
+            val_metric = np.empty(m)
+            for i in range(m):
+                out = outs[i, :self._nv[i]]
+                val_loss[i] = self._out.loss(out, self._Yv[i])
+                if np.all(np.isfinite(out)):
+                    val_metric[i] = compute(self.metric, self._yv[i], self._member_output(out), self.task,
+                                            self.n_outputs if self.task == "multiclass" else 2)
+                else:
+                    val_metric[i] = np.nan
+        return EpochScores(self.epoch, train, val_loss, val_metric)
+
+    def _check_finite(self, scores: EpochScores) -> None:
+        for name, values in (("training loss", scores.train_loss), ("validation loss", scores.val_loss)):
+            if values is None:
+                continue
+            bad = np.flatnonzero(~np.isfinite(values))
+            if bad.size:
+                member = int(bad[0])
+                raise DivergenceError(
+                    f"training diverged at epoch {scores.epoch}: the {name} of model {member + 1} of "
+                    f"{self.n_members} became {values[member]}; lower the learning rate (now "
+                    f"{self.config.learning_rate:g}) or check that the inputs are scaled",
+                    epoch=scores.epoch, member=member,
+                )
+
+    # ---------------------------------------------------------------- public API
+    def run(self, on_epoch: Callable[[EpochScores], object] | None = None) -> list[EpochScores]:
+        """Train up to ``config.epochs`` epochs (continuing from where a previous run stopped).
+
+        ``on_epoch(scores)`` is called after every epoch; returning ``False`` stops training.
+        Raises ``DivergenceError`` when a loss becomes NaN or infinite.
+        """
+        history: list[EpochScores] = []
+        with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+            while self.epoch < self.config.epochs:
+                self.epoch += 1
+                self._shuffle()
+                self._train_epoch()
+                scores = self._score()
+                self._check_finite(scores)
+                history.append(scores)
+                if on_epoch is not None and on_epoch(scores) is False:
+                    log.debug("stopped by the caller after epoch %d", self.epoch)
+                    break
+        return history
+
+    def weights(self, member: int) -> NetWeights:
+        return NetWeights(self._layout.unpack(self._params[member]), self.config.activation,
+                          OUTPUT_FOR_TASK[self.task])
+
+    def set_weights(self, member: int, weights: NetWeights) -> None:
+        """Overwrite one member's parameters (for checks against other libraries, warm starts)."""
+        self._params[member] = self._layout.pack(weights.layers)
+
+    def predict_output(self, member: int, X) -> np.ndarray:
+        return self.weights(member).forward(X)
+
+    def loss_and_gradient(self) -> tuple[np.ndarray, list[tuple[tuple[np.ndarray, np.ndarray], ...]]]:
+        """Full-batch objective and its gradient at the current weights, per member.
+
+        Objective (scikit-learn's MLP convention): mean data loss + α / (2 n) · Σ‖W‖² (biases not
+        penalised). Computed by the same code path as a training step; for checks.
+        """
+        m, n_max = self.n_members, self._Xe.shape[1]
+        X = np.zeros_like(self._Xe)
+        X[..., -1] = 1
+        Y = np.zeros_like(self._Ye)
+        for i in range(m):
+            X[i, :self._n[i]] = self._X[i]
+            Y[i, :self._n[i]] = self._Y[i]
+        q = np.zeros((m, n_max), self.dtype)
+        rowmask = (np.arange(n_max)[None, :] < self._n[:, None]).astype(self.dtype)[..., None]
+        st = _Step(X, X.transpose(0, 2, 1), Y, q, _Buffers(m, n_max, self._layout.sizes, self.dtype),
+                   rowmask, 0.0, None)
+        with np.errstate(over="ignore", under="ignore"):
+            self._backprop(st)
+        penalty = self._l2 * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
+        loss = np.array([self._out.epoch_loss(q[i, :self._n[i]], self.dtype) for i in range(m)])
+        loss += 0.5 * penalty / self._n
+        grads = [self._layout.unpack(self._grad[i].astype(np.float64) / self._n[i]) for i in range(m)]
+        return loss, grads
