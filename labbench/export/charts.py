@@ -67,6 +67,16 @@ def format_tick(value: float, step: float) -> str:
     return f"{value:.{decimals}f}"
 
 
+def fit_text(text: str, room: float) -> tuple[str, int]:
+    """The text and font scale that fit ``room`` pixels: scale 2, else 1, else shortened."""
+    if font.text_size(text, SCALE)[0] <= room:
+        return text, SCALE
+    if font.text_size(text, 1)[0] <= room:
+        return text, 1
+    keep = max(int(room // font.ADVANCE) - 2, 1)
+    return text[:keep] + "..", 1
+
+
 def _finite(values: Sequence[float]) -> np.ndarray:
     arr = np.asarray(values, dtype=float).ravel()
     return arr[np.isfinite(arr)]
@@ -92,6 +102,8 @@ def _make_axis(values: np.ndarray, log: bool, categories: Sequence[str] | None,
         ticks = [10.0**k for k in range(a, b + 1)]
         step = max(1, math.ceil(len(ticks) / 7))
         ticks = ticks[::step]
+        if b - a <= 2:  # few decades: 2× and 5× ticks too, where the data are
+            ticks = sorted(m * t for t in ticks for m in (1, 2, 5) if lo / 1.5 <= m * t <= hi * 1.5)
         return _Axis(math.log10(lo) - 0.05 * (b - a), math.log10(hi) + 0.05 * (b - a), log=True,
                      ticks=[math.log10(t) for t in ticks], labels=[f"{t:g}" for t in ticks])
     if hi == lo:
@@ -143,8 +155,10 @@ def xy_chart(series: Sequence[Series], *, x_label: str, y_label: str, x_log: boo
         canvas.text(x, py1 + 8, label, INK, SCALE, anchor="center")
     canvas.rect(px0, py0, px0, py1, AXIS)
     canvas.rect(px0, py1, px1, py1, AXIS)
-    canvas.text((px0 + px1) / 2, height - 18, x_label, INK, SCALE, anchor="center")
-    canvas.text(4, (py0 + py1) / 2, y_label, INK, SCALE, anchor="center", vertical=True)
+    text, scale = fit_text(x_label, px1 - px0)
+    canvas.text((px0 + px1) / 2, height - 18, text, INK, scale, anchor="center")
+    text, scale = fit_text(y_label, py1 - py0 + top // 2)
+    canvas.text(4 if scale == SCALE else 8, (py0 + py1) / 2, text, INK, scale, anchor="center", vertical=True)
 
     for s in series:
         x = to_px(s.x, ax_x, px0, px1, False)
@@ -158,10 +172,12 @@ def xy_chart(series: Sequence[Series], *, x_label: str, y_label: str, x_log: boo
             canvas.markers(x, y, s.color, size=3 + 2 * s.width, hollow=s.style == "hollow", clip=clip)
 
     lx = px0 + 4
+    room = sum(20 + font.text_size(s.label, SCALE)[0] + 18 for s in legend)
+    scale = SCALE if room <= width - lx else 1
     for s in legend:
         canvas.rect(lx, 8, lx + 14, 20, s.color)
-        canvas.text(lx + 20, 7, s.label, INK, SCALE)
-        lx += 20 + font.text_size(s.label, SCALE)[0] + 18
+        canvas.text(lx + 20, 7 if scale == SCALE else 11, s.label, INK, scale)
+        lx += 20 + font.text_size(s.label, scale)[0] + 18
     return canvas.to_png()
 
 

@@ -107,7 +107,16 @@ def data_section(data: ReportData) -> str:
     columns = d.get("columns")
     if columns:
         parts.append(f"<p>{len(columns)} column(s) in the file as it is now ({num(d.get('file_rows'))} rows):</p>")
-        parts.append(table(("column", "kind as read"), sorted(columns.items(), key=lambda kv: list(columns).index(kv[0]))))
+        spec_data = data.spec.get("data") or {}
+        ignored = set(spec_data.get("ignore") or [])
+
+        def role(col: str) -> str:
+            if col == spec_data.get("target"):
+                return "target"
+            return "ignored" if col in ignored else "input"
+
+        parts.append(table(("column", "kind as read", "role"),
+                           [(col, kind, role(col)) for col, kind in columns.items()]))
     elif d.get("path"):
         parts.append(note("The data file is not reachable from here, so its columns are not listed."))
     return "".join(parts)
@@ -150,7 +159,7 @@ def trials_section(data: ReportData) -> str:
     counts = _counts(data)
     parts = [table(("state", "trials"), [(k, v) for k, v in counts.items()], numeric=(1,))]
     parts.append(figure(plots.score_by_trial(data), "score by trial",
-                        f"Cross-validated {plots.metric_label(data)} of each complete trial, and the best so far."))
+                        f"Cross-validated {plots.metric_label(data, long=True)} of each complete trial, and the best so far."))
     parts.append(figure(plots.learning_curves(data), "learning curves",
                         "Validation loss by epoch (mean over the folds) of each trial; the winner in bold."))
     importance = (data.winner or {}).get("importance")
@@ -219,7 +228,7 @@ def winner_section(data: ReportData) -> str:
     else:
         parts.append("<p>Seed spread: not measured.</p>")
     runner = w.get("runner_up")
-    if runner and runner.get("text"):
+    if runner and runner.get("text") and runner["text"] not in (w.get("warnings") or []):
         parts.append(f"<p>{esc(runner['text'])}</p>")
     for warning in w.get("warnings") or []:
         parts.append(note(warning))

@@ -14,8 +14,10 @@ MAX_CURVES = 80
 BEST, OTHER, PRUNED = PALETTE[1], PALETTE[0], FAINT
 
 
-def metric_label(data: ReportData) -> str:
+def metric_label(data: ReportData, long: bool = False) -> str:
     metric = data.attrs.get("metric") or "score"
+    if not long:
+        return metric
     arrow = "higher is better" if data.direction == "maximize" else "lower is better"
     return f"{metric} ({arrow})"
 
@@ -67,11 +69,12 @@ def learning_curves(data: ReportData) -> bytes | None:
     for t in winner:
         series.append(Series(t.curve["epoch"], _nan(t.curve["val_loss"]), BEST, "line", width=3,
                              label=f"trial {t.number} (winner)"))
-    if others:
+    if any(t.state == "complete" for t in others):
         series.insert(0, Series([], [], OTHER, "line", label="other complete trials"))
-        series.insert(1, Series([], [], PRUNED, "line", label="pruned / stopped"))
+    if any(t.state != "complete" for t in others):
+        series.insert(0, Series([], [], PRUNED, "line", label="pruned / stopped"))
     all_values = np.concatenate([np.asarray(_nan(t.curve["val_loss"]), dtype=float) for t in rows])
-    return xy_chart(series, x_label="epoch", y_label="validation loss (fold mean)",
+    return xy_chart(series, x_label="epoch", y_label="validation loss",
                     y_range=_robust_range(all_values))
 
 
@@ -117,4 +120,4 @@ def setting_chart(data: ReportData, name: str) -> bytes | None:
         series.append(Series([xs[i] for i in mark], [ys[i] for i in mark], BEST, "hollow", width=4,
                              label="winner"))
     return xy_chart(series, x_label=name + (" (log scale)" if log else ""), y_label=metric_label(data),
-                    x_log=log and not categorical, x_categories=cats, height=260)
+                    x_log=log and not categorical, x_categories=cats, height=280)
