@@ -27,6 +27,7 @@ log = logging.getLogger("labbench.data")
 
 DELIMITERS = (",", ";", "\t")
 _SAMPLE_RECORDS = 100          # records looked at to choose the delimiter
+_UNNAMED = "\x00unnamed:"     # placeholder for a blank header cell (cannot occur in a text file)
 _DELIM_NAMES = {",": "','", ";": "';'", "\t": "tab"}
 
 
@@ -78,6 +79,9 @@ def read_file(path: str | Path) -> ReadResult:
         raise DataError(f"{name}: this is not a text CSV file (it holds binary bytes; a spreadsheet?); "
                         "save it as CSV (comma, semicolon or tab separated)")
 
+    if "\r" in text and "\n" not in text:       # old Mac line ends: a lone CR per line
+        text = text.replace("\r", "\n")
+        scan_bytes = text.encode("utf-8")
     delimiter = _choose_delimiter(text)
     header = _header_fields(text, delimiter)
     names = _check_header(header, name)
@@ -99,6 +103,7 @@ def read_file(path: str | Path) -> ReadResult:
     lines = lines[1:]
     if len(frame) != len(lines):  # a quirk the scan did not foresee: fall back to row numbers
         lines = np.arange(2, len(frame) + 2, dtype=np.int64)
+    frame = _unnamed_columns(frame, name, warnings)
     if delimiter == ";":
         frame = _decimal_commas(frame)
     for text_ in warnings:
@@ -168,20 +173,20 @@ def _header_fields(text: str, delimiter: str) -> list[str]:
 
 
 def _check_header(header: list[str], name: str) -> list[str]:
-    for i, col in enumerate(header, start=1):
-        if not col:
-            raise DataError(f"{name}: column {i} has no name in the header row (line 1); "
-                            "give every column a name")
+    named = [col for col in header if col]
+    if not named:
+        raise DataError(f"{name}: the header row (line 1) has no column names; add a name for each column")
     numbers = 0
-    for col in header:
+    for col in named:
         try:
             float(col)
             numbers += 1
         except ValueError:
             pass
-    if numbers == len(header):
-        raise DataError(f"{name}: line 1 holds numbers ({show(header[0])}, ...), not column names; "
+    if numbers == len(named):
+        raise DataError(f"{name}: line 1 holds numbers ({show(named[0])}, ...), not column names; "
                         "add a header row with a name for each column")
+    header = [col or f"{_UNNAMED}{i}" for i, col in enumerate(header, start=1)]
     seen: dict[str, int] = {}
     for i, col in enumerate(header, start=1):
         if col in seen:
@@ -212,12 +217,9 @@ def _scan_records(data: bytes, delimiter: str) -> tuple[np.ndarray, np.ndarray]:
         ends = np.append(ends, a.size)
     starts = np.concatenate(([0], ends[:-1] + 1))
     n_delims = np.searchsorted(delims, ends) - np.searchsorted(delims, starts)
-    length = ends - starts
-    if a.size:
-        last = np.clip(ends - 1, 0, a.size - 1)
-        blank = (length - ((length > 0) & (a[last] == 13))) == 0
-    else:
-        blank = np.zeros(0, dtype=bool)
+    # blank: nothing but spaces and line-end bytes (pandas skips such lines too)
+    content = np.flatnonzero((a != 32) & (a != 13) & (a != 10))
+    blank = (np.searchsorted(content, ends) - np.searchsorted(content, starts)) == 0
     line = np.searchsorted(newlines, starts) + 1
     keep = ~blank
     return (n_delims + 1)[keep].astype(np.int64), line[keep].astype(np.int64)
@@ -250,6 +252,18 @@ def _ragged_error(name: str, line: int, got: int, width: int, delimiter: str) ->
         f"fix that row (a missing or extra {_DELIM_NAMES[delimiter]} delimiter, or a value "
         "containing it that needs double quotes)"
     )
+
+
+def _unnamed_columns(frame: pd.DataFrame, name: str, warnings: list[str]) -> pd.DataFrame:
+    """A blank header cell over an empty column (a trailing delimiter) is dropped; over data, refused."""
+    unnamed = [c for c in frame.columns if str(c).startswith(_UNNAMED)]
+    for col in unnamed:
+        i = int(str(col)[len(_UNNAMED):])
+        if frame[col].notna().any():
+            raise DataError(f"{name}: column {i} has no name in the header row (line 1); "
+                            "give every column a name")
+        warnings.append(f"{name}: column {i} has no name and no values (a trailing delimiter?); ignored it")
+    return frame.drop(columns=unnamed) if unnamed else frame
 
 
 def _decimal_commas(frame: pd.DataFrame) -> pd.DataFrame:

@@ -124,3 +124,23 @@ def test_large_file_reads_and_agrees_with_pandas(tmp_path):
     got = read_file(path)
     pd.testing.assert_frame_equal(got.frame, pd.read_csv(path))
     assert got.lines[-1] == len(frame) + 1
+
+
+def test_whitespace_only_lines_are_skipped_like_pandas_does(tmp_path):
+    text = "a,b,y\n1,2,p\n   \n3,4,q\n"
+    got = read_file(write(tmp_path, text))
+    pd.testing.assert_frame_equal(got.frame, pd.read_csv(io.StringIO(text), skipinitialspace=True))
+    assert got.lines.tolist() == [2, 4]
+
+
+def test_old_mac_line_ends(tmp_path):
+    got = read_csv(write(tmp_path, "a,b,y\r1,2,p\r3,4,q\r"))
+    assert list(got.columns) == ["a", "b", "y"] and got["b"].tolist() == [2, 4]
+
+
+def test_trailing_delimiter_column_is_ignored_with_a_warning(tmp_path):
+    got = read_file(write(tmp_path, "a,b,\n1,2,\n3,4,\n"))
+    assert list(got.frame.columns) == ["a", "b"]
+    assert any("column 3 has no name and no values" in w for w in got.warnings)
+    with pytest.raises(DataError, match="has no column names"):
+        read_csv(write(tmp_path, ",,\n1,2,3\n", "blank_header.csv"))
