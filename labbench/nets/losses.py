@@ -7,10 +7,11 @@ error is halved, probabilities are clipped to [eps, 1 - eps] of the working dtyp
 
 An ``Output`` offers:
 
-* ``forward(z, scratch)``   in place on the (m, b, k) pre-activations of a batch;
-* ``row_terms(delta, q, scratch)``  per-row quantity written to ``q`` (m, b) during training,
-  from which ``epoch_loss(q_rows, dtype)`` gives the mean loss of those rows; this keeps the
-  per-step cost to one or two numpy calls;
+* ``forward(z, scratch)``   steps (see ``activations.py``) applying the output activation in place
+  to the (m, b, k) pre-activations of a batch;
+* ``row_terms(delta, q, scratch)``  steps writing a per-row quantity to ``q`` (m, b) during
+  training, from which ``epoch_loss(q_rows, dtype)`` gives the mean loss of those rows; this keeps
+  the per-step cost of the training loss to one or two numpy calls;
 * ``apply(z)``  out of place, for prediction;
 * ``loss(out, target)``  the mean loss of the rows of one member, (n, k) arrays.
 """
@@ -22,7 +23,7 @@ from typing import Callable
 
 import numpy as np
 
-from labbench.nets.activations import sigmoid, sigmoid_inplace
+from labbench.nets.activations import Steps, sigmoid, sigmoid_steps
 
 TASKS = ("regression", "binary", "multiclass")
 
@@ -31,8 +32,8 @@ TASKS = ("regression", "binary", "multiclass")
 class Output:
     name: str                      # "identity" | "sigmoid" | "softmax"
     loss_name: str                 # for messages and docs
-    forward: Callable[[np.ndarray, np.ndarray], None]
-    row_terms: Callable[[np.ndarray, np.ndarray, np.ndarray], None]
+    forward: Callable[[np.ndarray, np.ndarray], Steps]
+    row_terms: Callable[[np.ndarray, np.ndarray, np.ndarray], Steps]
     epoch_loss: Callable[[np.ndarray, np.dtype], float]
     apply: Callable[[np.ndarray], np.ndarray]
     loss: Callable[[np.ndarray, np.ndarray], float]
@@ -43,12 +44,12 @@ def _eps(dtype: np.dtype) -> float:
 
 
 # identity + squared error --------------------------------------------------------------------
-def _identity_forward(z: np.ndarray, scratch: np.ndarray) -> None:
-    return None
+def _identity_forward(z: np.ndarray, scratch: np.ndarray) -> Steps:
+    return []
 
 
-def _identity_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> None:
-    np.square(delta[..., 0], out=q)
+def _identity_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> Steps:
+    return [(np.square, (delta[..., 0], q))]
 
 
 def _identity_epoch(q: np.ndarray, dtype: np.dtype) -> float:
@@ -61,12 +62,12 @@ def _squared_loss(out: np.ndarray, target: np.ndarray) -> float:
 
 
 # sigmoid + binary log loss: |p - y| = 1 - P(true class) -------------------------------------
-def _sigmoid_forward(z: np.ndarray, scratch: np.ndarray) -> None:
-    sigmoid_inplace(z)
+def _sigmoid_forward(z: np.ndarray, scratch: np.ndarray) -> Steps:
+    return sigmoid_steps(z)
 
 
-def _sigmoid_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> None:
-    np.abs(delta[..., 0], out=q)
+def _sigmoid_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> Steps:
+    return [(np.abs, (delta[..., 0], q))]
 
 
 def _log_true(p_true: np.ndarray, dtype: np.dtype) -> float:
@@ -88,21 +89,23 @@ def _binary_log_loss(out: np.ndarray, target: np.ndarray) -> float:
 
 
 # softmax + cross-entropy: sum |P - Y| over classes = 2 (1 - P(true class)) -------------------
-def _softmax_forward(z: np.ndarray, scratch: np.ndarray) -> None:
+def _softmax_forward(z: np.ndarray, scratch: np.ndarray) -> Steps:
     # scratch: (m, b, 1). Subtract the row maximum (column by column: faster than a reduction
     # over a short last axis), exponentiate, divide by the row sum (a matmul with ones).
     k = z.shape[-1]
+    steps: Steps = []
     if k <= 8:
         mx = scratch[..., 0]
-        np.maximum(z[..., 0], z[..., 1], out=mx)
-        for c in range(2, k):
-            np.maximum(mx, z[..., c], out=mx)
+        steps.append((np.maximum, (z[..., 0], z[..., 1], mx)))
+        steps += [(np.maximum, (mx, z[..., c], mx)) for c in range(2, k)]
     else:
-        np.max(z, axis=-1, keepdims=True, out=scratch)
-    np.subtract(z, scratch, out=z)
-    np.exp(z, out=z)
-    np.matmul(z, _ones_column(k, z.dtype), out=scratch)
-    np.divide(z, scratch, out=z)
+        steps.append((_row_max, (z, scratch)))
+    return steps + [(np.subtract, (z, scratch, z)), (np.exp, (z, z)),
+                    (np.matmul, (z, _ones_column(k, z.dtype), scratch)), (np.divide, (z, scratch, z))]
+
+
+def _row_max(z: np.ndarray, out: np.ndarray) -> None:
+    np.max(z, axis=-1, keepdims=True, out=out)
 
 
 _ONES: dict[tuple[int, str], np.ndarray] = {}
@@ -115,10 +118,10 @@ def _ones_column(k: int, dtype: np.dtype) -> np.ndarray:
     return _ONES[key]
 
 
-def _softmax_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> None:
-    # scratch: (m, b, k); q gets sum_c |P - Y| (the caller halves it at the end of the epoch)
-    np.abs(delta, out=scratch)
-    np.matmul(scratch, _ones_column(delta.shape[-1], delta.dtype), out=q[..., None])
+def _softmax_terms(delta: np.ndarray, q: np.ndarray, scratch: np.ndarray) -> Steps:
+    # scratch: (m, b, k); q gets sum_c |P - Y| (halved when the epoch's loss is formed)
+    return [(np.abs, (delta, scratch)),
+            (np.matmul, (scratch, _ones_column(delta.shape[-1], delta.dtype), q[..., None]))]
 
 
 def _softmax_epoch(q: np.ndarray, dtype: np.dtype) -> float:

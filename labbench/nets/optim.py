@@ -9,68 +9,68 @@ is a dozen numpy calls whatever the depth of the network. Update rules follow sc
 * adam:     m = β1 m + (1-β1) g ; v = β2 v + (1-β2) g² ;
             p -= lr · sqrt(1-β2^t) / (1-β1^t) · m / (sqrt(v) + ε)   (β1 .9, β2 .999, ε 1e-8)
 
-``step(grad, scale, active)`` receives the raw gradient sum of the batch (overwritten) and
-``scale`` = 1 / rows of the batch, a float or an (m, 1) array when members had different row
-counts. ``active`` (bool (m,), or None for all) marks members that had rows at all: the others
-keep their parameters, optimiser state and step count unchanged.
+Like the activations, an optimiser describes its update as a list of ``(numpy function,
+arguments)`` steps (``steps(grad, scale, j)``) that the trainer builds once per batch position ``j``
+of an epoch and runs every epoch. ``grad`` holds the raw gradient sum of the batch (it is
+overwritten); ``scale`` = 1 / rows of the batch, a float, or an (m, 1) array when members had
+different row counts. ``active`` (bool (steps, m)) tells which members have rows at each batch
+position: a member without rows keeps its parameters and state (the trainer saves and restores
+them) and an Adam member counts only the steps it took. ``begin_epoch()`` runs before each epoch.
 
-To add an optimiser: subclass ``Optimizer``, implement ``_update`` and ``_state`` and register it in
-``OPTIMIZERS`` (and its name in ``config.OPTIMIZER_NAMES``).
+To add an optimiser: subclass ``Optimizer``, implement ``steps`` (and ``state``/``begin_epoch`` if
+it keeps state), register it in ``OPTIMIZERS`` and its name in ``config.OPTIMIZER_NAMES``.
 """
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
+from labbench.nets.activations import Steps
 from labbench.nets.config import NetConfig
 
 
 class Optimizer:
-    def __init__(self, params: np.ndarray, config: NetConfig):
+    def __init__(self, params: np.ndarray, config: NetConfig, active: np.ndarray):
         self.params = params
         self.lr = float(config.learning_rate)
+        self.active = np.asarray(active, dtype=bool)     # (steps per epoch, m)
         self._tmp = np.empty_like(params)
 
-    def _state(self) -> list[np.ndarray]:
+    def state(self) -> list[np.ndarray]:
+        """Arrays whose rows belong to one member each (kept as they are for idle members)."""
         return [self.params]
 
-    def _update(self, grad: np.ndarray, scale, active: np.ndarray | None) -> None:
+    def begin_epoch(self) -> None:
+        return None
+
+    def steps(self, grad: np.ndarray, scale, j: int) -> Steps:
         raise NotImplementedError
 
-    def step(self, grad: np.ndarray, scale, active: np.ndarray | None = None) -> None:
-        if active is None:
-            self._update(grad, scale, None)
-            return
-        idle = ~active
-        saved = [a[idle].copy() for a in self._state()]
-        self._update(grad, scale, active)
-        for array, keep in zip(self._state(), saved):
-            array[idle] = keep
+    def _coef(self, value):
+        return value if np.isscalar(value) else np.asarray(value, dtype=self.params.dtype)
 
 
 class SGD(Optimizer):
-    def _update(self, grad, scale, active):
-        np.multiply(grad, scale * self.lr, out=grad)
-        np.subtract(self.params, grad, out=self.params)
+    def steps(self, grad, scale, j):
+        return [(np.multiply, (grad, self._coef(scale * self.lr), grad)),
+                (np.subtract, (self.params, grad, self.params))]
 
 
 class Momentum(Optimizer):
-    def __init__(self, params, config):
-        super().__init__(params, config)
+    def __init__(self, params, config, active):
+        super().__init__(params, config, active)
         self.mu = float(config.momentum)
         self.velocity = np.zeros_like(params)
 
-    def _state(self):
+    def state(self):
         return [self.params, self.velocity]
 
-    def _update(self, grad, scale, active):
+    def steps(self, grad, scale, j):
         v = self.velocity
-        np.multiply(v, self.mu, out=v)
-        np.multiply(grad, scale * self.lr, out=grad)
-        np.subtract(v, grad, out=v)
-        np.add(self.params, v, out=self.params)
+        return [(np.multiply, (v, self.mu, v)),
+                (np.multiply, (grad, self._coef(scale * self.lr), grad)),
+                (np.subtract, (v, grad, v)),
+                (np.add, (self.params, v, self.params))]
 
 
 class Adam(Optimizer):
@@ -78,50 +78,46 @@ class Adam(Optimizer):
     beta2 = 0.999
     eps = 1e-8
 
-    def __init__(self, params, config):
-        super().__init__(params, config)
+    def __init__(self, params, config, active):
+        super().__init__(params, config, active)
         self.m1 = np.zeros_like(params)
         self.v = np.zeros_like(params)
-        self.t = np.zeros(params.shape[0], dtype=np.int64)   # steps taken, per member
-        self._uniform_t: int | None = 0                       # all members at the same t
+        self.t = np.zeros(params.shape[0], dtype=np.int64)     # steps taken so far, per member
+        width = 1 if self.active.all() else params.shape[0]
+        self._rates = np.zeros((self.active.shape[0], width, 1), dtype=params.dtype)
 
-    def _state(self):
+    def state(self):
         return [self.params, self.m1, self.v]
 
-    def _rate(self, active):
-        b1, b2 = self.beta1, self.beta2
-        if active is None and self._uniform_t is not None:
-            self._uniform_t += 1
-            self.t += 1
-            t = self._uniform_t
-            return self.lr * math.sqrt(1.0 - b2**t) / (1.0 - b1**t)
-        self.t += 1 if active is None else active
-        first = self.t[0]
-        self._uniform_t = int(first) if np.all(self.t == first) else None
-        t = np.maximum(self.t, 1).astype(np.float64)
-        rate = self.lr * np.sqrt(1.0 - b2**t) / (1.0 - b1**t)
-        return rate.astype(self.params.dtype).reshape(-1, 1)
+    def begin_epoch(self):
+        # step count of each member at each batch position of this epoch -> bias-corrected rate
+        t = self.t[None, :] + np.cumsum(self.active, axis=0)
+        self.t = t[-1].copy()
+        t = np.maximum(t[:, :self._rates.shape[1]], 1).astype(np.float64)
+        rates = self.lr * np.sqrt(1.0 - self.beta2**t) / (1.0 - self.beta1**t)
+        self._rates[...] = rates[..., None]
 
-    def _update(self, grad, scale, active):
+    def steps(self, grad, scale, j):
         b1, b2 = self.beta1, self.beta2
         m1, v, tmp, p = self.m1, self.v, self._tmp, self.params
-        rate = self._rate(active)
-        np.multiply(m1, b1, out=m1)
-        np.multiply(grad, scale * (1.0 - b1), out=tmp)
-        np.add(m1, tmp, out=m1)
-        np.multiply(v, b2, out=v)
-        np.multiply(grad, grad, out=grad)
-        np.multiply(grad, (scale * scale) * (1.0 - b2), out=grad)
-        np.add(v, grad, out=v)
-        np.sqrt(v, out=tmp)
-        np.add(tmp, self.eps, out=tmp)
-        np.divide(m1, tmp, out=tmp)
-        np.multiply(tmp, rate, out=tmp)
-        np.subtract(p, tmp, out=p)
+        return [
+            (np.multiply, (m1, b1, m1)),
+            (np.multiply, (grad, self._coef(scale * (1.0 - b1)), tmp)),
+            (np.add, (m1, tmp, m1)),
+            (np.multiply, (v, b2, v)),
+            (np.multiply, (grad, grad, grad)),
+            (np.multiply, (grad, self._coef(scale * scale * (1.0 - b2)), grad)),
+            (np.add, (v, grad, v)),
+            (np.sqrt, (v, tmp)),
+            (np.add, (tmp, self.eps, tmp)),
+            (np.divide, (m1, tmp, tmp)),
+            (np.multiply, (tmp, self._rates[j], tmp)),
+            (np.subtract, (p, tmp, p)),
+        ]
 
 
 OPTIMIZERS: dict[str, type[Optimizer]] = {"sgd": SGD, "momentum": Momentum, "adam": Adam}
 
 
-def make_optimizer(config: NetConfig, params: np.ndarray) -> Optimizer:
-    return OPTIMIZERS[config.optimizer](params, config)
+def make_optimizer(config: NetConfig, params: np.ndarray, active: np.ndarray) -> Optimizer:
+    return OPTIMIZERS[config.optimizer](params, config, active)

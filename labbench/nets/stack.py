@@ -29,7 +29,8 @@ from typing import Callable, Sequence
 import numpy as np
 
 from labbench.errors import DivergenceError
-from labbench.nets.activations import ACTIVATIONS
+from labbench.nets.activations import ACTIVATIONS, Steps
+from labbench.nets.activations import run as run_steps
 from labbench.nets.config import EpochScores, NetConfig
 from labbench.nets.init import init_network
 from labbench.nets.layout import Layout
@@ -54,18 +55,6 @@ class _Buffers:
         self.out = np.zeros((m, width, k), dtype)
         self.out_scratch = np.zeros((m, width, 1), dtype)
         self.term_scratch = np.zeros((m, width, k), dtype)
-
-
-@dataclass
-class _Step:
-    xb: np.ndarray                   # (m, w, d + 1) slice of the epoch block
-    xbT: np.ndarray
-    yb: np.ndarray                   # (m, w, k)
-    q: np.ndarray                    # (m, w) per-row loss terms
-    buf: _Buffers
-    rowmask: np.ndarray | None       # (m, w, 1) 1/0, None when every member fills the batch
-    scale: float | np.ndarray        # 1 / rows: a float, or (m, 1) when the counts differ
-    active: np.ndarray | None        # (m,) members with any rows, None when all have
 
 
 def _as_list(arrays, what: str) -> list[np.ndarray]:
@@ -112,7 +101,6 @@ class StackTrainer:
         self._l2 = float(config.l2)
         self._l2w = (layout.weight_mask() * self._l2).astype(dtype)
         self._l2tmp = np.zeros_like(self._params)
-        self._optimizer = make_optimizer(config, self._params)
 
         # training rows, with a column of ones, and the epoch block they are shuffled into
         self._n = np.array([np.shape(x)[0] for x in X_train], dtype=np.int64)
@@ -123,7 +111,7 @@ class StackTrainer:
         self._Xe[..., d] = 1
         self._Ye = np.zeros((m, n_max, k), dtype)
         self._q = np.zeros((m, n_max), dtype)
-        self._steps = self._plan_steps(min(int(config.batch_size), n_max))
+        self._plan_steps(min(int(config.batch_size), n_max))
 
         # validation rows: one padded block, one batched forward pass per epoch
         self._has_val = X_val is not None
@@ -136,7 +124,9 @@ class StackTrainer:
             self._Xv[..., d] = 1
             for i, x in enumerate(X_val):
                 self._Xv[i, :self._nv[i], :d] = x
-            self._val_buf = _Buffers(m, max(self._nv), self._layout.sizes, dtype)
+            val_buf = _Buffers(m, max(self._nv), self._layout.sizes, dtype)
+            self._val_plan = self._forward_steps(self._Xv, val_buf)
+            self._val_out = val_buf.out
             self._yv = [np.asarray(y) for y in y_val]
             self._Yv = [encode_targets(task, y, k, np.float64) for y in y_val]
             self.metric = metric or default_metric(task)
@@ -153,67 +143,80 @@ class StackTrainer:
         out[:, -1] = 1
         return out
 
-    def _plan_steps(self, batch: int) -> list[_Step]:
+    def _plan_steps(self, batch: int) -> None:
+        """Build, once, the list of numpy calls of a whole epoch (see ``activations.py``)."""
         m, n, dtype = self.n_members, self._n, self.dtype
         n_max = self._Xe.shape[1]
         buffers: dict[int, _Buffers] = {}
-        steps = []
+        positions = []
         for start in range(0, n_max, batch):
             stop = min(start + batch, n_max)
             width = stop - start
             if width not in buffers:
                 buffers[width] = _Buffers(m, width, self._layout.sizes, dtype)
-            counts = np.clip(n - start, 0, width)
-            rowmask, active = None, None
+            positions.append((start, stop, np.clip(n - start, 0, width)))
+        active = np.array([counts > 0 for _, _, counts in positions])
+        self._optimizer = make_optimizer(self.config, self._params, active)
+        plan: Steps = []
+        for j, (start, stop, counts) in enumerate(positions):
+            width = stop - start
+            rowmask = None
             scale: float | np.ndarray = 1.0 / width
-            if np.any(counts != width):
+            if np.any(counts != width):      # a member with fewer rows: mask them, own divisor
                 rowmask = (np.arange(width)[None, :] < counts[:, None]).astype(dtype)[..., None]
                 scale = (1.0 / np.maximum(counts, 1) * (counts > 0)).astype(dtype).reshape(m, 1)
-                if np.any(counts == 0):
-                    active = counts > 0
             xb = self._Xe[:, start:stop]
-            steps.append(_Step(xb, xb.transpose(0, 2, 1), self._Ye[:, start:stop], self._q[:, start:stop],
-                               buffers[width], rowmask, scale, active))
-        return steps
+            plan += self._batch_steps(xb, self._Ye[:, start:stop], self._q[:, start:stop],
+                                      buffers[width], rowmask)
+            update = self._optimizer.steps(self._grad, scale, j)
+            if active[j].all():
+                plan += update
+            else:                            # members without rows keep parameters and state
+                idle = np.flatnonzero(~active[j])
+                for array in self._optimizer.state():
+                    saved = np.empty((idle.size, array.shape[1]), dtype)
+                    plan.append((np.take, (array, idle, 0, saved)))
+                    update.append((_put_rows, (array, idle, saved)))
+                plan += update
+        self._plan = plan
 
     # ---------------------------------------------------------------- the computation
-    def _forward(self, a: np.ndarray, buf: _Buffers) -> np.ndarray:
-        """Forward pass of an (m, w, d + 1) batch into ``buf``; returns the output buffer."""
-        matmul, W = np.matmul, self._W
-        act_forward = self._act.forward
-        last = len(W) - 1
-        for j in range(last):
+    def _forward_steps(self, a: np.ndarray, buf: _Buffers) -> Steps:
+        """Forward pass of an (m, w, d + 1) batch into ``buf`` (the output lands in ``buf.out``)."""
+        W, act = self._W, self._act
+        steps: Steps = []
+        for j in range(len(W) - 1):
             z = buf.hv[j]
-            matmul(a, W[j], out=z)
-            act_forward(z, buf.scratch[j])
+            steps.append((np.matmul, (a, W[j], z)))
+            steps += act.forward(z, buf.scratch[j])
             a = buf.h[j]
-        out = buf.out
-        matmul(a, W[last], out=out)
-        self._out.forward(out, buf.out_scratch)
-        return out
+        steps.append((np.matmul, (a, W[-1], buf.out)))
+        return steps + self._out.forward(buf.out, buf.out_scratch)
 
-    def _backprop(self, st: _Step) -> None:
+    def _batch_steps(self, xb, yb, q, buf: _Buffers, rowmask) -> Steps:
         """Forward and backward pass of one batch; raw gradient sums (+ α W) land in ``_grad``."""
-        matmul = np.matmul
-        W, gW, WT, buf = self._W, self._gW, self._WT, st.buf
-        act_backward = self._act.backward
-        last = len(W) - 1
-        out = self._forward(st.xb, buf)
-        np.subtract(out, st.yb, out=out)                 # error at the output pre-activation
-        if st.rowmask is not None:
-            np.multiply(out, st.rowmask, out=out)        # padded rows contribute nothing
-        self._out.row_terms(out, st.q, buf.term_scratch)
+        W, gW, WT, act = self._W, self._gW, self._WT, self._act
+        steps = self._forward_steps(xb, buf)
+        out = buf.out
+        steps.append((np.subtract, (out, yb, out)))          # error at the output pre-activation
+        if rowmask is not None:
+            steps.append((np.multiply, (out, rowmask, out)))   # padded rows contribute nothing
+        steps += self._out.row_terms(out, q, buf.term_scratch)
         delta = out
-        for j in range(last, 0, -1):
-            matmul(buf.hT[j - 1], delta, out=gW[j])
+        for j in range(len(W) - 1, 0, -1):
+            steps.append((np.matmul, (buf.hT[j - 1], delta, gW[j])))
             back = buf.dh[j - 1]
-            matmul(delta, WT[j], out=back)
-            act_backward(buf.hv[j - 1], back, buf.scratch[j - 1])
+            if delta.shape[-1] == 1:     # one output: an outer product, cheaper as a broadcast
+                steps.append((np.multiply, (delta, WT[j], back)))
+            else:
+                steps.append((np.matmul, (delta, WT[j], back)))
+            steps += act.backward(buf.hv[j - 1], back, buf.scratch[j - 1])
             delta = back
-        matmul(st.xbT, delta, out=gW[0])
+        steps.append((np.matmul, (xb.transpose(0, 2, 1), delta, gW[0])))
         if self._l2:
-            np.multiply(self._params, self._l2w, out=self._l2tmp)
-            np.add(self._grad, self._l2tmp, out=self._grad)
+            steps += [(np.multiply, (self._params, self._l2w, self._l2tmp)),
+                      (np.add, (self._grad, self._l2tmp, self._grad))]
+        return steps
 
     def _shuffle(self) -> None:
         for i, rng in enumerate(self._rngs):
@@ -223,10 +226,9 @@ class StackTrainer:
             np.take(self._Y[i], perm, axis=0, out=self._Ye[i, :n], mode="clip")
 
     def _train_epoch(self) -> None:
-        backprop, step, grad = self._backprop, self._optimizer.step, self._grad
-        for st in self._steps:
-            backprop(st)
-            step(grad, st.scale, st.active)
+        self._optimizer.begin_epoch()
+        for func, args in self._plan:
+            func(*args)
 
     def _member_output(self, out: np.ndarray) -> np.ndarray:
         return out[:, 0] if self.task != "multiclass" else out
@@ -236,7 +238,8 @@ class StackTrainer:
         train = np.array([self._out.epoch_loss(self._q[i, :self._n[i]], self.dtype) for i in range(m)])
         val_loss = val_metric = None
         if self._has_val:
-            outs = self._forward(self._Xv, self._val_buf)
+            run_steps(self._val_plan)
+            outs = self._val_out
             val_loss = np.empty(m)
             val_metric = np.empty(m)
             for i in range(m):
@@ -310,12 +313,15 @@ class StackTrainer:
             Y[i, :self._n[i]] = self._Y[i]
         q = np.zeros((m, n_max), self.dtype)
         rowmask = (np.arange(n_max)[None, :] < self._n[:, None]).astype(self.dtype)[..., None]
-        st = _Step(X, X.transpose(0, 2, 1), Y, q, _Buffers(m, n_max, self._layout.sizes, self.dtype),
-                   rowmask, 0.0, None)
+        steps = self._batch_steps(X, Y, q, _Buffers(m, n_max, self._layout.sizes, self.dtype), rowmask)
         with np.errstate(over="ignore", under="ignore"):
-            self._backprop(st)
+            run_steps(steps)
         penalty = self._l2 * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
         loss = np.array([self._out.epoch_loss(q[i, :self._n[i]], self.dtype) for i in range(m)])
         loss += 0.5 * penalty / self._n
         grads = [self._layout.unpack(self._grad[i].astype(np.float64) / self._n[i]) for i in range(m)]
         return loss, grads
+
+
+def _put_rows(array: np.ndarray, rows: np.ndarray, values: np.ndarray) -> None:
+    array[rows] = values
