@@ -217,9 +217,16 @@ def _scan_records(data: bytes, delimiter: str) -> tuple[np.ndarray, np.ndarray]:
         ends = np.append(ends, a.size)
     starts = np.concatenate(([0], ends[:-1] + 1))
     n_delims = np.searchsorted(delims, ends) - np.searchsorted(delims, starts)
-    # blank: nothing but spaces and line-end bytes (pandas skips such lines too)
-    content = np.flatnonzero((a != 32) & (a != 13) & (a != 10))
-    blank = (np.searchsorted(content, ends) - np.searchsorted(content, starts)) == 0
+    # blank: nothing but spaces and line-end bytes (pandas skips such lines too). Only a record
+    # without a delimiter can be blank; there are few of them unless the file has one column.
+    candidates = np.flatnonzero(n_delims == 0)
+    blank = np.zeros(len(ends), dtype=bool)
+    if len(candidates) <= 1000:
+        for r in candidates:
+            blank[r] = not data[starts[r]:ends[r]].strip(b" \r")
+    else:
+        content = np.flatnonzero((a != 32) & (a != 13) & (a != 10))
+        blank = (np.searchsorted(content, ends) - np.searchsorted(content, starts)) == 0
     line = np.searchsorted(newlines, starts) + 1
     keep = ~blank
     return (n_delims + 1)[keep].astype(np.int64), line[keep].astype(np.int64)

@@ -144,3 +144,9 @@ def test_trailing_delimiter_column_is_ignored_with_a_warning(tmp_path):
     assert any("column 3 has no name and no values" in w for w in got.warnings)
     with pytest.raises(DataError, match="has no column names"):
         read_csv(write(tmp_path, ",,\n1,2,3\n", "blank_header.csv"))
+
+
+def test_long_one_column_file_with_blank_lines(tmp_path):
+    text = "grade\n" + "premium\n" * 1500 + "\n  \n" + "juice\n" * 600
+    got = read_file(write(tmp_path, text))
+    assert len(got.frame) == 2100 and got.lines[-1] == 2103
