@@ -110,10 +110,12 @@ def _make_axis(values: np.ndarray, log: bool, categories: Sequence[str] | None,
         pad = abs(lo) * 0.1 or 1.0
         lo, hi = lo - pad, hi + pad
     step = nice_step(hi - lo)
+    margin = 0.04 * (hi - lo)
+    lo, hi = lo - margin, hi + margin
     first = math.ceil(lo / step - 1e-9) * step
     ticks = [first + i * step for i in range(int((hi - first) / step + 1e-9) + 1)]
-    margin = 0.04 * (hi - lo)
-    return _Axis(lo - margin, hi + margin, ticks=ticks, labels=[format_tick(t, step) for t in ticks])
+    ticks = [0.0 if abs(t) < step * 1e-9 else t for t in ticks]
+    return _Axis(lo, hi, ticks=ticks, labels=[format_tick(t, step) for t in ticks])
 
 
 def xy_chart(series: Sequence[Series], *, x_label: str, y_label: str, x_log: bool = False,
