@@ -96,12 +96,16 @@ def _softmax_forward(z: np.ndarray, scratch: np.ndarray) -> Steps:
     steps: Steps = []
     if k <= 8:
         mx = scratch[..., 0]
-        steps.append((np.maximum, (z[..., 0], z[..., 1], mx)))
-        steps += [(np.maximum, (mx, z[..., c], mx)) for c in range(2, k)]
+        steps.append((_max_into, (z[..., 0], z[..., 1], mx)))
+        steps += [(_max_into, (mx, z[..., c], mx)) for c in range(2, k)]
     else:
         steps.append((_row_max, (z, scratch)))
     return steps + [(np.subtract, (z, scratch, z)), (np.exp, (z, z)),
                     (np.matmul, (z, _ones_column(k, z.dtype), scratch)), (np.divide, (z, scratch, z))]
+
+
+def _max_into(a: np.ndarray, b: np.ndarray, out: np.ndarray) -> None:
+    np.maximum(a, b, out=out)
 
 
 def _row_max(z: np.ndarray, out: np.ndarray) -> None:

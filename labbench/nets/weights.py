@@ -32,6 +32,11 @@ class NetWeights:
     def dtype(self) -> np.dtype:
         return self.layers[0][0].dtype
 
+    def astype(self, dtype) -> "NetWeights":
+        """A copy with every array in ``dtype`` (e.g. float64 for exactly repeatable predictions)."""
+        layers = tuple((w.astype(dtype), b.astype(dtype)) for w, b in self.layers)
+        return NetWeights(layers, self.activation, self.output)
+
     def forward(self, X) -> np.ndarray:
         """Regression values (n,), binary P(class 1) (n,), or multiclass probabilities (n, C)."""
         a = np.asarray(X, dtype=self.dtype)

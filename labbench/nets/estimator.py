@@ -1,0 +1,183 @@
+"""``NetClassifier`` and ``NetRegressor``: the engine behind scikit-learn's estimator conventions.
+
+The constructor only stores its arguments (the ``NetConfig`` fields plus ``random_state``);
+``get_params`` / ``set_params`` derive from its signature; ``fit`` checks the inputs, trains one
+network with ``StackTrainer`` and sets the fitted attributes, all ending in ``_``: ``weights_``
+(``NetWeights``), ``n_features_in_``, ``loss_curve_`` (training loss per epoch), ``n_iter_``
+(epochs run), and ``classes_`` for the classifier. Bad settings raise ``ValueError`` at ``fit``.
+scikit-learn is not imported here; it stays an optional companion (its estimator checks are run
+in tests/nets/test_estimator_checks.py).
+"""
+
+from __future__ import annotations
+
+import inspect
+import numbers
+
+import numpy as np
+
+from labbench.errors import SpecError
+from labbench.nets.checks import (check_class_target, check_regression_target, check_X, check_y,
+                                  not_fitted)
+from labbench.nets.config import NetConfig
+from labbench.nets.metrics import accuracy, r2
+from labbench.nets.stack import StackTrainer
+
+_CONFIG_FIELDS = tuple(NetConfig.__dataclass_fields__)
+
+
+class _NetEstimator:
+    _estimator_type = ""
+
+    def __init__(self, hidden=(64,), activation="relu", optimizer="adam", learning_rate=1e-3,
+                 momentum=0.9, l2=0.0, batch_size=64, epochs=30, init="auto", dtype="float32",
+                 random_state=None):
+        self.hidden = hidden
+        self.activation = activation
+        self.optimizer = optimizer
+        self.learning_rate = learning_rate
+        self.momentum = momentum
+        self.l2 = l2
+        self.batch_size = batch_size
+        self.epochs = epochs
+        self.init = init
+        self.dtype = dtype
+        self.random_state = random_state
+
+    # ------------------------------------------------------------ parameters
+    @classmethod
+    def _get_param_names(cls) -> list[str]:
+        signature = inspect.signature(cls.__init__)
+        return sorted(p.name for p in signature.parameters.values() if p.name != "self")
+
+    def get_params(self, deep: bool = True) -> dict:
+        return {name: getattr(self, name) for name in self._get_param_names()}
+
+    def set_params(self, **params):
+        valid = self._get_param_names()
+        for key, value in params.items():
+            if key not in valid:
+                raise ValueError(f"Invalid parameter {key!r} for estimator {type(self).__name__}; "
+                                 f"valid parameters are {', '.join(valid)}")
+            setattr(self, key, value)
+        return self
+
+    def __repr__(self) -> str:
+        defaults = {p.name: p.default for p in inspect.signature(type(self).__init__).parameters.values()}
+        changed = [f"{k}={v!r}" for k, v in self.get_params().items()
+                   if not (isinstance(v, type(defaults[k])) and v == defaults[k])]
+        return f"{type(self).__name__}({', '.join(changed)})"
+
+    def __sklearn_is_fitted__(self) -> bool:
+        return hasattr(self, "weights_")
+
+    def __sklearn_tags__(self):
+        # Only scikit-learn calls this, so importing it here keeps it optional for labbench.
+        from sklearn.utils import ClassifierTags, InputTags, RegressorTags, Tags, TargetTags
+
+        classifier = self._estimator_type == "classifier"
+        return Tags(
+            estimator_type=self._estimator_type,
+            target_tags=TargetTags(required=True, single_output=True, multi_output=False),
+            classifier_tags=ClassifierTags(multi_class=True, multi_label=False) if classifier else None,
+            regressor_tags=None if classifier else RegressorTags(),
+            input_tags=InputTags(two_d_array=True, sparse=False, allow_nan=False),
+        )
+
+    # ------------------------------------------------------------ fitting
+    def _config(self) -> NetConfig:
+        try:
+            return NetConfig(**{name: getattr(self, name) for name in _CONFIG_FIELDS})
+        except SpecError as exc:
+            raise ValueError(f"{type(self).__name__}: {exc}") from None
+
+    def _seed(self) -> int:
+        state = self.random_state
+        if state is None:
+            return int(np.random.randint(0, 2**31 - 1))
+        if isinstance(state, numbers.Integral):
+            return int(state)
+        if isinstance(state, np.random.RandomState):
+            return int(state.randint(0, 2**31 - 1))
+        if isinstance(state, np.random.Generator):
+            return int(state.integers(0, 2**31 - 1))
+        raise ValueError(f"random_state: {state!r} is not None, an int, a RandomState or a Generator")
+
+    def _train(self, X, codes, task: str, n_outputs: int) -> None:
+        config = self._config()
+        trainer = StackTrainer(config, task, n_outputs, [X], [codes], seeds=[self._seed()])
+        history = trainer.run()
+        self.weights_ = trainer.weights(0)
+        self.loss_curve_ = [float(s.train_loss[0]) for s in history]
+        self.n_iter_ = len(history)
+
+    def _output(self, X) -> np.ndarray:
+        if not hasattr(self, "weights_"):
+            raise not_fitted(self)
+        X = check_X(X, self, reset=False)
+        # float64 arithmetic: predictions of a subset equal those of the whole to ~1e-16
+        return self.weights_.astype(np.float64).forward(X)
+
+
+class NetClassifier(_NetEstimator):
+    """A small neural network classifier (binary: one sigmoid output; else softmax)."""
+
+    _estimator_type = "classifier"
+
+    def fit(self, X, y):
+        X = check_X(X, self, reset=True)
+        y = check_class_target(check_y(y, X.shape[0], self))
+        classes, codes = np.unique(y, return_inverse=True)
+        if classes.shape[0] < 2:
+            raise ValueError(f"{type(self).__name__} needs at least 2 classes; y has 1 class ({classes[0]!r})")
+        task = "binary" if classes.shape[0] == 2 else "multiclass"
+        self._train(X, codes.ravel(), task, 1 if task == "binary" else int(classes.shape[0]))
+        self.classes_ = classes
+        return self
+
+    def predict_proba(self, X) -> np.ndarray:
+        out = self._output(X)
+        if out.ndim == 1:
+            return np.column_stack([1.0 - out, out])
+        return out
+
+    def predict(self, X) -> np.ndarray:
+        out = self._output(X)
+        index = (out >= 0.5).astype(np.int64) if out.ndim == 1 else np.argmax(out, axis=1)
+        return self.classes_[index]
+
+    def score(self, X, y, sample_weight=None) -> float:
+        """Mean accuracy on (X, y); ``sample_weight`` weights the rows when given."""
+        correct = (self.predict(X) == np.asarray(y).ravel()).astype(np.float64)
+        if sample_weight is None:
+            return accuracy(correct, np.ones_like(correct))
+        return float(np.average(correct, weights=sample_weight))
+
+
+class NetRegressor(_NetEstimator):
+    """A small neural network regressor (identity output, squared error)."""
+
+    _estimator_type = "regressor"
+
+    def fit(self, X, y):
+        X = check_X(X, self, reset=True)
+        y = check_regression_target(check_y(y, X.shape[0], self))
+        self._train(X, y, "regression", 1)
+        return self
+
+    def predict(self, X) -> np.ndarray:
+        return self._output(X)
+
+    def score(self, X, y, sample_weight=None) -> float:
+        """R² of the predictions on (X, y) (unweighted unless ``sample_weight`` is given)."""
+        y = np.asarray(y, dtype=np.float64).ravel()
+        pred = self.predict(X)
+        if sample_weight is None:
+            return r2(y, pred)
+        w = np.asarray(sample_weight, dtype=np.float64)
+        mean = np.average(y, weights=w)
+        total = float(np.sum(w * (y - mean) ** 2))
+        residual = float(np.sum(w * (y - pred) ** 2))
+        if total == 0.0:
+            return 1.0 if residual == 0.0 else 0.0
+        return 1.0 - residual / total
