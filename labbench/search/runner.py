@@ -5,7 +5,7 @@ thread, or the window's worker QThread) and never trains anything itself: trials
 ``spawn``-started worker processes (``labbench.search.workers``) that receive only plain settings
 and send back one message per epoch. The controller
 
-* asks Optuna for a trial when a worker is free (after ``fail_stale_trials``, which turns trials
+* asks Optuna for a trial when a worker has room (after ``fail_stale_trials``, which turns trials
   of a killed process into FAIL + a WAITING retry once their heartbeat is stale),
 * records heartbeats for its trials in flight from a small thread,
 * reports every epoch's fold-mean validation loss (step = epoch; sign-flipped for a maximised
@@ -13,6 +13,12 @@ and send back one message per epoch. The controller
 * tells COMPLETE / PRUNED / FAIL with the trial attrs of the storage contract,
 * emits the events of ``labbench.search.events`` through ``emit``,
 * stops asking when the trial budget (trials added by this run) or the time budget runs out.
+
+Each worker holds its training trial plus ``prefetch`` (default 1) asked trials queued behind it,
+so the sampler and the storage work while the worker trains; storage therefore shows up to
+``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. ``TrialStarted`` is
+emitted when a worker begins training a trial; a queued trial cancelled before it began ends with
+a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
 
 Cancel is cooperative: set the ``cancel`` event (or press Ctrl-C in a terminal) and the trials in
 flight stop after their current epoch and are told FAIL with ``end_reason`` "cancelled by the
@@ -69,10 +75,11 @@ class _InFlight:
     trial: Any
     slot: Any
     settings: dict
-    started: float
+    started: float                       # asked; reset when the worker begins training it
     points: list = field(default_factory=list)
     stopping: str | None = None          # "pruned" | "cancelled"
     stop_epoch: int = 0
+    training: bool = False
 
     @property
     def number(self) -> int:
@@ -140,7 +147,8 @@ class SearchRunner:
     def __init__(self, spec, emit: ev.Emit = ev.ignore, *, storage: str | None = None,
                  trials: int | None = None, minutes: float | None = None,
                  workers: int | None = None, fresh: bool = False,
-                 heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0):
+                 heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0,
+                 prefetch: int = 1):
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
@@ -153,6 +161,7 @@ class SearchRunner:
         self.fresh = fresh
         self.heartbeat = heartbeat or Heartbeat.from_env()
         self.stop_timeout_s = stop_timeout_s
+        self.prefetch = max(0, int(prefetch))
         self.poll_s = 0.05
 
     # ------------------------------------------------------------------------------------
@@ -200,7 +209,8 @@ class SearchRunner:
         existing = self.study.get_trials(deepcopy=False)
         self.best = self._best_of(existing)
         self.asked = self.finished = 0
-        self.in_flight: dict[int, _InFlight] = {}
+        self.in_flight: dict[int, _InFlight] = {}      # trial number -> its state here
+        self.durations: list[float] = []
         self.stop_reason: str | None = None
         self.message = ""
         self.deadline: float | None = None
@@ -274,9 +284,7 @@ class SearchRunner:
         if self.minutes is not None and self._elapsed() >= 60.0 * self.minutes:
             self.stop_reason = "time"
             return False
-        from optuna.samplers import GridSampler
-
-        if isinstance(self.sampler, GridSampler) and self.sampler.is_exhausted(self.study):
+        if hasattr(self.sampler, "all_started") and self.sampler.all_started(self.study):
             self.stop_reason = "budget"
             self.emit(ev.Notice("every point of the grid has been tried", "info"))
             return False
@@ -290,12 +298,10 @@ class SearchRunner:
                 self.deadline = time.monotonic() + self.stop_timeout_s
             for flight in self.in_flight.values():
                 flight.stopping = "cancelled"
-                self.pool.stop(flight.slot)
+            for slot in self.pool.alive():
+                self.pool.halt(slot)
         if self.stop_reason is None:
-            for slot in self.pool.idle():
-                if not self._budget_left():
-                    break
-                self._start_trial(slot)
+            self._fill_workers()
         if self.stop_reason is not None and not self.in_flight:
             return True
         if self.deadline is not None and time.monotonic() >= self.deadline:
@@ -306,6 +312,27 @@ class SearchRunner:
         if message is not None:
             self._handle(message)
         return False
+
+    def _fill_workers(self) -> None:
+        """Hand each ready worker a trial, plus ``prefetch`` queued ones so that asking (the
+        sampler, the storage) overlaps with training instead of keeping the worker waiting. The
+        order of asks and tells is fixed by the order of the workers' messages, so a sequential
+        search stays reproducible; the sampler just sees the last result one trial later."""
+        for depth in range(1, 2 + self.prefetch):
+            for slot in self.pool.with_room(depth):
+                if depth > 1 and not self._time_for_another():
+                    return
+                if not self._budget_left():
+                    return
+                self._start_trial(slot)
+
+    def _time_for_another(self) -> bool:
+        """Queue a trial only when the time budget will probably not end before it starts."""
+        if self.minutes is None:
+            return True
+        durations = self.durations[-10:]
+        typical = sum(durations) / len(durations) if durations else 0.0
+        return self._elapsed() + typical < 60.0 * self.minutes
 
     def _start_trial(self, slot) -> None:
         import optuna
@@ -325,40 +352,53 @@ class SearchRunner:
         trial.set_user_attr("settings", plain(settings))
         trial.set_user_attr("worker", slot.label)
         trial.set_user_attr("end_reason", LOST)   # overwritten when the trial ends here
-        self.in_flight[slot.index] = _InFlight(trial, slot, settings, time.monotonic())
+        self.in_flight[trial.number] = _InFlight(trial, slot, settings, time.monotonic())
         self.pool.assign(slot, trial.number, plain(settings))
-        self.emit(ev.TrialStarted(trial.number, dict(trial.params), plain(settings)))
 
     def _handle(self, message: tuple) -> None:
         kind, index = message[0], message[1]
         slot = self.pool.slots[index]
-        flight = self.in_flight.get(index)
+        number = message[2] if kind in ("started", "epoch", "done", "error") else None
+        flight = self.in_flight.get(number) if number is not None else None
+        if flight is not None and flight.slot is not slot:
+            flight = None                      # a message of a worker that has been replaced
         if kind == "ready":
-            slot.state, slot.pid = "idle", message[2]
+            slot.state, slot.pid = "ready", message[2]
+        elif kind == "started":
+            if flight is not None:
+                flight.training, flight.started = True, time.monotonic()
+                self.emit(ev.TrialStarted(number, dict(flight.trial.params), plain(flight.settings)))
         elif kind == "epoch":
             _, _, number, epoch, train_loss, val_loss, val_metric = message
-            if flight is not None and flight.number == number and flight.stopping is None:
+            if flight is not None and flight.stopping is None:
                 self._epoch(flight, epoch, train_loss, val_loss, val_metric)
         elif kind == "done":
-            _, _, number, result = message
-            slot.state, slot.number = "idle", None
-            if flight is not None and flight.number == number:
-                self._done(flight, result)
+            self.pool.release(slot, number)
+            if flight is not None:
+                self._done(flight, message[3])
         elif kind == "error":
             _, _, number, text, trace = message
-            slot.state, slot.number = "idle", None
+            self.pool.release(slot, number)
             log.error("trial %s: error in the worker process:\n%s", number, trace)
-            if flight is not None and flight.number == number:
+            if flight is not None:
                 reason = f"internal error while training (not caused by your settings): {text}"
                 self._finish(flight, "FAIL", reason=reason)
                 self.emit(ev.Notice(f"trial {number} failed by an internal error: {one_line(text)} "
                                     "— please report it with the log (labbench -v run ...)"))
         elif kind == "died":
             exitcode = message[2]
-            if flight is not None:
-                self._finish(flight, "FAIL", reason="its worker process stopped unexpectedly "
-                             f"(exit code {exitcode})")
+            why = f"its worker process stopped unexpectedly (exit code {exitcode})"
+            # The worker takes its trials in order, so the first one handed over was training
+            # (its "started" message may have died with the process); the others never began.
+            mine = [self.in_flight[n] for n in slot.numbers if n in self.in_flight]
+            if mine:
+                self._finish(mine[0], "FAIL", reason=why)
             restarted = self.pool.restart(slot)
+            for queued in mine[1:]:                     # not begun: hand them over again
+                if restarted and queued.stopping is None:
+                    self.pool.assign(slot, queued.number, plain(queued.settings))
+                else:
+                    self._finish(queued, "FAIL", reason=CANCELLED if queued.stopping else why)
             self.emit(ev.Notice(f"worker process {index + 1} stopped unexpectedly (exit code "
                                 f"{exitcode}); " + ("started a new one" if restarted
                                                     else "not restarted: it failed too often")))
@@ -378,7 +418,7 @@ class SearchRunner:
                                  float(val_metric), int(flight.settings["epochs"])))
         if self.stop_reason != "cancelled" and flight.trial.should_prune():
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
-            self.pool.stop(flight.slot)
+            self.pool.stop(flight.slot, flight.number)
 
     def _done(self, flight: _InFlight, result: Mapping[str, Any]) -> None:
         if flight.stopping == "pruned":
@@ -409,7 +449,7 @@ class SearchRunner:
         from optuna.trial import TrialState
 
         trial = flight.trial
-        duration = time.monotonic() - flight.started
+        duration = time.monotonic() - flight.started if flight.training else 0.0
         points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
         runs = epochs_run if epochs_run is not None else (points[-1][0] if points else 0)
         _, std = cv_summary(list(fold_scores))
@@ -424,9 +464,11 @@ class SearchRunner:
                         trial.number)
         self.study.tell(trial, values=value if state == "COMPLETE" else None,
                         state=getattr(TrialState, state), skip_if_finished=True)
-        self.in_flight.pop(flight.slot.index, None)
+        self.in_flight.pop(trial.number, None)
         self.beats.discard(trial._trial_id)
         self.finished += 1
+        if flight.training:
+            self.durations.append(duration)
         shown = "cancelled" if reason == CANCELLED else STATE_NAMES[state]
         self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
                                 reason, dict(trial.params), int(runs)))

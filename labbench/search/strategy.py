@@ -60,6 +60,19 @@ def _grid_sampler(grid: dict, seed: int):
         def after_trial(self, study, trial, state, values) -> None:
             return None
 
+        def all_started(self, study) -> bool:
+            """Every grid point has a trial (running or finished). Optuna's ``is_exhausted``
+            counts running points as open, which would repeat a point queued behind another."""
+            from optuna.trial import TrialState
+
+            started = {
+                t.system_attrs["grid_id"]
+                for t in study._storage.get_all_trials(study._study_id, deepcopy=False)
+                if "grid_id" in t.system_attrs and t.state != TrialState.WAITING
+                and self._same_search_space(t.system_attrs["search_space"])
+            }
+            return len(started) >= self._n_min_trials
+
     return AskTellGridSampler(grid, seed=seed)
 
 

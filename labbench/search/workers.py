@@ -7,15 +7,20 @@ controller → worker (its own inbox):  ("trial", number, settings) | None (quit
 worker → controller (one shared queue):
     ("ready", index, pid)
     ("fatal", index, error_class_name, message)      preparing failed (bad data / spec / a bug)
+    ("started", index, number)                       the worker began training that trial
     ("epoch", index, number, epoch, train_loss, val_loss, val_metric)
     ("done", index, number, result_dict)             see ``objective.run_trial``
     ("error", index, number, message, traceback)     a bug while training (not the user's fault)
     ("died", index, exitcode)                        synthesised by ``poll`` when a process is gone
 
-Stopping a trial after its current epoch: the controller writes the trial number into the
-worker's shared ``stop`` value; the worker checks it after every epoch. A worker whose controller
-has gone (killed) stops after the current epoch, or within a second when idle. Workers ignore SIGINT: a
-Ctrl-C in a terminal reaches the whole process group, and only the controller decides what to do.
+A worker's inbox may hold one trial more than the one it trains (the controller asks the next
+trial while the current one trains, so sampling and storage work overlap with training).
+
+Stopping: the controller writes a trial number into the worker's shared ``stop`` value (that trial
+stops after its current epoch), or sets its ``halt`` flag (cancel: the running trial stops after its
+epoch and queued ones are handed back untrained, ``epochs_run`` 0). A worker whose controller has
+gone (killed) stops after the current epoch, or within a second when idle. Workers ignore SIGINT:
+a Ctrl-C in a terminal reaches the whole process group, and only the controller decides.
 """
 
 from __future__ import annotations
@@ -36,7 +41,7 @@ log = logging.getLogger("labbench.search.workers")
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
-def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, stop,
+def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, stop, halt,
                 threads: int, log_level: int) -> None:
     """Entry point of a worker process (module-level so ``spawn`` can import it)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
@@ -76,13 +81,20 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
         if message is None:
             break
         _, number, settings = message
+        if halt.value:
+            outbox.put(("done", index, number, {"end": "stopped", "reason": "", "fold_scores": [],
+                                                "epochs_run": 0, "duration_s": 0.0}))
+            continue
+        outbox.put(("started", index, number))
 
         def send(values, number=number):
             outbox.put(("epoch", index, number, *values))
 
+        def should_stop(number=number) -> bool:
+            return stop.value == number or bool(halt.value) or orphaned()
+
         try:
-            result = run_trial(prepared, settings, seed=seed, on_epoch=send,
-                               should_stop=lambda number=number: stop.value == number or orphaned())
+            result = run_trial(prepared, settings, seed=seed, on_epoch=send, should_stop=should_stop)
         except Exception as exc:
             outbox.put(("error", index, number, f"{type(exc).__name__}: {exc}",
                         traceback.format_exc()))
@@ -96,11 +108,11 @@ class _Slot:
     process: Any
     inbox: Any
     stop: Any
-    state: str = "starting"          # starting | idle | busy | gone
-    number: int | None = None        # trial in hand
+    halt: Any
+    state: str = "starting"          # starting | ready | gone
+    numbers: list = field(default_factory=list)   # trials handed to it, oldest (training) first
     pid: int | None = None
     restarts: int = 0
-    info: dict = field(default_factory=dict)
 
     @property
     def label(self) -> str:
@@ -130,18 +142,19 @@ class WorkerPool:
     def _new_process(self, index: int):
         inbox = self._ctx.Queue()
         stop = self._ctx.Value("q", -1)
+        halt = self._ctx.Value("b", 0)
         level = logging.getLogger("labbench").getEffectiveLevel()
         process = self._ctx.Process(
             target=worker_main, name=f"labbench-worker-{index}", daemon=True,
-            args=(index, self._blob, self._sha, inbox, self.outbox, stop, self._threads, level),
+            args=(index, self._blob, self._sha, inbox, self.outbox, stop, halt, self._threads,
+                  level),
         )
         process.start()
-        return process, inbox, stop
+        return process, inbox, stop, halt
 
     def start(self) -> None:
         for index in range(self.n):
-            process, inbox, stop = self._new_process(index)
-            self.slots.append(_Slot(index, process, inbox, stop))
+            self.slots.append(_Slot(index, *self._new_process(index)))
 
     def restart(self, slot: _Slot) -> bool:
         """Replace a dead worker; False when it has died too often (then it stays gone)."""
@@ -149,9 +162,9 @@ class WorkerPool:
         if slot.restarts >= self._max_restarts:
             slot.state = "gone"
             return False
-        slot.process, slot.inbox, slot.stop = self._new_process(slot.index)
+        slot.process, slot.inbox, slot.stop, slot.halt = self._new_process(slot.index)
         slot.restarts += 1
-        slot.state, slot.number, slot.pid = "starting", None, None
+        slot.state, slot.numbers, slot.pid = "starting", [], None
         return True
 
     def shutdown(self, timeout: float = 5.0) -> None:
@@ -182,23 +195,29 @@ class WorkerPool:
 
     # ---- work
 
-    def idle(self) -> list[_Slot]:
-        return [s for s in self.slots if s.state == "idle"]
-
-    def busy(self) -> list[_Slot]:
-        return [s for s in self.slots if s.state == "busy"]
+    def with_room(self, depth: int) -> list[_Slot]:
+        """Ready workers holding fewer than ``depth`` trials (training + queued)."""
+        return [s for s in self.slots if s.state == "ready" and len(s.numbers) < depth]
 
     def alive(self) -> list[_Slot]:
         return [s for s in self.slots if s.state != "gone"]
 
     def assign(self, slot: _Slot, number: int, settings: dict) -> None:
-        slot.state, slot.number = "busy", number
+        slot.numbers.append(number)
         slot.inbox.put(("trial", number, settings))
 
-    def stop(self, slot: _Slot) -> None:
-        """Ask the worker to stop its trial after the current epoch."""
-        if slot.number is not None:
-            slot.stop.value = slot.number
+    def release(self, slot: _Slot, number: int) -> None:
+        """The worker is done with that trial (finished, stopped or failed)."""
+        if number in slot.numbers:
+            slot.numbers.remove(number)
+
+    def stop(self, slot: _Slot, number: int) -> None:
+        """Ask the worker to stop that trial after its current epoch."""
+        slot.stop.value = number
+
+    def halt(self, slot: _Slot) -> None:
+        """Cancel: stop the running trial after its epoch, hand queued ones back untrained."""
+        slot.halt.value = 1
 
     def poll(self, timeout: float) -> tuple | None:
         """The next message, a synthesised ("died", index, exitcode), or None after ``timeout``."""
@@ -207,6 +226,6 @@ class WorkerPool:
         except queue.Empty:
             pass
         for slot in self.slots:
-            if slot.state in ("starting", "idle", "busy") and slot.process.exitcode is not None:
+            if slot.state in ("starting", "ready") and slot.process.exitcode is not None:
                 return ("died", slot.index, slot.process.exitcode)
         return None
