@@ -167,9 +167,9 @@ def _doc(model: TrainedModel, names: dict[str, str]) -> str:
 
 def export_onnx(model: TrainedModel, path: str | os.PathLike) -> Path:
     """Write ``model`` as an ONNX file after ``onnx.checker.check_model(full_check=True)``."""
+    proto = build_onnx(model)      # a clear LabbenchError when the onnx package is missing
     import onnx
 
-    proto = build_onnx(model)
     onnx.checker.check_model(proto, full_check=True)
     target = Path(path)
     if not target.suffix:

@@ -35,6 +35,7 @@ def test_onnx_matches_labbench_on_holdout_rows(case, tmp_path):
     rows = frame.iloc[case["holdout"]]
     # the hold-out rows exercise imputation of numbers and of categories
     assert rows.iloc[:, 1].isna().any() and rows["band"].isna().any()
+    # source: onnxruntime, the reference runtime for ONNX graphs, runs the exported file
     session = ort.InferenceSession(str(path), providers=["CPUExecutionProvider"])
     got = dict(zip([o.name for o in session.get_outputs()], session.run(None, _feeds(model, rows))))
     want = model.output(rows)
