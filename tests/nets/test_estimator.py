@@ -1,0 +1,98 @@
+"""NetClassifier / NetRegressor in use, beyond scikit-learn's generic checks."""
+
+from __future__ import annotations
+
+import pickle
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+from sklearn.base import clone
+from sklearn.datasets import load_iris, make_regression
+from sklearn.model_selection import cross_val_score
+from sklearn.pipeline import make_pipeline
+from sklearn.preprocessing import StandardScaler
+
+import labbench
+from labbench.nets import NetConfig, NetWeights
+from labbench.nets.estimator import NetClassifier, NetRegressor
+
+
+def test_top_level_package_exports_the_estimators():
+    assert labbench.NetClassifier is NetClassifier and labbench.NetRegressor is NetRegressor
+
+
+def test_params_match_netconfig_fields_plus_random_state():
+    names = set(NetClassifier().get_params())
+    assert names == set(NetConfig.__dataclass_fields__) | {"random_state"}
+    assert NetRegressor().get_params()["hidden"] == NetConfig().hidden
+    est = NetClassifier().set_params(epochs=3, hidden=(4,))
+    assert est.epochs == 3 and clone(est).get_params() == est.get_params()
+    assert repr(est) == "NetClassifier(epochs=3, hidden=(4,))"
+    with pytest.raises(ValueError, match="Invalid parameter 'epoch'"):
+        est.set_params(epoch=3)
+
+
+def test_classifier_with_string_labels_in_a_pipeline_and_cross_validation():
+    X, y = load_iris(return_X_y=True)
+    names = np.array(["setosa", "versicolor", "virginica"])[y]
+    model = make_pipeline(StandardScaler(), NetClassifier(hidden=(16,), learning_rate=0.01, batch_size=16,
+                                                          epochs=40, random_state=0))
+    scores = cross_val_score(model, X, names, cv=3)
+    assert scores.mean() > 0.9       # iris, scaled MLP: usually ~0.95 (from memory)
+    model.fit(X, names)
+    net = model[-1]
+    assert list(net.classes_) == ["setosa", "versicolor", "virginica"]
+    assert set(model.predict(X)) <= set(names)
+    proba = model.predict_proba(X)
+    np.testing.assert_allclose(proba.sum(axis=1), 1, rtol=1e-6)
+    assert len(net.loss_curve_) == net.n_iter_ == 40 and net.loss_curve_[-1] < net.loss_curve_[0]
+    assert isinstance(net.weights_, NetWeights) and net.n_features_in_ == 4
+
+
+def test_binary_classifier_proba_columns_follow_classes():
+    rng = np.random.default_rng(0)
+    X = rng.normal(size=(80, 3))
+    y = np.where(X[:, 0] > 0, "yes", "no")
+    clf = NetClassifier(hidden=(8,), learning_rate=0.03, batch_size=16, epochs=40, random_state=1).fit(X, y)
+    proba = clf.predict_proba(X)
+    assert proba.shape == (80, 2) and list(clf.classes_) == ["no", "yes"]
+    np.testing.assert_array_equal(clf.predict(X), np.where(proba[:, 1] >= 0.5, "yes", "no"))
+    assert clf.score(X, y) > 0.9
+
+
+def test_regressor_fits_and_scores_r2():
+    X, y = make_regression(n_samples=200, n_features=5, noise=1.0, random_state=0)
+    reg = NetRegressor(hidden=(), learning_rate=0.05, batch_size=32, epochs=60, dtype="float64",
+                       random_state=0).fit(X, y / y.std())
+    assert reg.score(X, y / y.std()) > 0.99
+
+
+def test_same_random_state_same_model_and_pickle_round_trip():
+    X, y = load_iris(return_X_y=True)
+    a = NetClassifier(epochs=3, random_state=5).fit(X, y)
+    b = NetClassifier(epochs=3, random_state=5).fit(X, y)
+    np.testing.assert_array_equal(a.predict_proba(X), b.predict_proba(X))
+    c = pickle.loads(pickle.dumps(a))
+    np.testing.assert_array_equal(a.predict_proba(X), c.predict_proba(X))
+
+
+def test_bad_setting_is_a_value_error_at_fit():
+    X, y = load_iris(return_X_y=True)
+    with pytest.raises(ValueError, match="activation: 'gelu' is not known"):
+        NetClassifier(activation="gelu").fit(X, y)
+
+
+def test_labbench_nets_imports_and_trains_without_sklearn_or_scipy():
+    code = (
+        "import sys, numpy as np\n"
+        "import labbench, labbench.nets\n"
+        "from labbench.nets.estimator import NetClassifier\n"
+        "X = np.random.default_rng(0).normal(size=(30, 3)); y = (X[:, 0] > 0).astype(int)\n"
+        "NetClassifier(epochs=2).fit(X, y).predict(X)\n"
+        "bad = sorted(m for m in sys.modules if m.split('.')[0] in ('sklearn', 'scipy'))\n"
+        "assert not bad, bad\n"
+    )
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert result.returncode == 0, result.stderr
