@@ -211,6 +211,8 @@ class SearchRunner:
         self.asked = self.finished = 0
         self.in_flight: dict[int, _InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
+        self.next_stale_check = 0.0
+        self.prunes = self.spec.search.pruner != "none"
         self.stop_reason: str | None = None
         self.message = ""
         self.deadline: float | None = None
@@ -337,7 +339,10 @@ class SearchRunner:
     def _start_trial(self, slot) -> None:
         import optuna
 
-        optuna.storages.fail_stale_trials(self.study)
+        now = time.monotonic()
+        if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
+            optuna.storages.fail_stale_trials(self.study)
+            self.next_stale_check = now + self.heartbeat.interval
         trial = self.study.ask()
         self.asked += 1
         try:
@@ -416,7 +421,7 @@ class SearchRunner:
             flight.trial.report(self.sign * float(val_loss), step=int(epoch))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
-        if self.stop_reason != "cancelled" and flight.trial.should_prune():
+        if self.prunes and self.stop_reason != "cancelled" and flight.trial.should_prune():
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
 
