@@ -31,6 +31,7 @@ import numpy as np
 from labbench.errors import DivergenceError
 from labbench.nets.activations import ACTIVATIONS, Steps
 from labbench.nets.activations import run as run_steps
+from labbench.nets.blas import one_thread
 from labbench.nets.config import EpochScores, NetConfig
 from labbench.nets.init import init_network
 from labbench.nets.layout import Layout
@@ -274,7 +275,7 @@ class StackTrainer:
         Raises ``DivergenceError`` when a loss becomes NaN or infinite.
         """
         history: list[EpochScores] = []
-        with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        with one_thread(), np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
             while self.epoch < self.config.epochs:
                 self.epoch += 1
                 self._shuffle()
