@@ -8,7 +8,11 @@ import sys
 
 import labbench
 
-CORE_PACKAGES = ["labbench." + m.name for m in pkgutil.walk_packages(labbench.__path__) if m.name.split(".")[0] not in ("gui", "__main__")]
+CORE_PACKAGES = [
+    m.name
+    for m in pkgutil.walk_packages(labbench.__path__, prefix="labbench.")
+    if m.name.split(".")[1] not in ("gui", "__main__")
+]
 
 
 def test_every_core_module_imports_without_loading_qt():
