@@ -1,6 +1,6 @@
 """Speed of load_table on 10^5 rows against plain pandas.read_csv of the same file, same run.
 
-Run: python tests/data/bench_load.py   (not a test; prints the times and the ratio)
+Run: python benchmarks/bench_load.py   (not a test; prints the times and the ratio)
 Goal: load_table (reading + every check + roles) within 4x of a bare pandas.read_csv, and a
 fold preparation (5 folds, standardise + one-hot) well under a second.
 """
