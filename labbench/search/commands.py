@@ -141,7 +141,11 @@ def run_command(args) -> int:
             files.extend(event.files)
         progress(event)
 
-    summary, _model = finalize(spec, runner.study, runner.prepared, emit=collect, out_dir=target)
+    summary, model = finalize(spec, runner.study, runner.prepared, emit=collect, out_dir=target)
+    from labbench.export import export_all
+
+    progress(events.FinalStage("files", f"Saving the trained winner (bundle, script, ONNX) to {target}"))
+    files.extend(str(p) for p in export_all(model, summary, target))
     progress.close()
     print(winner_text(summary, files))
     return EXIT_OK
@@ -172,11 +176,12 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
                      f"± {_fmt(spread['std'])}, from {_fmt(spread['min'])} to {_fmt(spread['max'])}")
     else:
         lines.append("  seed spread: not measured")
-    if s.get("runner_up") and s["runner_up"].get("text"):
+    warnings = list(s.get("warnings") or [])
+    if s.get("runner_up") and s["runner_up"].get("text") and s["runner_up"]["text"] not in warnings:
         lines.append(f"    {s['runner_up']['text']}")
     settings = s.get("settings") or {}
     if settings:
-        lines.append("  settings: " + ", ".join(f"{k} {v}" for k, v in settings.items()))
+        lines.append("  settings: " + ", ".join(f"{k} {_cell(v)}" for k, v in settings.items()))
     imp = s.get("importance") or {}
     if imp.get("values"):
         lines.append(f"  importance ({imp.get('method')}): " + ", ".join(
@@ -185,7 +190,7 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
         lines.append(f"    {imp['message']}")
     counts = s.get("trials") or {}
     lines.append("  trials: " + ", ".join(f"{n} {k}" for k, n in counts.items() if n))
-    for warning in s.get("warnings") or []:
+    for warning in warnings:
         lines.append(f"  warning: {warning}")
     if files:
         lines.append("  files: " + ", ".join(str(f) for f in files))
@@ -259,14 +264,14 @@ def trials_table(study) -> str:
     metric = attrs.get("metric", "value")
     direction = attrs.get("direction", study.direction.name.lower())
     params = list(attrs.get("searched") or sorted({p for t in trials for p in t.params}))
-    header = ["trial", "state", metric, "±", "epochs", "time"] + params
+    header = ["trial", "state", metric, "±", "ran", "time"] + params
     rows = []
     for t in trials:
         ua = t.user_attrs
-        rows.append([str(t.number), STATE_NAMES.get(t.state.name, t.state.name.lower()),
-                     number(t.value) if t.value is not None else "",
-                     number(ua["cv_std"]) if ua.get("cv_std") is not None and t.value is not None
-                     else "",
+        done = t.state.name == "COMPLETE" and t.value is not None   # (Optuna gives a pruned
+        rows.append([str(t.number), STATE_NAMES.get(t.state.name, t.state.name.lower()),  # trial
+                     number(t.value) if done else "",          # its last step's value: not a score)
+                     number(ua["cv_std"]) if done and ua.get("cv_std") is not None else "",
                      str(ua.get("epochs_run", "")),
                      duration(ua["duration_s"]) if "duration_s" in ua else "",
                      *[_cell(t.params[p]) if p in t.params else "" for p in params]])
@@ -275,6 +280,7 @@ def trials_table(study) -> str:
     lines = [f"search '{study.study_name}': {direction} {metric}, {len(trials)} trials"]
     lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip())
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows]
+    lines.append(f"(± = standard deviation across folds, ran = epochs trained)")
     done = [t for t in trials if t.value is not None and t.state.name == "COMPLETE"]
     if done:
         pick = max if direction == "maximize" else min
@@ -295,5 +301,11 @@ def trials_table(study) -> str:
 
 def show_command(args) -> int:
     study, _ = _open_for_reading(args.source, args.study, args.storage)
-    print(trials_table(study))
+    try:
+        print(trials_table(study))
+        sys.stdout.flush()
+    except BrokenPipeError:           # `labbench show ... | head`
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
     return EXIT_OK
