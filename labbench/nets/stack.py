@@ -46,16 +46,17 @@ log = logging.getLogger("labbench.nets.stack")
 class _Buffers:
     """Work arrays for batches of one width (allocated once, reused every step)."""
 
-    def __init__(self, m: int, width: int, sizes: tuple[int, ...], dtype: np.dtype):
+    def __init__(self, m: int, width: int, sizes: tuple[int, ...], dtype: np.dtype, *, backward: bool = True):
         hidden, k = sizes[1:-1], sizes[-1]
         self.h = [np.ones((m, width, fo + 1), dtype) for fo in hidden]   # last column stays 1
         self.hv = [h[..., :-1] for h in self.h]
         self.hT = [h.transpose(0, 2, 1) for h in self.h]
         self.scratch = [np.zeros((m, width, fo), dtype) for fo in hidden]
-        self.dh = [np.zeros((m, width, fo), dtype) for fo in hidden]
         self.out = np.zeros((m, width, k), dtype)
         self.out_scratch = np.zeros((m, width, 1), dtype)
-        self.term_scratch = np.zeros((m, width, k), dtype)
+        if backward:
+            self.dh = [np.zeros((m, width, fo), dtype) for fo in hidden]
+            self.term_scratch = np.zeros((m, width, k), dtype)
 
 
 def _as_list(arrays, what: str) -> list[np.ndarray]:
@@ -105,7 +106,12 @@ class StackTrainer:
 
         # training rows, with a column of ones, and the epoch block they are shuffled into
         self._n = np.array([np.shape(x)[0] for x in X_train], dtype=np.int64)
-        self._X = [self._augment(x) for x in X_train]
+        augmented: dict[int, np.ndarray] = {}      # members given the same array share its copy
+        self._X = []
+        for x in X_train:
+            if id(x) not in augmented:
+                augmented[id(x)] = self._augment(x)
+            self._X.append(augmented[id(x)])
         self._Y = [encode_targets(task, y, k, dtype) for y in y_train]
         n_max = int(self._n.max())
         self._Xe = np.zeros((m, n_max, d + 1), dtype)
@@ -121,13 +127,13 @@ class StackTrainer:
             if len(X_val) != m or len(y_val) != m:
                 raise ValueError("X_val and y_val need one entry per member")
             self._nv = [int(np.shape(x)[0]) for x in X_val]
+            if min(self._nv) < 1 or any(len(y) != n for y, n in zip(y_val, self._nv)):
+                raise ValueError("every member needs at least one validation row and one target per row")
             self._Xv = np.zeros((m, max(self._nv), d + 1), dtype)
             self._Xv[..., d] = 1
             for i, x in enumerate(X_val):
                 self._Xv[i, :self._nv[i], :d] = x
-            val_buf = _Buffers(m, max(self._nv), self._layout.sizes, dtype)
-            self._val_plan = self._forward_steps(self._Xv, val_buf)
-            self._val_out = val_buf.out
+            self._plan_validation()
             self._yv = [np.asarray(y) for y in y_val]
             self._Yv = [encode_targets(task, y, k, np.float64) for y in y_val]
             self.metric = metric or default_metric(task)
@@ -180,6 +186,24 @@ class StackTrainer:
                     update.append((_put_rows, (array, idle, saved)))
                 plan += update
         self._plan = plan
+
+    def _plan_validation(self) -> None:
+        """One forward pass over all validation rows per epoch, in chunks of rows that keep the
+        work arrays to ~16 MB each whatever the stack size."""
+        m, n_val = self._Xv.shape[0], self._Xv.shape[1]
+        widest = max(self._layout.sizes[1:]) + 1
+        chunk = max(256, (1 << 22) // (m * widest))
+        self._val_out = np.zeros((m, n_val, self.n_outputs), self.dtype)
+        buffers: dict[int, _Buffers] = {}
+        plan: Steps = []
+        for start in range(0, n_val, chunk):
+            stop = min(start + chunk, n_val)
+            if stop - start not in buffers:
+                buffers[stop - start] = _Buffers(m, stop - start, self._layout.sizes, self.dtype, backward=False)
+            buf = buffers[stop - start]
+            plan += self._forward_steps(self._Xv[:, start:stop], buf)
+            plan.append((np.copyto, (self._val_out[:, start:stop], buf.out)))
+        self._val_plan = plan
 
     # ---------------------------------------------------------------- the computation
     def _forward_steps(self, a: np.ndarray, buf: _Buffers) -> Steps:

@@ -166,3 +166,17 @@ def test_config_normalises_hidden_and_resolves_init():
     assert NetConfig(activation="tanh").init_scheme == "glorot"
     assert NetConfig(activation="relu", init="glorot").init_scheme == "glorot"
     assert NetConfig(hidden=[3]).to_dict()["hidden"] == [3]
+
+
+def test_validation_in_several_chunks_scores_every_row():
+    # a wide layer makes the validation pass run in chunks of rows (work arrays kept small)
+    rng = np.random.default_rng(8)
+    Xs, ys = _members("multiclass", rng, [40, 30])
+    Xv, yv = _members("multiclass", rng, [1500, 1100])
+    trainer = StackTrainer(NetConfig(hidden=(3000,), epochs=1), "multiclass", 3, Xs, ys, Xv, yv, seeds=[0, 1])
+    last = trainer.run()[-1]
+    for i in range(2):
+        out = trainer.predict_output(i, Xv[i])
+        assert last.val_metric[i] == pytest.approx(metrics.compute("balanced_accuracy", yv[i], out, "multiclass", 3))
+        expected = -np.mean(np.log(np.clip(out[np.arange(len(yv[i])), yv[i]], 1e-7, 1)))
+        assert last.val_loss[i] == pytest.approx(expected, rel=1e-5)
