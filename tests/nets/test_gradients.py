@@ -46,12 +46,13 @@ def _numeric_gradient(trainer, weights):
 
 CASES = [(act, task, l2, (5, 3)) for act in sorted(ACTIVATIONS) for task in TASKS for l2 in (0.0, 0.7)]
 CASES += [("relu", task, l2, ()) for task in TASKS for l2 in (0.0, 0.7)]   # no hidden layer
+CASES = [case + (3,) for case in CASES] + [("tanh", "multiclass", 0.7, (5,), 10)]  # many-class softmax path
 
 
-@pytest.mark.parametrize("activation, task, l2, hidden", CASES)
-def test_gradient_matches_central_differences(activation, task, l2, hidden):
-    rng = np.random.default_rng(zlib.crc32(repr((activation, task, l2, hidden)).encode()))
-    X, y, k = task_data(task, rng, n=25, d=4)
+@pytest.mark.parametrize("activation, task, l2, hidden, classes", CASES)
+def test_gradient_matches_central_differences(activation, task, l2, hidden, classes):
+    rng = np.random.default_rng(zlib.crc32(repr((activation, task, l2, hidden, classes)).encode()))
+    X, y, k = task_data(task, rng, n=25, d=4, classes=classes)
     sizes = (4, *hidden, k)
     weights = random_weights(rng, sizes, activation, OUTPUT_FOR_TASK[task])
     config = NetConfig(hidden=hidden, activation=activation, l2=l2, dtype="float64")
