@@ -309,3 +309,7 @@ def show_command(args) -> int:
 
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
     return EXIT_OK
+
+
+#: Public name of the reader (``labbench report`` and the window open stored searches with it).
+open_for_reading = _open_for_reading

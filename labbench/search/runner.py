@@ -32,110 +32,22 @@ import math
 import os
 import threading
 import time
-from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 from labbench import errors
 from labbench.errors import LabbenchError, SpecError
 from labbench.search import events as ev
+from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
+                                         best_of, count_states, eta, positive, study_attrs)
 from labbench.search.objective import curve_attr, cv_summary, one_line
-from labbench.search.storage import (LABBENCH_FORMAT, Heartbeat, mask_url, open_storage,
-                                     open_study, plain, resolve_url, versions)
-from labbench.search.strategy import (intermediate_sign, make_pruner, make_sampler,
-                                      route_optuna_logging)
+from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
+                                     open_study, plain, resolve_url)
+from labbench.search.strategy import intermediate_sign, make_pruner, make_sampler, \
+    route_optuna_logging
+
+__all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
 log = logging.getLogger("labbench.search.runner")
-
-CANCELLED = "cancelled by the user"
-LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
-STATE_NAMES = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
-               "RUNNING": "running", "WAITING": "waiting"}
-
-
-@dataclass(frozen=True)
-class SearchOutcome:
-    reason: str                          # "budget" | "time" | "cancelled" | "error"
-    study_name: str
-    storage: str                         # URL, passwords masked
-    counts: Mapping[str, int]            # trials per state in storage (all runs)
-    best_number: int | None
-    best_value: float | None
-    trials_run: int                      # trials this run finished
-    elapsed_s: float
-    message: str = ""
-    url: str = field(default="", repr=False)   # the real URL (to reopen the study)
-
-    @property
-    def cancelled(self) -> bool:
-        return self.reason == "cancelled"
-
-
-@dataclass
-class _InFlight:
-    trial: Any
-    slot: Any
-    settings: dict
-    started: float                       # asked; reset when the worker begins training it
-    points: list = field(default_factory=list)
-    stopping: str | None = None          # "pruned" | "cancelled"
-    stop_epoch: int = 0
-    training: bool = False
-
-    @property
-    def number(self) -> int:
-        return self.trial.number
-
-
-class _Heartbeats:
-    """Records a heartbeat for every trial in flight every ``interval`` seconds."""
-
-    def __init__(self, storage, interval: float):
-        self._storage, self._interval = storage, interval
-        self._ids: set[int] = set()
-        self._lock = threading.Lock()
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._beat, name="labbench-heartbeat", daemon=True)
-
-    def start(self) -> None:
-        self._thread.start()
-
-    def add(self, trial_id: int) -> None:
-        self._storage.record_heartbeat(trial_id)
-        with self._lock:
-            self._ids.add(trial_id)
-
-    def discard(self, trial_id: int) -> None:
-        with self._lock:
-            self._ids.discard(trial_id)
-
-    def _beat(self) -> None:
-        while not self._stop.wait(self._interval):
-            with self._lock:
-                ids = list(self._ids)
-            for trial_id in ids:
-                try:
-                    self._storage.record_heartbeat(trial_id)
-                except Exception as exc:  # a busy database must not kill the search
-                    log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
-
-    def stop(self) -> None:
-        self._stop.set()
-        if self._thread.is_alive():
-            self._thread.join(5.0)
-
-
-def _positive(value, name: str, kind=int):
-    if value is None:
-        return None
-    try:
-        number = kind(value)
-    except (TypeError, ValueError):
-        number = None
-    if number is None or isinstance(value, bool) or not number > 0 or not math.isfinite(number):
-        what = "a whole number of at least 1" if kind is int else "a number above 0"
-        raise SpecError(f"{name}: {value!r} is not allowed; give {what}")
-    return number
-
 
 class SearchRunner:
     """One run of a search (see the module text). ``emit`` receives every event, in order.
@@ -152,10 +64,10 @@ class SearchRunner:
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
-        self.trials = _positive(trials, "--trials") if trials is not None else spec.search.trials
-        self.minutes = (_positive(minutes, "--minutes", float) if minutes is not None
+        self.trials = positive(trials, "--trials") if trials is not None else spec.search.trials
+        self.minutes = (positive(minutes, "--minutes", float) if minutes is not None
                         else spec.search.minutes)
-        self.workers = _positive(workers, "--workers") if workers is not None else spec.search.workers
+        self.workers = positive(workers, "--workers") if workers is not None else spec.search.workers
         if self.trials is None and self.minutes is None:
             raise SpecError("search: no budget; give trials or minutes")
         self.fresh = fresh
@@ -166,26 +78,6 @@ class SearchRunner:
 
     # ------------------------------------------------------------------------------------
     # setup
-
-    def _study_attrs(self, prepared) -> dict[str, Any]:
-        spec, table = self.spec, prepared.table
-        return plain({
-            "spec_toml": spec.to_toml(),
-            "spec_path": str(spec.source_path or ""),
-            "data_sha256": table.sha256,
-            "data_path": str(spec.data.path),
-            "task": prepared.task,
-            "metric": prepared.metric,
-            "direction": prepared.direction,
-            "classes": list(table.classes) if table.classes is not None else None,
-            "n_rows": int(len(prepared.train_pos)),
-            "n_holdout": int(len(prepared.holdout_pos)),
-            "versions": versions(),
-            "labbench_format": LABBENCH_FORMAT,
-            "searched": spec.space.searched_params(),
-            "log_scaled": spec.space.log_scaled_params(),
-            "intermediate_sign": intermediate_sign(prepared.direction),
-        })
 
     def run(self, cancel: threading.Event | None = None) -> SearchOutcome:
         from labbench.search.prepare import prepare
@@ -204,12 +96,12 @@ class SearchRunner:
         name = self.spec.study_name()
         self.study, resumed = open_study(
             storage, name, url=self.url, direction=prepared.direction,
-            attrs=self._study_attrs(prepared), sampler=self.sampler, pruner=self.pruner,
+            attrs=study_attrs(self.spec, prepared), sampler=self.sampler, pruner=self.pruner,
             fresh=self.fresh)
         existing = self.study.get_trials(deepcopy=False)
-        self.best = self._best_of(existing)
+        self.best = best_of(existing, self.direction)
         self.asked = self.finished = 0
-        self.in_flight: dict[int, _InFlight] = {}      # trial number -> its state here
+        self.in_flight: dict[int, InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
         self.next_stale_check = 0.0
         self.prunes = self.spec.search.pruner != "none"
@@ -233,7 +125,7 @@ class SearchRunner:
         self.emit(ev.Progress(0, self.trials, 0.0, None))
 
         self.pool = WorkerPool(self.spec, self.workers, data_sha256=prepared.table.sha256)
-        self.beats = _Heartbeats(storage, self.heartbeat.interval)
+        self.beats = HeartbeatThread(storage, self.heartbeat.interval)
         error: BaseException | None = None
         try:
             self.pool.start()
@@ -357,7 +249,7 @@ class SearchRunner:
         trial.set_user_attr("settings", plain(settings))
         trial.set_user_attr("worker", slot.label)
         trial.set_user_attr("end_reason", LOST)   # overwritten when the trial ends here
-        self.in_flight[trial.number] = _InFlight(trial, slot, settings, time.monotonic())
+        self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
         self.pool.assign(slot, trial.number, plain(settings))
 
     def _handle(self, message: tuple) -> None:
@@ -415,7 +307,7 @@ class SearchRunner:
             log.error("a worker process could not start:\n%s", text)
             raise RuntimeError(f"a worker process could not start: {one_line(text)}")
 
-    def _epoch(self, flight: _InFlight, epoch, train_loss, val_loss, val_metric) -> None:
+    def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
         if math.isfinite(val_loss):
             flight.trial.report(self.sign * float(val_loss), step=int(epoch))
@@ -425,7 +317,7 @@ class SearchRunner:
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
 
-    def _done(self, flight: _InFlight, result: Mapping[str, Any]) -> None:
+    def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
         if flight.stopping == "pruned":
             last = flight.points[-1][2] if flight.points else float("nan")
             reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "
@@ -448,7 +340,7 @@ class SearchRunner:
     # ------------------------------------------------------------------------------------
     # ending trials
 
-    def _finish(self, flight: _InFlight, state: str, *, value: float | None = None,
+    def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
                 reason: str = "", fold_scores=(), epochs_run: int | None = None) -> None:
         from optuna.exceptions import UpdateFinishedTrialError
         from optuna.trial import TrialState
@@ -482,7 +374,7 @@ class SearchRunner:
                          tuple(attrs["fold_scores"]), dict(trial.params))
             self._emit_best(self.best)
         elapsed = self._elapsed()
-        self.emit(ev.Progress(self.finished, self.trials, elapsed, self._eta(elapsed)))
+        self.emit(ev.Progress(self.finished, self.trials, elapsed, eta(self.trials, self.minutes, self.finished, elapsed)))
 
     def _abandon_in_flight(self, reason: str) -> None:
         """Tell every trial still in flight FAIL (cancel deadline passed, or an error)."""
@@ -502,36 +394,14 @@ class SearchRunner:
             return True
         return value > self.best[1] if self.direction == "maximize" else value < self.best[1]
 
-    def _best_of(self, trials) -> tuple | None:
-        from optuna.trial import TrialState
-
-        done = [t for t in trials if t.state == TrialState.COMPLETE and t.value is not None]
-        if not done:
-            return None
-        pick = max if self.direction == "maximize" else min
-        t = pick(done, key=lambda t: t.value)
-        return (t.number, float(t.value), float(t.user_attrs.get("cv_std") or 0.0),
-                tuple(t.user_attrs.get("fold_scores") or ()), dict(t.params))
-
     def _emit_best(self, best: tuple) -> None:
         number, value, std, folds, params = best
         self.emit(ev.NewBest(number, value, std, folds, params))
 
-    def _eta(self, elapsed: float) -> float | None:
-        estimates = []
-        if self.trials is not None and self.finished:
-            estimates.append(max(0.0, (self.trials - self.finished) * elapsed / self.finished))
-        if self.minutes is not None:
-            estimates.append(max(0.0, 60.0 * self.minutes - elapsed))
-        return min(estimates) if estimates else None
-
     def _outcome(self) -> SearchOutcome:
-        counts = {name: 0 for name in STATE_NAMES.values()}
         trials = self.study.get_trials(deepcopy=False)
-        for t in trials:
-            counts[STATE_NAMES.get(t.state.name, t.state.name.lower())] = \
-                counts.get(STATE_NAMES.get(t.state.name, t.state.name.lower()), 0) + 1
-        best = self._best_of(trials)
+        counts = count_states(trials)
+        best = best_of(trials, self.direction)
         reason = self.stop_reason or "budget"
         message = self.message
         if not message:

@@ -16,6 +16,7 @@ import logging
 import os
 import platform
 import re
+import threading
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -294,6 +295,44 @@ def open_study(
     for key, value in attrs.items():
         study.set_user_attr(key, value)
     return study, exists
+
+
+class HeartbeatThread:
+    """Records a heartbeat for every trial in flight every ``interval`` seconds."""
+
+    def __init__(self, storage, interval: float):
+        self._storage, self._interval = storage, interval
+        self._ids: set[int] = set()
+        self._lock = threading.Lock()
+        self._stop = threading.Event()
+        self._thread = threading.Thread(target=self._beat, name="labbench-heartbeat", daemon=True)
+
+    def start(self) -> None:
+        self._thread.start()
+
+    def add(self, trial_id: int) -> None:
+        self._storage.record_heartbeat(trial_id)
+        with self._lock:
+            self._ids.add(trial_id)
+
+    def discard(self, trial_id: int) -> None:
+        with self._lock:
+            self._ids.discard(trial_id)
+
+    def _beat(self) -> None:
+        while not self._stop.wait(self._interval):
+            with self._lock:
+                ids = list(self._ids)
+            for trial_id in ids:
+                try:
+                    self._storage.record_heartbeat(trial_id)
+                except Exception as exc:  # a busy database must not kill the search
+                    log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
+
+    def stop(self) -> None:
+        self._stop.set()
+        if self._thread.is_alive():
+            self._thread.join(5.0)
 
 
 def versions() -> dict[str, str]:
