@@ -27,6 +27,9 @@ def make_app(argv: list[str] | None = None) -> QApplication:
         app = QApplication(argv if argv is not None else sys.argv[:1])
     QCoreApplication.setOrganizationName(ORGANIZATION)
     QCoreApplication.setApplicationName(APPLICATION)
+    if app.property("labbench_styled"):      # styling again would re-polish every live widget
+        return app
+    app.setProperty("labbench_styled", True)
     import pyqtgraph as pg
 
     from labbench.gui.theme import Theme, stylesheet

@@ -43,7 +43,8 @@ def settings_text(settings: Mapping[str, Any]) -> str:
 
 class BestPanel(Panel):
     def __init__(self, parent=None):
-        super().__init__("Best so far", "the finished trial with the best cross-validated score", parent)
+        super().__init__("Best so far", "The finished trial with the best cross-validated score; after the "
+                         "search, its check on the hold-out rows and across seeds.", parent, short=" ")
         self.scroll = QScrollArea()
         self.scroll.setWidgetResizable(True)
         self.scroll.setFrameShape(QScrollArea.Shape.NoFrame)

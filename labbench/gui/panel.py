@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import textwrap
 from pathlib import Path
 
 import pyqtgraph as pg
@@ -16,7 +17,7 @@ pg.setConfigOptions(antialias=True)
 class Panel(QFrame):
     """Header (title, hint, extra controls, save button) over one content widget."""
 
-    def __init__(self, title: str, hint: str, parent: QWidget | None = None):
+    def __init__(self, title: str, hint: str, parent: QWidget | None = None, short: str = ""):
         super().__init__(parent)
         self.setObjectName("panel")
         self.setFrameShape(QFrame.Shape.StyledPanel)
@@ -30,7 +31,8 @@ class Panel(QFrame):
         label.setObjectName("panelTitle")
         label.setToolTip(hint)
         head.addWidget(label)
-        self.hint = QLabel(hint)
+        self.hint = QLabel(short or hint)
+        self.hint.setToolTip(hint)
         self.hint.setObjectName("panelHint")
         self.hint.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         head.addWidget(self.hint, 1)
@@ -57,6 +59,9 @@ class Panel(QFrame):
             axis = item.getAxis(name)
             axis.setPen(pg.mkPen(fg))
             axis.setTextPen(pg.mkPen(fg))
+            # scores read as they are, no "(x0.001)": no range ever switches the prefix on
+            axis.setSIPrefixEnableRanges(((float("inf"), float("inf")),))
+            axis.enableAutoSIPrefix(False)
         item.showGrid(x=True, y=True, alpha=t.grid_alpha)
 
     def export_item(self):
@@ -68,6 +73,7 @@ class Panel(QFrame):
         from pyqtgraph import exporters
 
         path = Path(path)
+        path.parent.mkdir(parents=True, exist_ok=True)
         item = self.export_item()
         if path.suffix.lower() == ".svg":
             exporters.SVGExporter(item).export(str(path))
@@ -78,6 +84,8 @@ class Panel(QFrame):
             exp.params["width"] = width
             exp.params["background"] = theme.Theme.current().background
             exp.export(str(path))
+        if not path.exists():        # QImage.save reports failure only by returning False
+            raise OSError(f"{path}: the picture could not be written")
         return path
 
     def ask_export(self) -> None:
@@ -106,7 +114,8 @@ def centre_message(plot: pg.PlotItem, item: pg.TextItem, text: str | None) -> No
     if not text:
         item.setVisible(False)
         return
-    item.setText(text, color=theme.Theme.current().foreground)
+    wrapped = "\n".join(textwrap.wrap(text, 46)) or text
+    item.setText(wrapped, color=theme.Theme.current().foreground)
     vb = plot.getViewBox()
     (x0, x1), (y0, y1) = vb.viewRange()
     item.setPos((x0 + x1) / 2, (y0 + y1) / 2)
@@ -123,3 +132,30 @@ def curve_pen(t: theme.Theme, state: str, *, best: bool, running: bool, selected
         return pg.mkPen(t.state("best"), width=2.6), 20
     alpha = 150 if state == "complete" else 130
     return pg.mkPen(t.state(state, alpha), width=1.2, style=theme.pen_style(state)), 0
+
+
+def log_ticks(low: float, high: float) -> list[tuple[float, str]]:
+    """Ticks at 1, 2, 5 × 10^k between two positive values, placed at log10 (axis drawn in log10)."""
+    import math
+
+    if not (low > 0 and high > 0):
+        return []
+    lo, hi = math.floor(math.log10(min(low, high))), math.ceil(math.log10(max(low, high)))
+    out = []
+    for k in range(lo, hi + 1):
+        for m in (1, 2, 5):
+            v = m * 10.0 ** k
+            if low / 1.5 <= v <= high * 1.5:
+                out.append((math.log10(v), f"{v:g}"))
+    if len(out) < 2:
+        out = [(math.log10(v), f"{v:.2g}") for v in (low, high)]
+    return out
+
+
+def integer_spacing(axis, largest: int) -> None:
+    """Whole-number ticks for trial numbers and epochs (pyqtgraph's own above 60)."""
+    step = 1 if largest <= 12 else 2 if largest <= 25 else 5 if largest <= 60 else None
+    if step is None:
+        axis.setTickSpacing()
+    else:
+        axis.setTickSpacing(step, step)

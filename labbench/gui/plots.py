@@ -13,7 +13,7 @@ from PySide6.QtCore import Signal
 from PySide6.QtWidgets import QCheckBox
 
 from labbench.gui import core, theme
-from labbench.gui.panel import Panel, centre_message, curve_pen, message_item
+from labbench.gui.panel import Panel, centre_message, curve_pen, integer_spacing, message_item
 from labbench.gui.trialbook import TrialBook
 
 
@@ -21,8 +21,9 @@ class CurvesPanel(Panel):
     """Validation loss per epoch, one line per trial."""
 
     def __init__(self, parent=None):
-        super().__init__("Learning curves", "validation loss by epoch (mean over folds), one line per trial",
-                         parent)
+        super().__init__("Learning curves", "Validation loss after each epoch (mean over the folds), one line "
+                         "per trial: amber is training now, green is the best, dashed were stopped early, "
+                         "dotted failed or were cancelled.", parent, short="validation loss per epoch")
         self.widget = pg.PlotWidget()
         self.plot: pg.PlotItem = self.widget.getPlotItem()
         self.plot.setLabel("bottom", "epoch")
@@ -91,8 +92,8 @@ class ScoresPanel(Panel):
     clicked = Signal(int)
 
     def __init__(self, parent=None):
-        super().__init__("Score by trial", "cross-validated score of each finished trial; the line is the best so far",
-                         parent)
+        super().__init__("Score by trial", "Cross-validated score of each finished trial in the order they "
+                         "ran; the green line is the best so far.", parent, short="the line is the best so far")
         self.widget = pg.PlotWidget()
         self.plot: pg.PlotItem = self.widget.getPlotItem()
         self.plot.setLabel("bottom", "trial")
@@ -140,6 +141,7 @@ class ScoresPanel(Panel):
                           "pen": pg.mkPen(t.background, width=1), "size": 11 if role == "best" else 8})
             self._tips[r.number] = f"trial {r.number}: {r.value:.4g}"
         self.dots.setData(spots)
+        integer_spacing(self.plot.getAxis("bottom"), max((r.number for r in done), default=0))
         xs, ys = core.best_so_far(done, book.direction)
         self.best_line.setData(xs, ys, stepMode=None, connect="finite")
         self.best_line.setPen(pg.mkPen(t.state("best"), width=2))

@@ -10,7 +10,7 @@ from PySide6.QtCore import Signal
 from PySide6.QtWidgets import QScrollArea
 
 from labbench.gui import core, theme
-from labbench.gui.panel import Panel, centre_message, message_item
+from labbench.gui.panel import Panel, centre_message, log_ticks, message_item
 from labbench.gui.trialbook import TrialBook
 
 COLUMNS = 3
@@ -23,8 +23,9 @@ class SettingsPanel(Panel):
     clicked = Signal(int)
 
     def __init__(self, parent=None):
-        super().__init__("Settings against score", "every searched setting against the score of the trials that finished",
-                         parent)
+        super().__init__("Settings against score", "Every searched setting against the score of the trials "
+                         "that finished (log axis where the setting is searched on a log scale).", parent,
+                         short="one picture per searched setting")
         self.layout_widget = pg.GraphicsLayoutWidget()
         self.scroll = QScrollArea()
         self.scroll.setWidgetResizable(True)
@@ -62,8 +63,6 @@ class SettingsPanel(Panel):
             plot = self.layout_widget.addPlot(title=core.param_label(name))
             plot.setMenuEnabled(False)
             self.style_plot(plot, t)
-            if name in book.log_scaled:
-                plot.setLogMode(x=True)
             if i % COLUMNS == 0:
                 plot.setLabel("left", core.metric_label(book.metric) if book.metric else "score")
             dots = pg.ScatterPlotItem(size=8, pxMode=True, hoverable=True)
@@ -97,6 +96,10 @@ class SettingsPanel(Panel):
                 x = self._x(name, r.params[name], cats)
                 if x is None:
                     continue
+                if name in book.log_scaled:
+                    if x <= 0:
+                        continue
+                    x = math.log10(x)
                 role = "best" if r.number == book.best_number else "complete"
                 xs.append(x)
                 ys.append(r.value)
@@ -113,6 +116,9 @@ class SettingsPanel(Panel):
             if cats:
                 plot.getAxis("bottom").setTicks([[(i, str(c)) for i, c in enumerate(cats)]])
                 plot.setXRange(-0.5, len(cats) - 0.5, padding=0.05)
+            elif name in book.log_scaled and xs:
+                # x is drawn as log10(value); the labels show the values themselves
+                plot.getAxis("bottom").setTicks([log_ticks(10 ** min(xs), 10 ** max(xs)), []])
 
     @staticmethod
     def _x(name: str, value: Any, cats: list) -> float | None:
@@ -130,8 +136,9 @@ class ImportancePanel(Panel):
     """Horizontal bars of parameter importance (from ``labbench.search.insight``)."""
 
     def __init__(self, parent=None):
-        super().__init__("Which settings matter", "parameter importance from the finished trials",
-                         parent)
+        super().__init__("Which settings matter", "Parameter importance: how much of the score's variation "
+                         "each searched setting explains, from the finished trials.", parent,
+                         short="parameter importance")
         self.widget = pg.PlotWidget()
         self.plot: pg.PlotItem = self.widget.getPlotItem()
         self.plot.setMenuEnabled(False)

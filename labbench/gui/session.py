@@ -99,6 +99,7 @@ class SearchSession(QObject):
         self._drawn = None
         self._imp_key = None
         self._seen: dict[int, tuple] = {}
+        self.synced = False
         self._imp_at = 0.0
         self.redraw = QTimer(self)
         self.redraw.setInterval(REDRAW_MS)
@@ -129,6 +130,7 @@ class SearchSession(QObject):
         self._imp_key = None
         self._seen: dict[int, tuple] = {}
         self.selected = None
+        self.synced = False          # True once the book was checked against storage at the end
 
     # ------------------------------------------------------------------ running
     def start(self, spec, *, fresh: bool = False) -> None:
@@ -179,6 +181,10 @@ class SearchSession(QObject):
         if thread is not None:
             thread.deleteLater()
         self._imp_key = None       # one last importance read with every trial in
+        if self.url and self.study_name and self.book.study_name:
+            # the stored attrs (std across folds, durations) complete what the events carried
+            url, name = self.url, self.study_name
+            self.reader.submit("final", lambda: core.read_study(self.studies.get(url, name)))
         self.finished.emit(self.result)
         self.changed.emit()
 
@@ -215,6 +221,9 @@ class SearchSession(QObject):
             self._drawn = None
             return
         if error is not None:
+            if key == "final":
+                log.warning("reading the search back from storage failed: %s", error)
+                self.synced = True
             if key == "poll":
                 self.stop_watching()
                 if not (self._quiet_missing and "no search named" in error):
@@ -222,6 +231,11 @@ class SearchSession(QObject):
                 self.url = self.url if self.spec is not None else None
             return
         snaps, best, attrs = result
+        if key == "final":
+            self.book.merge_snapshots(snaps, best_number=best)
+            self.synced = True
+            self.changed.emit()
+            return
         if key == "earlier":
             known = set(self.book.records)
             self.book.merge_snapshots([s for s in snaps if s.number not in known],
@@ -229,6 +243,7 @@ class SearchSession(QObject):
                                       is not None else best)
             return
         if key == "poll" and self.watching:
+            self.synced = True
             b = self.book
             searched = tuple(attrs.get("searched") or ())
             if (searched, attrs.get("direction")) != (b.searched, b.direction):
@@ -244,6 +259,8 @@ class SearchSession(QObject):
         if not (self.url and self.study_name):
             return
         done = sum(1 for r in self.book.records.values() if r.state == "complete")
+        if not done:        # never open a storage before the runner has created it
+            return
         key = (self.url, self.study_name, done)
         if key == self._imp_key or time.monotonic() - self._imp_at < IMPORTANCE_S:
             return

@@ -9,7 +9,7 @@ import logging
 from pathlib import Path
 from typing import Any, Callable
 
-from PySide6.QtCore import QUrl
+from PySide6.QtCore import Qt, QUrl
 from PySide6.QtGui import QDesktopServices, QGuiApplication
 from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
@@ -146,7 +146,11 @@ class Takeaway:
         path = path or self._ask_file("Save the model bundle", "winner.npz", "Model bundle (*.npz)")
         if not path:
             return None
-        out = self._guard("Save model bundle", lambda: api.save_bundle(model, path))
+        def write():
+            bundle = api.save_bundle(model, path)
+            return [bundle, api.write_snippet(bundle)]   # the numpy-only loader beside it
+
+        out = self._guard("Save model bundle", write)
         return self._report_written("Model bundle saved", out, path)
 
     def export_onnx(self, path: str | None = None) -> list[str] | None:
@@ -166,7 +170,11 @@ class Takeaway:
         path = path or self._ask_file("Write the report", "report.html", "HTML report (*.html)")
         if not path:
             return None
-        out = self._guard("Write report", lambda: api.write_report(s.url, path, study_name=s.study_name))
+        self.window.setCursor(Qt.CursorShape.WaitCursor)
+        try:
+            out = self._guard("Write report", lambda: api.write_report(s.url, path, study=s.study_name))
+        finally:
+            self.window.unsetCursor()
         files = self._report_written("Report written", out, path)
         if files:
             self.report_path = str(path)

@@ -204,4 +204,6 @@ def _same(rec: TrialRecord, s: TrialSnapshot) -> bool:
         and rec.value == s.value
         and len(rec.epochs) == len(s.epochs)
         and rec.fold_scores == tuple(s.fold_scores)
+        and rec.cv_std == s.cv_std
+        and rec.duration_s == s.duration_s
     )

@@ -117,8 +117,9 @@ class StateFilter(QSortFilterProxyModel):
         self.setSortRole(SORT_ROLE)
 
     def set_states(self, states: set[str] | None) -> None:
+        self.beginFilterChange()
         self.states = states
-        self.invalidateFilter()
+        self.endFilterChange()
 
     def filterAcceptsRow(self, row: int, parent: QModelIndex) -> bool:
         if self.states is None:
