@@ -126,6 +126,7 @@ def main(argv=None) -> int:
 
     print(f"python {platform.python_version()}, numpy {np.__version__}, scikit-learn {sklearn.__version__}")
     print(blas_line())
+    print("labbench trains on one BLAS thread (labbench.nets.blas) unless a *_NUM_THREADS variable is set")
     rows = [("scikit-learn MLPClassifier, fold after fold", lambda: run_sklearn(folds)),
             ("labbench engine, fold after fold", lambda: run_engine(folds, engine_config(), False)),
             ("labbench engine, 5 folds stacked", lambda: run_engine(folds, engine_config(), True))]
