@@ -42,8 +42,8 @@ from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight,
 from labbench.search.objective import curve_attr, cv_summary, one_line
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
                                      open_study, plain, resolve_url)
-from labbench.search.strategy import intermediate_sign, make_pruner, make_sampler, \
-    route_optuna_logging
+from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
+    route_optuna_logging, warmup_epochs
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
@@ -104,7 +104,8 @@ class SearchRunner:
         self.in_flight: dict[int, InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
         self.next_stale_check = 0.0
-        self.prunes = self.spec.search.pruner != "none"
+        self.should_prune = PruneCheck(self.study, self.pruner, warmup_epochs(self.spec),
+                                       refresh_s=float(self.heartbeat.interval))
         self.stop_reason: str | None = None
         self.message = ""
         self.deadline: float | None = None
@@ -313,7 +314,7 @@ class SearchRunner:
             flight.trial.report(self.sign * float(val_loss), step=int(epoch))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
-        if self.prunes and self.stop_reason != "cancelled" and flight.trial.should_prune():
+        if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch)):
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
 
@@ -361,6 +362,7 @@ class SearchRunner:
                         trial.number)
         self.study.tell(trial, values=value if state == "COMPLETE" else None,
                         state=getattr(TrialState, state), skip_if_finished=True)
+        self.should_prune.invalidate()
         self.in_flight.pop(trial.number, None)
         self.beats.discard(trial._trial_id)
         self.finished += 1
