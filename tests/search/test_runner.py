@@ -260,3 +260,35 @@ def test_worker_bugs_and_crashes_fail_the_trial_with_a_notice_and_the_search_goe
     notices = " ".join(n.text for n in events.of(ev.Notice))
     assert "internal error" in notices and "stopped unexpectedly" in notices
     assert outcome.reason == "budget"
+
+
+def test_the_cached_prune_check_decides_as_optunas_own_should_prune(tmp_path):
+    """PruneCheck (median pruner on a cached list of complete trials) against Optuna's
+    ``Trial.should_prune`` on the same study, at every step of many synthetic trials."""
+    import optuna
+
+    from labbench.search.strategy import PruneCheck
+
+    rng = np.random.default_rng(0)
+    study = optuna.create_study(storage=f"sqlite:///{tmp_path}/p.db",
+                                pruner=optuna.pruners.MedianPruner(n_startup_trials=3,
+                                                                   n_warmup_steps=2))
+    check = PruneCheck(study, study.pruner, warmup=2)
+    decisions = 0
+    for _ in range(25):
+        trial = study.ask()
+        level = rng.uniform(0.5, 2.0)
+        pruned = False
+        for step in range(1, 11):
+            trial.report(level / step + rng.normal(0, 0.02), step=step)
+            mine, theirs = check(trial, step), trial.should_prune()
+            assert mine == theirs, (trial.number, step)
+            decisions += theirs
+            if theirs:
+                study.tell(trial, state=optuna.trial.TrialState.PRUNED)
+                pruned = True
+                break
+        if not pruned:
+            study.tell(trial, level)
+        check.invalidate()
+    assert decisions > 0                      # the comparison covered both answers
