@@ -49,6 +49,8 @@ class InFlight:
     stopping: str | None = None          # "pruned" | "cancelled"
     stop_epoch: int = 0
     training: bool = False
+    unsaved: list = field(default_factory=list)   # (step, value) not yet written to storage
+    saved_at: float = 0.0
 
     @property
     def number(self) -> int:

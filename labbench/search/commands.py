@@ -280,7 +280,7 @@ def trials_table(study) -> str:
     lines = [f"search '{study.study_name}': {direction} {metric}, {len(trials)} trials"]
     lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip())
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows]
-    lines.append(f"(± = standard deviation across folds, ran = epochs trained)")
+    lines.append("(± = standard deviation across folds, ran = epochs trained)")
     done = [t for t in trials if t.value is not None and t.state.name == "COMPLETE"]
     if done:
         pick = max if direction == "maximize" else min

@@ -41,11 +41,14 @@ from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight,
                                          best_of, count_states, eta, positive, study_attrs)
 from labbench.search.objective import curve_attr, cv_summary, one_line
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
-                                     open_study, plain, resolve_url)
+                                     open_study, plain, resolve_url, write_intermediate_values,
+                                     write_user_attrs)
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
+
+SAVE_EVERY_S = 1.0        # per-epoch values reach the storage at least this often
 
 log = logging.getLogger("labbench.search.runner")
 
@@ -247,9 +250,8 @@ class SearchRunner:
                 "used this name differently, run with --fresh or set another [search] name"
             ) from None
         self.beats.add(trial._trial_id)
-        trial.set_user_attr("settings", plain(settings))
-        trial.set_user_attr("worker", slot.label)
-        trial.set_user_attr("end_reason", LOST)   # overwritten when the trial ends here
+        write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
+                                 "end_reason": LOST})   # overwritten when the trial ends here
         self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
         self.pool.assign(slot, trial.number, plain(settings))
 
@@ -311,12 +313,27 @@ class SearchRunner:
     def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
         if math.isfinite(val_loss):
-            flight.trial.report(self.sign * float(val_loss), step=int(epoch))
+            self._report(flight, int(epoch), self.sign * float(val_loss))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
         if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch)):
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
+
+    def _report(self, flight: InFlight, step: int, value: float) -> None:
+        """``trial.report`` in batches: the trial's own copy (what the pruner reads) now, the
+        storage at most every ``SAVE_EVERY_S`` seconds and before the trial is told; pruning
+        decisions are the same, a watcher of the database sees the values a second later."""
+        flight.trial._cached_frozen_trial.intermediate_values[step] = value
+        flight.unsaved.append((step, value))
+        now = time.monotonic()
+        if now - flight.saved_at >= SAVE_EVERY_S:
+            self._save_values(flight)
+            flight.saved_at = now
+
+    def _save_values(self, flight: InFlight) -> None:
+        values, flight.unsaved = flight.unsaved, []
+        write_intermediate_values(self.study, flight.trial._trial_id, values)
 
     def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
         if flight.stopping == "pruned":
@@ -355,8 +372,8 @@ class SearchRunner:
                  "cv_std": float(std) if math.isfinite(std) else None,
                  "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
         try:
-            for key, val in attrs.items():
-                trial.set_user_attr(key, plain(val))
+            self._save_values(flight)
+            write_user_attrs(trial, plain(attrs))
         except UpdateFinishedTrialError:       # failed as stale by another process meanwhile
             log.warning("trial %d was already finished elsewhere; its result is dropped",
                         trial.number)

@@ -297,6 +297,63 @@ def open_study(
     return study, exists
 
 
+def write_intermediate_values(study, trial_id: int, values: list[tuple[int, float]]) -> None:
+    """Store a trial's new per-epoch values (step, value) in one transaction.
+
+    Optuna's ``trial.report`` opens a transaction and looks the trial and the step up for every
+    value (≈0.9 ms each with SQLite); a search reports every epoch, so that was the largest part of
+    the controller's work. On an RDB storage this inserts the rows in one go (≈0.05 ms each) through
+    Optuna 5.0's storage models; anything unexpected falls back to the public per-step call.
+    """
+    if not values:
+        return
+    backend = getattr(study._storage, "_backend", study._storage)
+    try:
+        from optuna.storages import RDBStorage
+        from optuna.storages._rdb import models
+        from optuna.storages._rdb.storage import _create_scoped_session
+
+        if not isinstance(backend, RDBStorage):
+            raise TypeError("not an RDB storage")
+        with _create_scoped_session(backend.scoped_session, True) as session:
+            trial = models.TrialModel.find_or_raise_by_id(trial_id, session)
+            backend.check_trial_is_updatable(trial_id, trial.state)
+            rows = []
+            for step, value in values:
+                stored, kind = models.TrialIntermediateValueModel.intermediate_value_to_stored_repr(
+                    float(value))
+                rows.append(models.TrialIntermediateValueModel(
+                    trial_id=trial_id, step=int(step), intermediate_value=stored,
+                    intermediate_value_type=kind))
+            session.add_all(rows)
+    except (ImportError, AttributeError, TypeError) as exc:
+        log.debug("per-step intermediate values (%s)", exc)
+        for step, value in values:
+            study._storage.set_trial_intermediate_value(trial_id, int(step), float(value))
+
+
+def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
+    """``trial.set_user_attr`` for several keys in one transaction (same fallback as above)."""
+    study = trial.study
+    backend = getattr(study._storage, "_backend", study._storage)
+    try:
+        from optuna.storages import RDBStorage
+        from optuna.storages._rdb import models
+        from optuna.storages._rdb.storage import _create_scoped_session
+
+        if not isinstance(backend, RDBStorage):
+            raise TypeError("not an RDB storage")
+        with _create_scoped_session(backend.scoped_session, True) as session:
+            for key, value in attrs.items():
+                backend._set_trial_attr_without_commit(session, models.TrialUserAttributeModel,
+                                                       trial._trial_id, key, value)
+        trial._cached_frozen_trial.user_attrs.update(attrs)
+    except (ImportError, AttributeError, TypeError) as exc:
+        log.debug("per-key user attrs (%s)", exc)
+        for key, value in attrs.items():
+            trial.set_user_attr(key, value)
+
+
 class HeartbeatThread:
     """Records a heartbeat for every trial in flight every ``interval`` seconds."""
 
