@@ -30,7 +30,9 @@ def add_parser(subparsers) -> None:
         "run", help="run or resume the search of a spec file, headless",
         description="Run the cross-validated search of SPEC.toml (resuming it when the storage "
         "already holds it), then refit the winner, score it once on the hold-out, check its "
-        "spread across seeds and write its files.")
+        "spread across seeds and write its files.",
+        epilog="Exit codes: 0 done, 1 no trial completed (no winner), 2 bad input, "
+        "130 interrupted (Ctrl-C; run the same command again to continue).")
     run.add_argument("spec", metavar="SPEC.toml", help="the experiment's spec file")
     run.add_argument("--trials", type=int, metavar="N",
                      help="trials to add in this run (default: [search] trials)")

@@ -105,15 +105,22 @@ def test_sigkill_loses_no_finished_trial_and_the_orphan_is_retried(tmp_path):
     assert "RUNNING" not in _states(db)
 
 
-def test_ctrl_c_exits_130_and_leaves_no_running_trial(tmp_path):
+@pytest.mark.parametrize("target", ["process", "group"])
+def test_ctrl_c_exits_130_and_leaves_no_running_trial(tmp_path, target):
+    """SIGINT to the command alone, and to its whole process group (what a terminal's Ctrl-C
+    does: the worker processes get it too and must leave the decision to the controller)."""
     iris_csv(tmp_path)
     spec = write_spec(tmp_path, trials=20, space=SPACE, workers=2)
     db = tmp_path / "exp.db"
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")),
-                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
     _wait_for(lambda: _running_with_epochs(db, 0), 240, proc)
     time.sleep(0.5)
-    proc.send_signal(signal.SIGINT)
+    if target == "group":
+        os.killpg(proc.pid, signal.SIGINT)
+    else:
+        proc.send_signal(signal.SIGINT)
     out, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err
     assert "Traceback" not in err and "interrupted" in err
