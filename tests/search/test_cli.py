@@ -137,3 +137,16 @@ def test_progress_line_redraws_on_a_terminal_and_writes_lines_elsewhere():
     assert "\r" not in pipe.getvalue()
     assert any(line.startswith("trial 0 complete rmse 0.8000 in 2s, 3 epochs") for line in lines)
     assert lines[-1].startswith("search ended (budget): 1 complete")
+
+
+def test_a_search_where_every_trial_fails_exits_1_without_a_winner(tmp_path, capsys):
+    from runner_support import diabetes_csv
+
+    diabetes_csv(tmp_path)
+    space = "learning_rate = 10.0\noptimizer = \"sgd\"\nhidden_layers = 1\nhidden_units = 8\nepochs = 5"
+    spec = write_spec(tmp_path, data="diabetes.csv", target="target", trials=2, space=space)
+    assert main(["run", str(spec), "--out", str(tmp_path / "o")]) == 1
+    err = capsys.readouterr().err
+    assert "no trial completed" in err and "Traceback" not in err
+    assert not (tmp_path / "o").exists()
+    assert all(t.state.name == "FAIL" and t.user_attrs["end_reason"] for t in load(tmp_path / "exp.db").trials)
