@@ -55,14 +55,22 @@ class ProgressLine:
 
     # ---- output
 
+    def _out(self, text: str) -> None:
+        """Write and flush; a closed stream (``labbench run ... 2>&1 | head``) turns the line off
+        instead of stopping the search."""
+        try:
+            self.stream.write(text)
+            self.stream.flush()
+        except (OSError, ValueError):
+            self.quiet = True
+
     def _write_line(self, text: str) -> None:
         if self.quiet:
             return
         if self.tty and self._width:
-            self.stream.write("\r" + " " * self._width + "\r")
+            self._out("\r" + " " * self._width + "\r")
             self._width = 0
-        self.stream.write(text + "\n")
-        self.stream.flush()
+        self._out(text + "\n")
 
     def _status(self) -> str:
         if self.budget:
@@ -89,15 +97,13 @@ class ProgressLine:
         self._last_draw = now
         text = self._status()
         pad = max(0, self._width - len(text))
-        self.stream.write("\r" + text + " " * pad)
-        self.stream.flush()
+        self._out("\r" + text + " " * pad)
         self._width = len(text)
 
     def close(self) -> None:
         """End the redrawn line so later output starts on a fresh line."""
         if self.tty and self._width and not self.quiet:
-            self.stream.write("\n")
-            self.stream.flush()
+            self._out("\n")
             self._width = 0
 
     # ---- events

@@ -150,3 +150,13 @@ def test_a_search_where_every_trial_fails_exits_1_without_a_winner(tmp_path, cap
     assert "no trial completed" in err and "Traceback" not in err
     assert not (tmp_path / "o").exists()
     assert all(t.state.name == "FAIL" and t.user_attrs["end_reason"] for t in load(tmp_path / "exp.db").trials)
+
+
+def test_a_closed_progress_stream_does_not_stop_the_search():
+    class Closed(io.StringIO):
+        def write(self, text):
+            raise BrokenPipeError(32, "Broken pipe")
+
+    line = ProgressLine(Closed(), tty=False)
+    _feed(line)                       # no exception: the line just turns itself off
+    assert line.quiet
