@@ -398,10 +398,9 @@ class SearchRunner:
     def _abandon_in_flight(self, reason: str) -> None:
         """Tell every trial still in flight FAIL (cancel deadline passed, or an error)."""
         for flight in list(self.in_flight.values()):
-            if flight.stopping == "cancelled":
-                reason = CANCELLED
+            why = CANCELLED if flight.stopping == "cancelled" else reason
             try:
-                self._finish(flight, "FAIL", reason=reason)
+                self._finish(flight, "FAIL", reason=why)
             except Exception as exc:  # keep going: the others must not stay RUNNING either
                 log.error("could not end trial %d: %s", flight.number, exc)
 
