@@ -8,7 +8,7 @@ from typing import Any, Mapping
 
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QLabel, QScrollArea, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QLabel, QTextBrowser
 
 from labbench.gui import core, theme
 from labbench.gui.panel import Panel
@@ -45,21 +45,14 @@ class BestPanel(Panel):
     def __init__(self, parent=None):
         super().__init__("Best so far", "The finished trial with the best cross-validated score; after the "
                          "search, its check on the hold-out rows and across seeds.", parent, short=" ")
-        self.scroll = QScrollArea()
-        self.scroll.setWidgetResizable(True)
-        self.scroll.setFrameShape(QScrollArea.Shape.NoFrame)
-        inner = QWidget()
-        self.scroll.setWidget(inner)
-        lay = QVBoxLayout(inner)
-        lay.setContentsMargins(0, 0, 0, 0)
         self.headline = QLabel("No finished trial yet.")
         self.headline.setObjectName("bestHeadline")
         self.headline.setWordWrap(True)
+        self.headline.setFixedHeight(50)
         self.headline.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        lay.addWidget(self.headline)
+        self.body.addWidget(self.headline)
         self.folds = pg.PlotWidget()
-        self.folds.setMinimumHeight(110)
-        self.folds.setMaximumHeight(150)
+        self.folds.setFixedHeight(130)
         self.fold_plot = self.folds.getPlotItem()
         self.fold_plot.setMenuEnabled(False)
         self.fold_plot.setMouseEnabled(x=False, y=False)
@@ -69,21 +62,17 @@ class BestPanel(Panel):
         self.fold_plot.addItem(self.fold_bars)
         self.fold_mean = pg.InfiniteLine(angle=0, movable=False)
         self.fold_plot.addItem(self.fold_mean)
-        self.folds.hide()
-        lay.addWidget(self.folds)
-        self.details = QLabel("")
-        self.details.setWordWrap(True)
-        self.details.setTextFormat(Qt.TextFormat.RichText)
-        self.details.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        lay.addWidget(self.details)
-        self.final = QLabel("")
-        self.final.setObjectName("finalBox")
-        self.final.setWordWrap(True)
-        self.final.setTextFormat(Qt.TextFormat.RichText)
-        self.final.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        lay.addWidget(self.final)
-        lay.addStretch(1)
-        self.body.addWidget(self.scroll)
+        self.folds.setVisible(False)
+        self.body.addWidget(self.folds)
+        # one read-only document for the settings and the winner check: new text lays out inside
+        # it and never asks the window for a new layout (rich-text labels did, mid-search)
+        self.text = QTextBrowser()
+        self.text.setFrameShape(QTextBrowser.Shape.NoFrame)
+        self.text.setOpenLinks(False)
+        self.text.viewport().setAutoFillBackground(False)
+        self.body.addWidget(self.text, 1)
+        self.details_html = ""
+        self.final_html = ""
         self._drawn = None
         self.shown_number: int | None = None
         self.shown_value: float | None = None
@@ -91,19 +80,19 @@ class BestPanel(Panel):
     def export_item(self):
         return self.fold_plot
 
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
-        key = (book.best_number, book.version if book.best_number in changed else None,
-               id(book.winner), book.stage, t.background.name())
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
+        key = (book.best_number, book.finished_version, id(book.winner), book.stage,
+               t.background.name())
         if key == self._drawn:
-            return
+            return False
         self._drawn = key
         best = book.best()
         metric = core.metric_label(book.metric) if book.metric else "score"
         if best is None or best.value is None:
             self.headline.setText("No finished trial yet." if not book.records
                                   else "Waiting for the first trial to finish…")
-            self.details.setText("")
-            self.folds.hide()
+            self.details_html = ""
+            self.folds.setVisible(False)
             self.shown_number = self.shown_value = None
         else:
             self.shown_number, self.shown_value = best.number, best.value
@@ -121,17 +110,19 @@ class BestPanel(Panel):
                                f"<td><b>{html.escape(show_value(k, v))}</b></td></tr>"
                                for k, v in best.params.items())
             folds = ", ".join(f"{v:.4g}" for v in best.fold_scores)
-            self.details.setText(f"<table>{rows}</table>"
+            self.details_html = (f"<table>{rows}</table>"
                                  + (f"<p>Per fold: {folds}</p>" if folds else ""))
             self._draw_folds(best.fold_scores, best.value, t)
-        self.final.setText(self._final_text(book))
-        self.final.setVisible(bool(self.final.text()))
+        self.final_html = self._final_text(book)
+        rule = "<hr>" if self.final_html and self.details_html else ""
+        self.text.setHtml(self.details_html + rule + self.final_html)
+        return True
 
     def _draw_folds(self, scores, mean: float, t: theme.Theme) -> None:
         if not scores:
-            self.folds.hide()
+            self.folds.setVisible(False)
             return
-        self.folds.show()
+        self.folds.setVisible(True)
         self.folds.setBackground(t.background)
         self.style_plot(self.fold_plot, t)
         xs = list(range(1, len(scores) + 1))

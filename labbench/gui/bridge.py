@@ -12,6 +12,7 @@
 from __future__ import annotations
 
 import logging
+import os
 import threading
 import traceback
 from concurrent.futures import ThreadPoolExecutor
@@ -92,7 +93,149 @@ class Background(QObject):
         self._pool.submit(work)
         return True
 
+    def submit_process(self, key: str, fn: Callable[..., Any], *args: Any) -> bool:
+        """Run a picklable ``fn(*args)`` in a helper process (spawned on first use).
+
+        For CPU-bound Python (parameter importance): in a thread of this process it would hold
+        the interpreter lock against the GUI thread, and its first call imports modules.
+        """
+        from concurrent.futures import ProcessPoolExecutor
+        import multiprocessing as mp
+
+        with self._lock:
+            if self._closed or key in self._busy:
+                return False
+            self._busy.add(key)
+            if getattr(self, "_procs", None) is None:
+                self._procs = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("spawn"))
+            future = self._procs.submit(fn, *args)
+
+        def finished(f) -> None:
+            try:
+                result, error = f.result(), None
+            except LabbenchError as exc:
+                result, error = None, str(exc)
+            except Exception as exc:
+                result, error = None, f"{type(exc).__name__}: {exc}"
+            with self._lock:
+                self._busy.discard(key)
+                closed = self._closed
+            if not closed:
+                self.done.emit(key, result, error)
+
+        future.add_done_callback(finished)
+        return True
+
     def close(self) -> None:
         with self._lock:
             self._closed = True
         self._pool.shutdown(wait=False, cancel_futures=True)
+        procs = getattr(self, "_procs", None)
+        if procs is not None:
+            procs.shutdown(wait=False, cancel_futures=True)
+
+
+# ------------------------------------------------------------------------------------------
+# the controller in a child process
+
+def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawned process
+    """Run ``job(emit, cancel)``; events, the result or the error go back through ``queue``.
+
+    ``cancel`` (a threading.Event here) is set when the window asks (``stop``) or when the
+    window's process is gone (killed): the search then ends its trials as "cancelled".
+    """
+    import os
+    import pickle
+    import time
+
+    cancel = threading.Event()
+
+    def watch() -> None:
+        while not cancel.is_set():
+            if stop.wait(0.05) or os.getppid() != parent_pid:
+                cancel.set()
+                return
+
+    threading.Thread(target=watch, name="labbench-watch-window", daemon=True).start()
+    try:
+        result = job(lambda e: queue.put(("event", e)), cancel)
+        try:
+            blob = pickle.dumps(result)
+        except Exception as exc:  # a result that cannot travel: keep what can
+            log.warning("the search result could not be sent to the window: %s", exc)
+            blob = pickle.dumps({k: v for k, v in result.items() if k != "model"})
+        queue.put(("done", blob))
+    except LabbenchError as exc:
+        queue.put(("failed", str(exc)))
+    except BaseException as exc:
+        log.error("the search stopped with an error:\n%s", traceback.format_exc())
+        queue.put(("failed", f"the search stopped with an unexpected error: {type(exc).__name__}: {exc}"))
+    finally:
+        time.sleep(0.05)
+
+
+class _EitherSet:
+    """``is_set`` / ``set`` over the process-shared stop flag (what ``SearchThread.cancel`` offers)."""
+
+    def __init__(self, event):
+        self._event = event
+
+    def is_set(self) -> bool:
+        return self._event.is_set()
+
+    def set(self) -> None:
+        self._event.set()
+
+
+class SearchProcess(SearchThread):
+    """Like ``SearchThread`` but ``job`` runs in a spawned process; this QThread only relays.
+
+    The controller is busy Python (Optuna's sampler, pruner, storage); in the window's process it
+    competes with the GUI thread for the interpreter lock and the event loop stalls (see
+    benchmarks/bench_gui.py). ``job`` must be picklable (a module-level function + partial).
+    """
+
+    def __init__(self, job, parent=None):
+        import multiprocessing as mp
+
+        super().__init__(job, parent)
+        ctx = mp.get_context("spawn")
+        self._queue = ctx.Queue()
+        self._stop = ctx.Event()
+        self.cancel = _EitherSet(self._stop)
+        self._proc = ctx.Process(target=_child_main, name="labbench-search",
+                                 args=(job, self._queue, self._stop, os.getpid()))
+
+    def run(self) -> None:  # the relay thread
+        import pickle
+        import queue as queue_mod
+
+        try:
+            self._proc.start()
+        except Exception as exc:
+            self.failed.emit(f"the search process could not start: {type(exc).__name__}: {exc}")
+            return
+        ended = False
+        while not ended:
+            try:
+                kind, payload = self._queue.get(timeout=0.2)
+            except queue_mod.Empty:
+                if not self._proc.is_alive():
+                    try:
+                        kind, payload = self._queue.get(timeout=1.0)
+                    except queue_mod.Empty:
+                        self.failed.emit(f"the search process stopped unexpectedly (exit code "
+                                         f"{self._proc.exitcode}); the trials so far are stored")
+                        break
+                else:
+                    continue
+            if kind == "event":
+                self.event.emit(payload)
+            elif kind == "done":
+                self.outcome.emit(pickle.loads(payload))
+                ended = True
+            else:
+                self.failed.emit(str(payload))
+                ended = True
+        self._proc.join(30.0)
+        self._queue.close()

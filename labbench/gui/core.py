@@ -76,6 +76,19 @@ def best_so_far(done: Sequence[TrialRecord], direction: str) -> tuple[list[float
     return [float(n) for n, _ in pairs], [float(b) for _, b in pairs]
 
 
+def importance_of(url: str, name: str) -> tuple[dict[str, float], str]:
+    """``importance`` of a stored search, opened here (runs in a helper process)."""
+    import optuna
+
+    from labbench.search.storage import quiet_optuna_warnings
+    from labbench.search.strategy import route_optuna_logging
+
+    route_optuna_logging()
+    quiet_optuna_warnings()
+    storage = optuna.storages.RDBStorage(url, skip_table_creation=True)
+    return importance(optuna.load_study(study_name=name, storage=storage))
+
+
 def importance(study) -> tuple[dict[str, float], str]:
     """(name → share, message) for a study, from ``insight.param_importance`` (off the GUI thread)."""
     from labbench.search import insight

@@ -6,7 +6,7 @@ import textwrap
 from pathlib import Path
 
 import pyqtgraph as pg
-from PySide6.QtWidgets import (QFileDialog, QFrame, QHBoxLayout, QLabel, QSizePolicy, QToolButton,
+from PySide6.QtWidgets import (QFileDialog, QGraphicsItem, QFrame, QHBoxLayout, QLabel, QSizePolicy, QToolButton,
                                QVBoxLayout, QWidget)
 
 from labbench.gui import theme
@@ -62,6 +62,9 @@ class Panel(QFrame):
             # scores read as they are, no "(x0.001)": no range ever switches the prefix on
             axis.setSIPrefixEnableRanges(((float("inf"), float("inf")),))
             axis.enableAutoSIPrefix(False)
+            # an axis is redrawn from a pixmap until its range changes: replaying its text on
+            # every frame was the largest share of a live redraw
+            axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         item.showGrid(x=True, y=True, alpha=t.grid_alpha)
 
     def export_item(self):
@@ -125,13 +128,14 @@ def centre_message(plot: pg.PlotItem, item: pg.TextItem, text: str | None) -> No
 def curve_pen(t: theme.Theme, state: str, *, best: bool, running: bool, selected: bool):
     """Pen of a learning curve by its trial's role (selected > running > best > state)."""
     if selected:
-        return pg.mkPen(t.state("selected"), width=3.2), 40
+        return pg.mkPen(t.state("selected"), width=3.2), 40, True
     if running:
-        return pg.mkPen(t.state("running"), width=2.6), 30
+        return pg.mkPen(t.state("running"), width=2.6), 30, True
     if best:
-        return pg.mkPen(t.state("best"), width=2.6), 20
+        return pg.mkPen(t.state("best"), width=2.6), 20, True
     alpha = 150 if state == "complete" else 130
-    return pg.mkPen(t.state(state, alpha), width=1.2, style=theme.pen_style(state)), 0
+    # the many background lines are drawn without antialiasing: a third of the paint time
+    return pg.mkPen(t.state(state, alpha), width=1, style=theme.pen_style(state)), 0, False
 
 
 def log_ticks(low: float, high: float) -> list[tuple[float, str]]:

@@ -49,7 +49,7 @@ class CurvesPanel(Panel):
         self.curves.clear()
         self._styles.clear()
 
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
         key = (t.background.name(), t.foreground.name())
         if key != self._theme_key:
             self._theme_key = key
@@ -75,9 +75,11 @@ class CurvesPanel(Panel):
             rec = book.records[number]
             role = (rec.state, number == book.best_number, number == book.running_number, number == selected)
             if self._styles.get(number) != role:
-                pen, z = curve_pen(t, rec.state, best=role[1], running=role[2], selected=role[3])
+                pen, z, smooth = curve_pen(t, rec.state, best=role[1], running=role[2], selected=role[3])
                 curve.setPen(pen)
                 curve.setZValue(z)
+                curve.curve.opts["antialias"] = smooth
+                curve.opts["antialias"] = smooth
                 self._styles[number] = role
         centre_message(self.plot, self.message,
                        None if any(len(r.epochs) for r in book.records.values())
@@ -122,10 +124,10 @@ class ScoresPanel(Panel):
         if len(points):
             self.clicked.emit(int(points[0].data()))
 
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
-        key = (book.version, selected, t.background.name())
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
+        key = (book.finished_version, selected, t.background.name())
         if key == self._drawn:
-            return
+            return False
         self._drawn = key
         self.widget.setBackground(t.background)
         self.style_plot(self.plot, t)
@@ -153,3 +155,4 @@ class ScoresPanel(Panel):
             self.ring.setData([], [])
         centre_message(self.plot, self.message,
                        None if done else "Each finished trial adds a dot here.")
+        return True

@@ -36,6 +36,7 @@ class SettingsPanel(Panel):
         self.categories: dict[str, list] = {}
         self._structure = None
         self._drawn = None
+        self._to_build: list[tuple[int, str]] = []
         self.placeholder = None
 
     def export_item(self):
@@ -43,6 +44,7 @@ class SettingsPanel(Panel):
 
     def _rebuild(self, book: TrialBook, names: list[str], t: theme.Theme) -> None:
         self.layout_widget.clear()
+        self._to_build = []
         self.plots.clear()
         self.categories.clear()
         self.layout_widget.setBackground(t.background)
@@ -57,33 +59,41 @@ class SettingsPanel(Panel):
             self.layout_widget.setMinimumHeight(ROW_HEIGHT)
             return
         self.placeholder = None
-        for i, name in enumerate(names):
-            if i and i % COLUMNS == 0:
-                self.layout_widget.nextRow()
-            plot = self.layout_widget.addPlot(title=core.param_label(name))
-            plot.setMenuEnabled(False)
-            self.style_plot(plot, t)
-            if i % COLUMNS == 0:
-                plot.setLabel("left", core.metric_label(book.metric) if book.metric else "score")
-            dots = pg.ScatterPlotItem(size=8, pxMode=True, hoverable=True)
-            dots.sigClicked.connect(lambda _i, pts, *_a: pts and self.clicked.emit(int(pts[0].data())))
-            ring = pg.ScatterPlotItem(size=16, pxMode=True)
-            plot.addItem(dots)
-            plot.addItem(ring)
-            self.plots[name] = (plot, dots, ring)
+        self._to_build = list(enumerate(names))
         rows = math.ceil(len(names) / COLUMNS)
         self.layout_widget.setMinimumHeight(rows * ROW_HEIGHT)
 
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
+    def _build_one(self, book: TrialBook, t: theme.Theme) -> None:
+        """Add the next small picture (one per redraw tick: creating plots is not cheap)."""
+        i, name = self._to_build.pop(0)
+        if i and i % COLUMNS == 0:
+            self.layout_widget.nextRow()
+        plot = self.layout_widget.addPlot(title=core.param_label(name))
+        plot.setMenuEnabled(False)
+        self.style_plot(plot, t)
+        if i % COLUMNS == 0:
+            plot.setLabel("left", core.metric_label(book.metric) if book.metric else "score")
+        dots = pg.ScatterPlotItem(size=8, pxMode=True, hoverable=True)
+        dots.sigClicked.connect(lambda _i, pts, *_a: pts and self.clicked.emit(int(pts[0].data())))
+        ring = pg.ScatterPlotItem(size=16, pxMode=True)
+        plot.addItem(dots)
+        plot.addItem(ring)
+        self.plots[name] = (plot, dots, ring)
+
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
         names = core.searched_names(book)
         structure = (tuple(names), book.structure_version, t.background.name())
         if structure != self._structure:
             self._structure = structure
             self._rebuild(book, names, t)
             self._drawn = None
-        key = (book.version, selected)
+        if self._to_build:
+            self._build_one(book, t)
+            self._drawn = None
+            return True
+        key = (book.finished_version, selected)
         if key == self._drawn:
-            return
+            return False
         self._drawn = key
         done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
         for name, (plot, dots, ring) in self.plots.items():
@@ -119,6 +129,7 @@ class SettingsPanel(Panel):
             elif name in book.log_scaled and xs:
                 # x is drawn as log10(value); the labels show the values themselves
                 plot.getAxis("bottom").setTicks([log_ticks(10 ** min(xs), 10 ** max(xs)), []])
+        return True
 
     @staticmethod
     def _x(name: str, value: Any, cats: list) -> float | None:
@@ -163,10 +174,10 @@ class ImportancePanel(Panel):
         self.text = message or ""
         self._drawn = None
 
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
         key = (tuple(self.values.items()), self.text, t.background.name())
         if key == self._drawn:
-            return
+            return False
         self._drawn = key
         self.widget.setBackground(t.background)
         self.style_plot(self.plot, t)
@@ -183,3 +194,4 @@ class ImportancePanel(Panel):
             self.plot.setYRange(0, 1, padding=0)
         centre_message(self.plot, self.message, None if names else
                        (self.text or "Importance appears once enough trials have finished."))
+        return True

@@ -14,7 +14,9 @@ from typing import Any
 from PySide6.QtCore import QObject, QTimer, Signal
 
 from labbench.gui import core, theme
-from labbench.gui.bridge import Background, SearchThread
+import functools
+
+from labbench.gui.bridge import Background, SearchProcess, SearchThread
 from labbench.gui.trialbook import TrialBook
 from labbench.search import events as ev
 
@@ -26,7 +28,7 @@ IMPORTANCE_S = 4.0      # importance is recomputed at most this often
 
 
 def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
-    """What ``labbench run`` does, in the worker thread: the search, then the winner check."""
+    """What ``labbench run`` does: the search, then the winner check (in the search process)."""
     from labbench.search.commands import out_dir
     from labbench.search.runner import SearchRunner
     from labbench.search.winner import finalize
@@ -92,6 +94,7 @@ class SearchSession(QObject):
         self.url: str | None = None
         self.study_name: str | None = None
         self.watching = False
+        self.in_process = False      # True: the controller in a QThread of this process
         self._quiet_missing = False
         self.reader = Background(self)
         self.reader.done.connect(self._read_done)
@@ -133,7 +136,10 @@ class SearchSession(QObject):
         self.synced = False          # True once the book was checked against storage at the end
 
     # ------------------------------------------------------------------ running
-    def start(self, spec, *, fresh: bool = False) -> None:
+    def start(self, spec, *, fresh: bool = False, in_process: bool | None = None) -> None:
+        """Run the search. By default the controller runs in a child process (``SearchProcess``)
+        so its Python work never competes with the event loop; ``in_process=True`` runs it in a
+        worker QThread of this process instead."""
         from labbench.search.storage import resolve_url
 
         if self.running:
@@ -143,7 +149,9 @@ class SearchSession(QObject):
         self.spec = spec
         self.url = resolve_url(spec)
         self.study_name = spec.study_name()
-        self.thread = SearchThread(lambda emit, cancel: run_search(spec, emit, cancel, fresh=fresh), self)
+        in_process = self.in_process if in_process is None else in_process
+        job = functools.partial(run_search, spec, fresh=fresh)
+        self.thread = SearchThread(job, self) if in_process else SearchProcess(job, self)
         self.thread.event.connect(self._on_event)
         self.thread.failed.connect(self._on_failed)
         self.thread.outcome.connect(self._on_outcome)
@@ -215,6 +223,8 @@ class SearchSession(QObject):
             self.reader.submit("poll", lambda: core.read_study(self.studies.get(url, name)))
 
     def _read_done(self, key: str, result, error: str | None) -> None:
+        if key == "warm":
+            return
         if key == "importance":
             values, message = result if error is None else ({}, f"Importance could not be read: {error}")
             self.view.importance.show_result(values, message)
@@ -268,7 +278,7 @@ class SearchSession(QObject):
             return
         self._imp_key, self._imp_at = key, time.monotonic()
         url, name = self.url, self.study_name
-        self.reader.submit("importance", lambda: core.importance(self.studies.get(url, name)))
+        self.reader.submit_process("importance", core.importance_of, url, name)
 
     # ------------------------------------------------------------------ drawing
     def draw(self) -> None:
@@ -276,8 +286,33 @@ class SearchSession(QObject):
         key = (self.book.version, self.selected, t.background.name())
         if key == self._drawn:
             return
-        self._drawn = key
-        self.view.refresh(self.book, self.book.take_changed(), self.selected, t)
+        pending = self.view.refresh(self.book, self.book.take_changed(), self.selected, t)
+        # a picture that waited for its turn is drawn on the next tick
+        self._drawn = None if pending else key
+
+    def flush(self) -> None:
+        """Bring every picture up to date now (before exporting, and in tests)."""
+        t = theme.Theme.current()
+        for _ in range(12):
+            if not self.view.refresh(self.book, self.book.take_changed(), self.selected, t):
+                break
+        self._drawn = (self.book.version, self.selected, t.background.name())
+
+    def warm_up(self) -> None:
+        """Import the search machinery on the reader thread once the window is up, so that
+        starting a search never stalls the event loop on a first import."""
+        def imports():
+            import optuna  # noqa: F401
+            import sqlalchemy  # noqa: F401
+
+            from labbench.search import commands, insight, runner, storage, winner  # noqa: F401
+            try:
+                import labbench.export  # noqa: F401
+            except ImportError:
+                pass
+            return True
+
+        self.reader.submit("warm", imports)
 
     def close(self) -> None:
         self.redraw.stop()

@@ -114,6 +114,7 @@ class Takeaway:
         path = path or self._ask_file("Save the trials table", "trials.csv", "CSV table (*.csv)")
         if not path:
             return None
+        self.session.flush()
         out = self._guard("Save the trials table", lambda: self.window.watch.table.export_csv(path))
         if out:
             self._status(f"Trials table saved to {out}")
@@ -125,6 +126,7 @@ class Takeaway:
         if not folder:
             return []
         written: list[str] = []
+        self.session.flush()
         for panel in self.window.watch.panels:
             stem = panel.title.lower().replace(" ", "_")
             for suffix in (".png", ".svg"):

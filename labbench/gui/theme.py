@@ -137,13 +137,18 @@ def stylesheet() -> str:
     muted = QColor(text)
     muted.setAlpha(150)
     on_accent = QColor("#101010") if t.dark else QColor("#ffffff")
+    base = pal.color(QPalette.ColorRole.Base)
+    # the accent blended onto the base colour, opaque (a see-through chunk repaints its parent)
+    solid = QColor(int(base.red() * 0.7 + accent.red() * 0.3), int(base.green() * 0.7 + accent.green() * 0.3),
+                   int(base.blue() * 0.7 + accent.blue() * 0.3))
 
     def rgba(c: QColor) -> str:
         return f"rgba({c.red()}, {c.green()}, {c.blue()}, {c.alpha()})"
 
     colours = {"@accent_soft": rgba(soft), "@accent": accent.name(), "@line": rgba(line),
                "@muted": rgba(muted), "@error": t.state("failed").name(),
-               "@on_accent": on_accent.name(), "@window": window.name()}
+               "@on_accent": on_accent.name(), "@window": window.name(),
+               "@accent_solid": solid.name()}
     qss = path.read_text(encoding="utf-8")
     for key in sorted(colours, key=len, reverse=True):
         qss = qss.replace(key, colours[key])

@@ -82,6 +82,7 @@ class TrialBook:
         self.notices: list[ev.Notice] = []
         self.running_number: int | None = None
         self.version = 0
+        self.finished_version = 0       # bumps when a trial ends or the best changes (not per epoch)
         self.structure_version = 0      # bumps when searched settings / direction change
         self.changed: set[int] = set()
 
@@ -91,6 +92,8 @@ class TrialBook:
         if handler is not None:
             handler(event)
             self.version += 1
+            if not isinstance(event, (ev.EpochScored, ev.Progress, ev.TrialStarted)):
+                self.finished_version += 1
 
     def _record(self, number: int) -> TrialRecord:
         rec = self.records.get(number)
@@ -185,6 +188,7 @@ class TrialBook:
         if best_number != self.best_number:
             self.best_number = best_number
         self.version += 1
+        self.finished_version += 1
 
     # ------------------------------------------------------------------ reading
     def ordered(self) -> list[TrialRecord]:

@@ -34,24 +34,43 @@ class TrialsModel(QAbstractTableModel):
         self.rows: list[TrialRecord] = []
         self.params: list[str] = []
         self.best: int | None = None
-        self._seen = None
+        self._columns = list(self.BASE) + ["Note"]
+        self.structure_changed = False
 
     def columns(self) -> list[str]:
-        return self.BASE + [core.param_label(p) for p in self.params] + ["Note"]
+        return self._columns
 
-    def update_from(self, book: TrialBook) -> None:
+    def update_from(self, book: TrialBook, changed: set[int] | None = None) -> None:
+        """Follow the book: new trials are inserted, changed ones repainted, never a full reset
+        unless the searched settings (the columns) change."""
         params = core.searched_names(book)
-        if params != self.params or len(book.records) != len(self.rows):
+        rows = book.ordered()
+        old_best, self.best = self.best, book.best_number
+        if params != self.params or len(rows) < len(self.rows) or \
+                [r.number for r in rows[:len(self.rows)]] != [r.number for r in self.rows]:
             self.beginResetModel()
             self.params = params
-            self.rows = book.ordered()
-            self.best = book.best_number
+            self._columns = self.BASE + [core.param_label(p) for p in params] + ["Note"]
+            self.rows = rows
             self.endResetModel()
+            self.structure_changed = True
             return
-        self.rows = book.ordered()
-        self.best = book.best_number
-        if self.rows:
-            self.dataChanged.emit(self.index(0, 0), self.index(len(self.rows) - 1, self.columnCount() - 1))
+        if len(rows) > len(self.rows):
+            self.beginInsertRows(QModelIndex(), len(self.rows), len(rows) - 1)
+            self.rows = rows
+            self.endInsertRows()
+        self.rows = rows
+        if not rows:
+            return
+        last = self.columnCount() - 1
+        if changed is None:
+            self.dataChanged.emit(self.index(0, 0), self.index(len(rows) - 1, last))
+            return
+        where = {r.number: i for i, r in enumerate(rows)}
+        for number in set(changed) | {old_best, self.best}:
+            i = where.get(number)
+            if i is not None:
+                self.dataChanged.emit(self.index(i, 0), self.index(i, last))
 
     def rowCount(self, parent=QModelIndex()) -> int:
         return 0 if parent.isValid() else len(self.rows)
@@ -172,12 +191,20 @@ class TrialsTable(QWidget):
         self._selected: int | None = None
 
     def _after_reset(self) -> None:
-        self.view.resizeColumnsToContents()
         if self._selected is not None:
             self.select(self._selected, emit=False)
 
-    def refresh(self, book: TrialBook) -> None:
-        self.model.update_from(book)
+    def refresh(self, book: TrialBook, changed: set[int] | None = None) -> None:
+        fresh = not self.model.rows
+        self.model.update_from(book, changed)
+        if self.model.structure_changed or (fresh and self.model.rows):
+            # sized once per set of columns, from the header words (sizing to contents lays
+            # out every cell and costs tens of milliseconds)
+            self.model.structure_changed = False
+            fm = self.view.horizontalHeader().fontMetrics()
+            for col, name in enumerate(self.model.columns()[:-1]):
+                self.view.setColumnWidth(col, max(64, fm.horizontalAdvance(name) + 28,
+                                                  fm.horizontalAdvance("finished ★ best") + 16 if col == 1 else 0))
         counts: dict[str, int] = {}
         for r in book.records.values():
             counts[r.state] = counts.get(r.state, 0) + 1

@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QGridLayout, QHBoxLayout, QLabel, QProgressBar, QPushButton,
-                               QSplitter, QVBoxLayout, QWidget)
+from PySide6.QtGui import QPainter, QPalette, QPen
+from PySide6.QtWidgets import (QGridLayout, QHBoxLayout, QLabel, QPushButton,
+                               QSizePolicy, QSplitter, QVBoxLayout, QWidget)
 
 from labbench.gui import core, theme
 from labbench.gui.best_panel import BestPanel
@@ -27,6 +28,56 @@ def duration_text(seconds: float | None) -> str:
     return f"{hours} h {m:02d} min"
 
 
+class BudgetBar(QWidget):
+    """Trials done against the budget. Drawn by ``paintEvent`` after ``update()``: unlike
+    QProgressBar, a new value never repaints synchronously (which also repainted the plots
+    behind its rounded corners in the middle of a search)."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        self.setAttribute(Qt.WidgetAttribute.WA_OpaquePaintEvent)
+        self.setMinimumSize(120, 24)
+        self.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+        self._value, self._maximum, self._text = 0, 1, ""
+        self.setAccessibleName("Search progress")
+
+    def set(self, value: int, maximum: int, text: str) -> None:
+        if (value, maximum, text) != (self._value, self._maximum, self._text):
+            self._value, self._maximum, self._text = value, max(1, maximum), text
+            self.setAccessibleDescription(text)
+            self.update()
+
+    def value(self) -> int:
+        return self._value
+
+    def maximum(self) -> int:
+        return self._maximum
+
+    def format(self) -> str:
+        return self._text
+
+    def paintEvent(self, _event) -> None:
+        t = theme.Theme.current()
+        pal = self.palette()
+        p = QPainter(self)
+        p.fillRect(self.rect(), pal.color(QPalette.ColorRole.Window))
+        box = self.rect().adjusted(0, 0, -1, -1)
+        p.setRenderHint(QPainter.RenderHint.Antialiasing)
+        p.setPen(QPen(t.state("complete", 110), 1))
+        p.setBrush(pal.color(QPalette.ColorRole.Base))
+        p.drawRoundedRect(box, 4, 4)
+        share = min(1.0, self._value / self._maximum)
+        if share > 0:
+            fill = box.adjusted(2, 2, -2, -2)
+            fill.setWidth(max(4, int(fill.width() * share)))
+            p.setPen(Qt.PenStyle.NoPen)
+            p.setBrush(t.state("best", 95))
+            p.drawRoundedRect(fill, 3, 3)
+        p.setPen(pal.color(QPalette.ColorRole.Text))
+        p.drawText(box, Qt.AlignmentFlag.AlignCenter, self._text)
+        p.end()
+
+
 class WatchPage(QWidget):
     picked = Signal(object)     # trial number or None (from a plot click or the table)
 
@@ -41,19 +92,16 @@ class WatchPage(QWidget):
         for b in (self.start_button, self.stop_button):
             b.setMinimumWidth(84)
             bar.addWidget(b)
-        self.progress = QProgressBar()
-        self.progress.setTextVisible(True)
-        self.progress.setFormat("no search running")
-        self.progress.setRange(0, 1)
-        self.progress.setValue(0)
-        self.progress.setMinimumWidth(120)
+        self.progress = BudgetBar()
+        self.progress.set(0, 1, "no search running")
         bar.addWidget(self.progress, 2)
         self.time_left = QLabel("")
-        self.time_left.setMinimumWidth(110)
+        self.time_left.setFixedWidth(130)          # text changes never re-lay out the page
         bar.addWidget(self.time_left)
         self.in_flight = QLabel("")
         self.in_flight.setObjectName("inFlight")
         self.in_flight.setMinimumWidth(120)
+        self.in_flight.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
         bar.addWidget(self.in_flight, 3)
         outer.addLayout(bar)
 
@@ -91,6 +139,7 @@ class WatchPage(QWidget):
         self.split.setSizes([620, 220])
         outer.addWidget(self.split, 1)
 
+        self._turn = 0
         for p in (self.curves, self.scores, self.settings_plot):
             p.clicked.connect(self._clicked)
         self.table.picked.connect(self.picked)
@@ -102,35 +151,54 @@ class WatchPage(QWidget):
         self.curves.reset()
 
     # ------------------------------------------------------------------ redraw (timer)
-    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> None:
-        for p in self.panels:
-            p.refresh(book, changed, selected, t)
-        self.table.refresh(book)
+    def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
+        """Redraw what changed; returns True when a picture is still waiting for its turn.
+
+        The learning curves follow every tick; of the other pictures at most one redraws per
+        tick (round robin), so one pass of the event loop never paints them all at once.
+        """
+        self.curves.refresh(book, changed, selected, t)
+        others = self.panels[1:]
+        drew = None
+        for i in range(len(others)):
+            p = others[(self._turn + i) % len(others)]
+            if p.refresh(book, changed, selected, t):
+                drew = (self._turn + i) % len(others)
+                break
+        pending = drew is not None
+        if drew is not None:
+            self._turn = drew + 1
+        self.table.refresh(book, changed)
         self._progress(book)
+        return pending
+
+    def _bar(self, low: int, high: int, value: int, text: str) -> None:
+        self.progress.set(value - low, high - low, text)
+
+    @staticmethod
+    def _set(label: QLabel, text: str) -> None:
+        if label.text() != text:
+            label.setText(text)
 
     def _progress(self, book: TrialBook) -> None:
         p = book.progress
         if p is None:
             if book.ended is None and not book.records:
-                self.progress.setRange(0, 1)
-                self.progress.setValue(0)
-                self.progress.setFormat("no search running")
+                self._bar(0, 1, 0, "no search running")
+                self._set(self.time_left, "")
+                self._set(self.in_flight, "")
             return
         if p.budget:
-            self.progress.setRange(0, p.budget)
-            self.progress.setValue(min(p.done, p.budget))
-            self.progress.setFormat(f"{p.done} / {p.budget} trials")
+            self._bar(0, p.budget, min(p.done, p.budget), f"{p.done} / {p.budget} trials")
         else:
-            minutes = book.budget_minutes or 0
-            total = int(minutes * 60) or 1
-            self.progress.setRange(0, total)
-            self.progress.setValue(min(int(p.elapsed_s), total))
-            self.progress.setFormat(f"{p.done} trials in {duration_text(p.elapsed_s)}")
+            total = int((book.budget_minutes or 0) * 60) or 1
+            self._bar(0, total, min(int(p.elapsed_s), total),
+                      f"{p.done} trials in {duration_text(p.elapsed_s)}")
         if book.ended is not None:
-            self.time_left.setText(f"took {duration_text(p.elapsed_s)}")
+            self._set(self.time_left, f"took {duration_text(p.elapsed_s)}")
         else:
-            self.time_left.setText(f"about {duration_text(p.eta_s)} left" if p.eta_s is not None
-                                   else "estimating time left…")
+            self._set(self.time_left, f"about {duration_text(p.eta_s)} left" if p.eta_s is not None
+                      else "estimating time left…")
         run = book.records.get(book.running_number) if book.running_number is not None else None
         if book.ended is not None:
             words = {"budget": "finished: the trial budget is used up",
@@ -139,13 +207,13 @@ class WatchPage(QWidget):
             text = words.get(book.ended.reason, book.ended.reason)
             if book.stage is not None and book.winner is None:
                 text += f" — {book.stage.text}"
-            self.in_flight.setText(text)
+            self._set(self.in_flight, text)
         elif run is not None:
             loss = f", validation loss {run.val_loss[-1]:.4g}" if run.val_loss else ""
             total = f" of {run.epochs_total}" if run.epochs_total else ""
-            self.in_flight.setText(f"training trial {run.number}: epoch {len(run.epochs)}{total}{loss}")
+            self._set(self.in_flight, f"training trial {run.number}: epoch {len(run.epochs)}{total}{loss}")
         else:
-            self.in_flight.setText("picking the next settings…")
+            self._set(self.in_flight, "picking the next settings…")
 
     def metric_word(self, book: TrialBook) -> str:
         return core.metric_label(book.metric) if book.metric else "score"

@@ -84,6 +84,7 @@ class MainWindow(QMainWindow):
         self._restore()
         self.validate()
         self.update_actions()
+        self.session.warm_up()
 
     # ------------------------------------------------------------------ actions and menus
     def _action(self, text: str, slot, icon: str | None = None, shortcut=None, tip: str = "") -> QAction:
@@ -201,8 +202,10 @@ class MainWindow(QMainWindow):
                        (self.act_onnx, "after a search has checked its winner"),
                        (self.act_report, "once a search has a finished trial")):
             a.setToolTip(a.statusTip() + ("" if a.isEnabled() else f" (available {why})"))
-        where = self.session.url or ""
-        self.where_label.setText(f"storage: {_masked(where)}" if where else "")
+        where = self.session.book.storage or self.session.url or ""   # the runner's is masked
+        if where != getattr(self, "_where", None):
+            self._where = where
+            self.where_label.setText(f"storage: {_masked(where)}" if where else "")
 
     # ------------------------------------------------------------------ editing and validation
     def _edited(self) -> None:

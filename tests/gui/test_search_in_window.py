@@ -33,7 +33,7 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     assert w.start()
     assert w.session.running and not w.act_start.isEnabled() and w.act_stop.isEnabled()
     qtbot.waitUntil(lambda: not w.session.running and w.session.synced, timeout=LONG)
-    w.session.draw()
+    w.session.flush()
 
     # the spec the window ran is the file it saved (what `labbench run orchard.toml` would run)
     assert load_spec(tmp_path / "orchard.toml") == w.session.spec
@@ -57,10 +57,10 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     assert f"{best.value:.4g}" in panel.headline.text()
     assert f"{best.user_attrs['cv_std']:.4g}" in panel.headline.text()
     for score in best.user_attrs["fold_scores"]:
-        assert f"{score:.4g}" in panel.details.text()
+        assert f"{score:.4g}" in panel.details_html
     summary = w.session.book.winner
     assert summary["trial_number"] == best.number and summary["cv_mean"] == best.value
-    assert f"{summary['holdout_score']:.4g}" in panel.final.text()
+    assert f"{summary['holdout_score']:.4g}" in panel.final_html
     out = tmp_path / "orchard_out"
     assert json.loads((out / "winner.json").read_text())["trial_number"] == best.number
 
@@ -72,7 +72,7 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     table.filter_box.setCurrentText("every state")
     table.select(trials[0].number)
     assert w.session.selected == trials[0].number
-    w.session.draw()
+    w.session.flush()
     pen = curves[trials[0].number].opts["pen"]
     assert pen.color().name() == theme.state_colour("selected").name()
     assert list(w.watch.scores.ring.data["x"]) == [trials[0].number]
@@ -156,7 +156,7 @@ def test_stop_mid_search_leaves_nothing_running_and_resumes(make_window, orchard
     assert watcher.open_path(str(tmp_path / "long.db"))
     qtbot.waitUntil(lambda: watcher.session.synced, timeout=LONG)
     assert sorted(watcher.session.book.records) == numbers
-    watcher.session.draw()
+    watcher.session.flush()
     assert sorted(watcher.watch.curves.curves) == numbers
 
 

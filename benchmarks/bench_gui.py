@@ -1,0 +1,119 @@
+"""Event-loop stalls of the window while a search runs at full speed.
+
+A QTimer ticks every 5 ms on the GUI thread; the gap between two ticks beyond those 5 ms is a
+stall (time the event loop could not answer the user). Measured twice in the same run:
+
+1. reference: the window open on the orchard demo, no search;
+2. the same window during a real search of the orchard demo (short epochs, so events arrive as
+   fast as the engine makes them, the plots redraw, the table grows, importance is recomputed).
+
+Prints p50 / p99 / max stall for both and their ratio; the goal is p99 < 50 ms during the search.
+
+    python benchmarks/bench_gui.py [--trials 40] [--workers 2] [--seconds-idle 3]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+
+def percentile(values, q):
+    import numpy as np
+
+    return float(np.percentile(np.asarray(values, dtype=float), q)) if values else float("nan")
+
+
+def main(argv=None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--trials", type=int, default=40)
+    parser.add_argument("--workers", type=int, default=2)
+    parser.add_argument("--epochs", type=int, default=8)
+    parser.add_argument("--seconds-idle", type=float, default=3.0)
+    args = parser.parse_args(argv)
+    if not os.environ.get("QT_QPA_PLATFORM") and not os.environ.get("DISPLAY"):
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+
+    from PySide6.QtCore import QElapsedTimer, QSettings, Qt, QTimer
+
+    from labbench.gui.app import make_app
+    from labbench.gui.window import MainWindow
+
+    work = Path(tempfile.mkdtemp(prefix="labbench-bench-gui-"))
+    csv = work / "orchard.csv"
+    shutil.copy(ROOT / "demo_sets" / "orchard.csv", csv)
+    app = make_app()
+    window = MainWindow(QSettings(str(work / "settings.ini"), QSettings.Format.IniFormat))
+    window.quiet_dialogs = True
+    window.resize(1440, 900)
+    window.show()
+    window.open_path(str(csv))
+    for name, _kind, use in window.data._row_widgets():
+        if name == "crate_id":
+            use.setChecked(False)
+    sp = window.space
+    sp.rows["epochs"].set_raw(args.epochs)
+    sp.rows["learning_rate"].set_raw({"low": 1e-3, "high": 3e-2, "log": True})
+    sp.rows["hidden_units"].set_raw({"low": 8, "high": 64, "log": True})
+    sp.rows["activation"].set_raw({"choices": ["relu", "tanh"]})
+    sp.trials.setValue(args.trials)
+    sp.workers.setValue(args.workers)
+    sp.folds.setValue(5)
+    sp.seed_spread.setValue(0)
+    window.spec_path = str(work / "bench.toml")
+    window.steps.setCurrentRow(2)
+
+    clock = QElapsedTimer()
+    gaps: dict[str, list[float]] = {"idle": [], "search": []}
+    state = {"phase": "idle", "last": None, "t0": time.monotonic(), "events": 0}
+
+    def tick() -> None:
+        now = clock.nsecsElapsed() / 1e6
+        if state["last"] is not None:
+            gaps[state["phase"]].append(max(0.0, now - state["last"] - 5.0))
+        state["last"] = now
+        if state["phase"] == "idle" and time.monotonic() - state["t0"] > args.seconds_idle:
+            state["phase"] = "search"
+            state["last"] = None
+            if not window.start():
+                print("the search did not start:", window.problem_label.toolTip())
+                app.quit()
+        elif state["phase"] == "search" and not window.session.running and window.session.book.ended \
+                and window.session.synced:
+            app.quit()
+
+    timer = QTimer()
+    timer.setTimerType(Qt.TimerType.PreciseTimer)
+    timer.setInterval(5)
+    timer.timeout.connect(tick)
+    clock.start()
+    timer.start()
+    app.exec()
+    book = window.session.book
+    searched_s = sum(gaps["search"]) / 1000 + 0.005 * len(gaps["search"])
+    n_epochs = sum(len(r.epochs) for r in book.records.values())
+    print(f"search: {len(book.records)} trials, {n_epochs} epoch events, workers={args.workers}, "
+          f"{book.ended.reason if book.ended else '?'}, {searched_s:.1f} s")
+    print(f"{'':8s} {'ticks':>7s} {'p50 ms':>8s} {'p99 ms':>8s} {'max ms':>8s}")
+    for phase in ("idle", "search"):
+        g = gaps[phase]
+        print(f"{phase:8s} {len(g):7d} {percentile(g, 50):8.2f} {percentile(g, 99):8.2f} "
+              f"{max(g) if g else float('nan'):8.2f}")
+    p99_idle, p99_run = percentile(gaps["idle"], 99), percentile(gaps["search"], 99)
+    print(f"ratio p99 search / idle: {p99_run / max(p99_idle, 0.01):.2f}")
+    print(f"goal p99 < 50 ms during the search: {'met' if p99_run < 50 else 'NOT met'} ({p99_run:.1f} ms)")
+    window.session.close()
+    shutil.rmtree(work, ignore_errors=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
