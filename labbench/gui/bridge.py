@@ -107,7 +107,8 @@ class Background(QObject):
                 return False
             self._busy.add(key)
             if getattr(self, "_procs", None) is None:
-                self._procs = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("spawn"))
+                self._procs = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("spawn"),
+                                                  initializer=_be_nice)
             future = self._procs.submit(fn, *args)
 
         def finished(f) -> None:
@@ -138,6 +139,17 @@ class Background(QObject):
 # ------------------------------------------------------------------------------------------
 # the controller in a child process
 
+NICE = 5    # the search (and the training processes it starts, which inherit it) yields the CPU
+            # to the window when both want it; alone on the machine it runs at full speed
+
+
+def _be_nice() -> None:
+    try:
+        os.nice(NICE)
+    except (AttributeError, OSError):   # not on this platform / not allowed
+        pass
+
+
 def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawned process
     """Run ``job(emit, cancel)``; events, the result or the error go back through ``queue``.
 
@@ -148,6 +160,7 @@ def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawn
     import pickle
     import time
 
+    _be_nice()
     cancel = threading.Event()
 
     def watch() -> None:

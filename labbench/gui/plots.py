@@ -39,11 +39,14 @@ class CurvesPanel(Panel):
         self.message = message_item("")
         self.plot.addItem(self.message, ignoreBounds=True)
         self._theme_key = None
+        self._longest = 0
 
     def export_item(self):
         return self.plot
 
     def reset(self) -> None:
+        self._longest = 0
+        self.plot.enableAutoRange(x=True)
         for c in self.curves.values():
             self.plot.removeItem(c)
         self.curves.clear()
@@ -71,6 +74,11 @@ class CurvesPanel(Panel):
                 curve.sigClicked.connect(lambda item, *_a, n=number: self.clicked.emit(n))
                 self.plot.addItem(curve)
             curve.setData(np.asarray(rec.epochs, float), np.asarray(rec.val_loss, float))
+        # a fixed epoch axis (the longest trial) is drawn once, not on every new point
+        longest = max((r.epochs_total or len(r.epochs) for r in book.records.values()), default=0)
+        if longest and longest != self._longest:
+            self._longest = longest
+            self.plot.setXRange(1, max(2, longest), padding=0.02)
         for number, curve in self.curves.items():
             rec = book.records[number]
             role = (rec.state, number == book.best_number, number == book.running_number, number == selected)

@@ -37,10 +37,27 @@ class SettingsPanel(Panel):
         self._structure = None
         self._drawn = None
         self._to_build: list[tuple[int, str]] = []
+        self._dirty: list[str] = []
+        self.pool: list[tuple[pg.PlotItem, pg.ScatterPlotItem, pg.ScatterPlotItem]] = []
         self.placeholder = None
 
     def export_item(self):
         return self.layout_widget.scene()
+
+    def ensure(self, n: int) -> None:
+        """Have ``n`` small pictures made in advance (making one costs tens of milliseconds,
+        too much in the middle of a search); the window calls this while the user edits."""
+        t = theme.Theme.current()
+        while len(self.pool) < n:
+            plot = pg.PlotItem()
+            plot.setMenuEnabled(False)
+            self.style_plot(plot, t)
+            dots = pg.ScatterPlotItem(size=8, pxMode=True, hoverable=True)
+            dots.sigClicked.connect(lambda _i, pts, *_a: pts and self.clicked.emit(int(pts[0].data())))
+            ring = pg.ScatterPlotItem(size=16, pxMode=True)
+            plot.addItem(dots)
+            plot.addItem(ring)
+            self.pool.append((plot, dots, ring))
 
     def _rebuild(self, book: TrialBook, names: list[str], t: theme.Theme) -> None:
         self.layout_widget.clear()
@@ -49,35 +66,38 @@ class SettingsPanel(Panel):
         self.categories.clear()
         self.layout_widget.setBackground(t.background)
         if not names:
-            self.placeholder = self.layout_widget.addPlot()
-            self.style_plot(self.placeholder, t)
-            msg = message_item("")
-            self.placeholder.addItem(msg, ignoreBounds=True)
-            self.placeholder.setXRange(0, 1)
-            self.placeholder.setYRange(0, 1)
-            centre_message(self.placeholder, msg, "No searched settings yet: every setting is fixed.")
+            if self.placeholder is None:
+                self.placeholder = pg.PlotItem()
+                self.style_plot(self.placeholder, t)
+                self._placeholder_msg = message_item("")
+                self.placeholder.addItem(self._placeholder_msg, ignoreBounds=True)
+                self.placeholder.setXRange(0, 1)
+                self.placeholder.setYRange(0, 1)
+            self.layout_widget.addItem(self.placeholder)
+            centre_message(self.placeholder, self._placeholder_msg,
+                           "No searched settings yet: every setting is fixed.")
             self.layout_widget.setMinimumHeight(ROW_HEIGHT)
             return
-        self.placeholder = None
         self._to_build = list(enumerate(names))
         rows = math.ceil(len(names) / COLUMNS)
         self.layout_widget.setMinimumHeight(rows * ROW_HEIGHT)
 
     def _build_one(self, book: TrialBook, t: theme.Theme) -> None:
-        """Add the next small picture (one per redraw tick: creating plots is not cheap)."""
+        """Place the next small picture (one per redraw tick), made in advance when possible."""
         i, name = self._to_build.pop(0)
-        if i and i % COLUMNS == 0:
-            self.layout_widget.nextRow()
-        plot = self.layout_widget.addPlot(title=core.param_label(name))
-        plot.setMenuEnabled(False)
+        self.ensure(i + 1)
+        plot, dots, ring = self.pool[i]
+        plot.setTitle(core.param_label(name))
         self.style_plot(plot, t)
-        if i % COLUMNS == 0:
-            plot.setLabel("left", core.metric_label(book.metric) if book.metric else "score")
-        dots = pg.ScatterPlotItem(size=8, pxMode=True, hoverable=True)
-        dots.sigClicked.connect(lambda _i, pts, *_a: pts and self.clicked.emit(int(pts[0].data())))
-        ring = pg.ScatterPlotItem(size=16, pxMode=True)
-        plot.addItem(dots)
-        plot.addItem(ring)
+        plot.getAxis("bottom").setTicks(None)
+        plot.setLabel("left", (core.metric_label(book.metric) if book.metric else "score")
+                      if i % COLUMNS == 0 else None)
+        if i % COLUMNS != 0:
+            plot.showLabel("left", False)
+        dots.setData([], [])
+        ring.setData([], [])
+        plot.enableAutoRange()
+        self.layout_widget.addItem(plot, row=i // COLUMNS, col=i % COLUMNS)
         self.plots[name] = (plot, dots, ring)
 
     def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
@@ -92,44 +112,53 @@ class SettingsPanel(Panel):
             self._drawn = None
             return True
         key = (book.finished_version, selected)
-        if key == self._drawn:
+        if key != self._drawn:
+            self._drawn = key
+            self._dirty = list(self.plots)
+        if not self._dirty:
             return False
-        self._drawn = key
+        # one small picture per tick: redrawing them all at once made one long paint
         done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
-        for name, (plot, dots, ring) in self.plots.items():
-            xs, ys, data, brushes = [], [], [], []
-            sel_xy = None
-            cats = self.categories.setdefault(name, [])
-            for r in done:
-                if name not in r.params:
-                    continue
-                x = self._x(name, r.params[name], cats)
-                if x is None:
-                    continue
-                if name in book.log_scaled:
-                    if x <= 0:
-                        continue
-                    x = math.log10(x)
-                role = "best" if r.number == book.best_number else "complete"
-                xs.append(x)
-                ys.append(r.value)
-                data.append(r.number)
-                brushes.append(pg.mkBrush(t.state(role, 255 if role == "best" else 190)))
-                if r.number == selected:
-                    sel_xy = (x, r.value)
-            dots.setData(xs, ys, data=data, brush=brushes, pen=pg.mkPen(t.background, width=1))
-            if sel_xy:
-                ring.setData([sel_xy[0]], [sel_xy[1]], brush=pg.mkBrush(None),
-                             pen=pg.mkPen(t.state("selected"), width=2.5))
-            else:
-                ring.setData([], [])
-            if cats:
-                plot.getAxis("bottom").setTicks([[(i, str(c)) for i, c in enumerate(cats)]])
-                plot.setXRange(-0.5, len(cats) - 0.5, padding=0.05)
-            elif name in book.log_scaled and xs:
-                # x is drawn as log10(value); the labels show the values themselves
-                plot.getAxis("bottom").setTicks([log_ticks(10 ** min(xs), 10 ** max(xs)), []])
+        name = self._dirty.pop(0)
+        self._draw_one(book, name, done, selected, t)
         return True
+
+    def _draw_one(self, book: TrialBook, name: str, done, selected: int | None, t: theme.Theme) -> None:
+        if name not in self.plots:
+            return
+        plot, dots, ring = self.plots[name]
+        xs, ys, data, brushes = [], [], [], []
+        sel_xy = None
+        cats = self.categories.setdefault(name, [])
+        for r in done:
+            if name not in r.params:
+                continue
+            x = self._x(name, r.params[name], cats)
+            if x is None:
+                continue
+            if name in book.log_scaled:
+                if x <= 0:
+                    continue
+                x = math.log10(x)
+            role = "best" if r.number == book.best_number else "complete"
+            xs.append(x)
+            ys.append(r.value)
+            data.append(r.number)
+            brushes.append(pg.mkBrush(t.state(role, 255 if role == "best" else 190)))
+            if r.number == selected:
+                sel_xy = (x, r.value)
+        dots.setData(xs, ys, data=data, brush=brushes, pen=pg.mkPen(t.background, width=1))
+        if sel_xy:
+            ring.setData([sel_xy[0]], [sel_xy[1]], brush=pg.mkBrush(None),
+                         pen=pg.mkPen(t.state("selected"), width=2.5))
+        else:
+            ring.setData([], [])
+        if cats:
+            plot.getAxis("bottom").setTicks([[(i, str(c)) for i, c in enumerate(cats)]])
+            plot.setXRange(-0.5, len(cats) - 0.5, padding=0.05)
+        elif name in book.log_scaled and xs:
+            # x is drawn as log10(value); the labels show the values themselves
+            plot.getAxis("bottom").setTicks([log_ticks(10 ** min(xs), 10 ** max(xs)), []])
 
     @staticmethod
     def _x(name: str, value: Any, cats: list) -> float | None:

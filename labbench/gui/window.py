@@ -245,6 +245,12 @@ class MainWindow(QMainWindow):
                 problems[f"{k[0]}.{k[1]}" if k else "spec"] = str(exc)
         if self.data.task_error:
             problems["data.target"] = self.data.task_error
+        if not problems and self.data.frame is not None:
+            try:
+                n = len(self.current_spec().space.searched_params())
+                self.watch.settings_plot.ensure(n)      # made now, not in the middle of a search
+            except LabbenchError:
+                pass
         self.space.show_problems({k: v for k, v in problems.items() if not k.startswith("data.")})
         first = next(iter(problems.values()), "")
         self.problem_label.setText(("⚠ " + first[:120]) if first else "")
