@@ -12,6 +12,7 @@ same parameters, which the next ask picks up.
 
 from __future__ import annotations
 
+import json
 import logging
 import os
 import platform
@@ -343,10 +344,17 @@ def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
 
         if not isinstance(backend, RDBStorage):
             raise TypeError("not an RDB storage")
+        model = models.TrialUserAttributeModel
         with _create_scoped_session(backend.scoped_session, True) as session:
+            row = models.TrialModel.find_or_raise_by_id(trial._trial_id, session)
+            backend.check_trial_is_updatable(trial._trial_id, row.state)
+            existing = {a.key: a for a in model.where_trial_id(trial._trial_id, session)}
             for key, value in attrs.items():
-                backend._set_trial_attr_without_commit(session, models.TrialUserAttributeModel,
-                                                       trial._trial_id, key, value)
+                text = json.dumps(value)
+                if key in existing:
+                    existing[key].value_json = text
+                else:
+                    session.add(model(trial_id=trial._trial_id, key=key, value_json=text))
         trial._cached_frozen_trial.user_attrs.update(attrs)
     except (ImportError, AttributeError, TypeError) as exc:
         log.debug("per-key user attrs (%s)", exc)
