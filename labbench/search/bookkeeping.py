@@ -46,7 +46,7 @@ class InFlight:
     settings: dict
     started: float                       # asked; reset when the worker begins training it
     points: list = field(default_factory=list)
-    stopping: str | None = None          # "pruned" | "cancelled"
+    stopping: str | None = None          # "pruned" | "cancelled" | "lost" (ended elsewhere)
     stop_epoch: int = 0
     training: bool = False
     unsaved: list = field(default_factory=list)   # (step, value) not yet written to storage

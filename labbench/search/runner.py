@@ -328,8 +328,16 @@ class SearchRunner:
         flight.unsaved.append((step, value))
         now = time.monotonic()
         if now - flight.saved_at >= SAVE_EVERY_S:
-            self._save_values(flight)
+            from optuna.exceptions import UpdateFinishedTrialError
+
             flight.saved_at = now
+            try:
+                self._save_values(flight)
+            except UpdateFinishedTrialError:   # marked stale by another process meanwhile
+                log.warning("trial %d was ended elsewhere (its heartbeat went stale); stopping "
+                            "it here", flight.number)
+                flight.stopping = "lost"
+                self.pool.stop(flight.slot, flight.number)
 
     def _save_values(self, flight: InFlight) -> None:
         values, flight.unsaved = flight.unsaved, []
@@ -343,6 +351,8 @@ class SearchRunner:
             self._finish(flight, "PRUNED", reason=reason, epochs_run=flight.stop_epoch)
         elif flight.stopping == "cancelled":
             self._finish(flight, "FAIL", reason=CANCELLED)
+        elif flight.stopping == "lost":
+            self._finish(flight, "FAIL", reason=LOST)
         elif result["end"] == "diverged":
             self._finish(flight, "FAIL", reason=result["reason"], epochs_run=result["epochs_run"])
         else:

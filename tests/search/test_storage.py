@@ -136,3 +136,30 @@ def test_plain_turns_numpy_values_into_python():
     out = plain({"a": np.float32(1.5), "b": np.arange(3), "c": (1, 2), "d": Path("/x")})
     assert out == {"a": 1.5, "b": [0, 1, 2], "c": [1, 2], "d": "/x"}
     assert type(out["a"]) is float and type(out["b"][0]) is int
+
+
+def test_batched_writes_store_what_optunas_own_calls_store(tmp_path):
+    """write_user_attrs / write_intermediate_values against Trial.set_user_attr / Trial.report
+    on the same storage: the stored trials must read back identical."""
+    from optuna.exceptions import UpdateFinishedTrialError
+
+    from labbench.search.storage import write_intermediate_values, write_user_attrs
+
+    study, _ = _open(f"sqlite:///{tmp_path}/s.db")
+    attrs = {"curve": {"epoch": [1, 2], "val_loss": [0.5, None]}, "end_reason": "", "n": 3}
+    values = [(1, 0.9), (2, 0.7), (3, float("inf"))]
+    ours, theirs = study.ask(), study.ask()
+    write_user_attrs(ours, {"end_reason": "placeholder"})
+    write_user_attrs(ours, attrs)                       # updates one key, adds the others
+    write_intermediate_values(study, ours._trial_id, values)
+    for key, value in attrs.items():
+        theirs.set_user_attr(key, value)
+    for step, value in values:
+        theirs.report(value, step=step)
+    study.tell(ours, 1.0)
+    study.tell(theirs, 1.0)
+    a, b = study.get_trials()
+    assert a.user_attrs == b.user_attrs == attrs
+    assert a.intermediate_values == b.intermediate_values
+    with pytest.raises(UpdateFinishedTrialError):
+        write_user_attrs(ours, {"late": 1})
