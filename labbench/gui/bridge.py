@@ -106,10 +106,15 @@ class Background(QObject):
             if self._closed or key in self._busy:
                 return False
             self._busy.add(key)
-            if getattr(self, "_procs", None) is None:
-                self._procs = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("spawn"),
-                                                  initializer=_be_nice)
-            future = self._procs.submit(fn, *args)
+            try:
+                if getattr(self, "_procs", None) is None:
+                    self._procs = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("spawn"),
+                                                      initializer=_be_nice)
+                future = self._procs.submit(fn, *args)
+            except Exception as exc:   # no helper process (e.g. a script without a main guard)
+                self._busy.discard(key)
+                log.warning("helper process for %s not started: %s", key, exc)
+                return False
 
         def finished(f) -> None:
             try:
@@ -132,8 +137,8 @@ class Background(QObject):
             self._closed = True
         self._pool.shutdown(wait=False, cancel_futures=True)
         procs = getattr(self, "_procs", None)
-        if procs is not None:
-            procs.shutdown(wait=False, cancel_futures=True)
+        if procs is not None:      # an importance job takes well under a second: let it end
+            procs.shutdown(wait=True, cancel_futures=True)
 
 
 # ------------------------------------------------------------------------------------------

@@ -146,8 +146,9 @@ def log_ticks(low: float, high: float) -> list[tuple[float, str]]:
         return []
     lo, hi = math.floor(math.log10(min(low, high))), math.ceil(math.log10(max(low, high)))
     out = []
+    steps = (1, 2, 5) if hi - lo <= 2 else (1,)      # wide spans: one tick per decade
     for k in range(lo, hi + 1):
-        for m in (1, 2, 5):
+        for m in steps:
             v = m * 10.0 ** k
             if low / 1.5 <= v <= high * 1.5:
                 out.append((math.log10(v), f"{v:g}"))

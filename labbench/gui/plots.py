@@ -9,12 +9,21 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Signal
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QCheckBox
 
 from labbench.gui import core, theme
 from labbench.gui.panel import Panel, centre_message, curve_pen, integer_spacing, message_item
 from labbench.gui.trialbook import TrialBook
+
+
+def legend_html(t: theme.Theme) -> str:
+    """The line styles in words, coloured as drawn (the panel's subtitle)."""
+    def part(state: str, mark: str, word: str) -> str:
+        return f"<span style='color:{t.state(state).name()}'><b>{mark}</b></span>&nbsp;{word}"
+
+    return "&nbsp; ".join([part("running", "━", "training"), part("best", "━", "best"),
+                           part("pruned", "╌", "pruned"), part("failed", "┈", "failed")])
 
 
 class CurvesPanel(Panel):
@@ -24,13 +33,15 @@ class CurvesPanel(Panel):
         super().__init__("Learning curves", "Validation loss after each epoch (mean over the folds), one line "
                          "per trial: amber is training now, green is the best, dashed were stopped early, "
                          "dotted failed or were cancelled.", parent, short="validation loss per epoch")
+        self.hint.setTextFormat(Qt.TextFormat.RichText)
+        self._theme_legend = None
         self.widget = pg.PlotWidget()
         self.plot: pg.PlotItem = self.widget.getPlotItem()
         self.plot.setLabel("bottom", "epoch")
         self.plot.setLabel("left", "validation loss")
         self.plot.setMenuEnabled(False)
         self.body.addWidget(self.widget)
-        self.log_box = QCheckBox("log scale")
+        self.log_box = QCheckBox("log")
         self.log_box.setToolTip("Draw the loss on a logarithmic axis (helps when early epochs are far higher)")
         self.log_box.toggled.connect(lambda on: self.plot.setLogMode(y=on))
         self.controls.addWidget(self.log_box)
@@ -59,6 +70,7 @@ class CurvesPanel(Panel):
             self.widget.setBackground(t.background)
             self.style_plot(self.plot, t)
             self._styles.clear()
+            self.hint.setText(legend_html(t))
         for number in list(self.curves):
             if number not in book.records:
                 self.plot.removeItem(self.curves.pop(number))

@@ -13,8 +13,8 @@ from labbench.gui import core, theme
 from labbench.gui.panel import Panel, centre_message, log_ticks, message_item
 from labbench.gui.trialbook import TrialBook
 
-COLUMNS = 3
-ROW_HEIGHT = 210
+MIN_WIDTH = 200     # a small picture narrower than this cannot show its axis labels
+ROW_HEIGHT = 200
 
 
 class SettingsPanel(Panel):
@@ -38,6 +38,8 @@ class SettingsPanel(Panel):
         self._drawn = None
         self._to_build: list[tuple[int, str]] = []
         self._dirty: list[str] = []
+        self.columns = 3
+        self._metric = "score"
         self.pool: list[tuple[pg.PlotItem, pg.ScatterPlotItem, pg.ScatterPlotItem]] = []
         self.placeholder = None
 
@@ -79,8 +81,7 @@ class SettingsPanel(Panel):
             self.layout_widget.setMinimumHeight(ROW_HEIGHT)
             return
         self._to_build = list(enumerate(names))
-        rows = math.ceil(len(names) / COLUMNS)
-        self.layout_widget.setMinimumHeight(rows * ROW_HEIGHT)
+        self._set_height(len(names))
 
     def _build_one(self, book: TrialBook, t: theme.Theme) -> None:
         """Place the next small picture (one per redraw tick), made in advance when possible."""
@@ -90,15 +91,35 @@ class SettingsPanel(Panel):
         plot.setTitle(core.param_label(name))
         self.style_plot(plot, t)
         plot.getAxis("bottom").setTicks(None)
-        plot.setLabel("left", (core.metric_label(book.metric) if book.metric else "score")
-                      if i % COLUMNS == 0 else None)
-        if i % COLUMNS != 0:
-            plot.showLabel("left", False)
+        self._metric = core.metric_label(book.metric) if book.metric else "score"
+        self._label(plot, i)
         dots.setData([], [])
         ring.setData([], [])
         plot.enableAutoRange()
-        self.layout_widget.addItem(plot, row=i // COLUMNS, col=i % COLUMNS)
+        self.layout_widget.addItem(plot, row=i // self.columns, col=i % self.columns)
         self.plots[name] = (plot, dots, ring)
+
+    def _label(self, plot: pg.PlotItem, i: int) -> None:
+        if i % self.columns == 0:
+            plot.setLabel("left", self._metric)
+        else:
+            plot.showLabel("left", False)
+
+    def _set_height(self, n: int) -> None:
+        self.layout_widget.setMinimumHeight(max(1, math.ceil(n / self.columns)) * ROW_HEIGHT)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        columns = max(1, min(4, (self.width() - 40) // MIN_WIDTH))
+        if columns == self.columns:
+            return
+        self.columns = columns
+        if self.plots and not self._to_build:       # place the pictures again, in the new grid
+            self.layout_widget.clear()
+            for i, (plot, _d, _r) in enumerate(self.plots.values()):
+                self._label(plot, i)
+                self.layout_widget.addItem(plot, row=i // columns, col=i % columns)
+            self._set_height(len(self.plots))
 
     def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
         names = core.searched_names(book)

@@ -25,6 +25,7 @@ log = logging.getLogger("labbench.gui")
 REDRAW_MS = 40          # the plots redraw at most this often, never per event
 POLL_MS = 2000          # storage poll while watching a search run elsewhere
 IMPORTANCE_S = 4.0      # importance is recomputed at most this often
+SYNC_MS = 5000          # during a run, finished trials are checked against storage this often
 
 
 def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
@@ -111,6 +112,9 @@ class SearchSession(QObject):
         self.poll = QTimer(self)
         self.poll.setInterval(POLL_MS)
         self.poll.timeout.connect(self._poll)
+        self.sync = QTimer(self)             # during a run: stored attrs of the finished trials
+        self.sync.setInterval(SYNC_MS)
+        self.sync.timeout.connect(self._sync)
         self.imp_timer = QTimer(self)
         self.imp_timer.setInterval(1000)
         self.imp_timer.timeout.connect(self._maybe_importance)
@@ -157,6 +161,7 @@ class SearchSession(QObject):
         self.thread.outcome.connect(self._on_outcome)
         self.thread.finished.connect(self._on_thread_finished)
         self.thread.start()
+        self.sync.start()
         self.changed.emit()
 
     def stop(self) -> None:
@@ -174,6 +179,13 @@ class SearchSession(QObject):
             url, name = self.url, event.study_name
             # the trials of earlier runs come from storage (new ones arrive as events)
             self.reader.submit("earlier", lambda: core.read_study(self.studies.get(url, name)))
+        if isinstance(event, ev.WinnerReady):
+            # the winner check ends with the core's importance over every trial: show that one
+            imp = dict(event.summary.get("importance") or {})
+            self.view.importance.show_result(dict(imp.get("values") or {}), str(imp.get("message") or ""))
+            done = sum(1 for r in self.book.records.values() if r.state == "complete")
+            self._imp_key = (self.url, self.study_name, done)
+            self._drawn = None
         if isinstance(event, (ev.SearchEnded, ev.WinnerReady)):
             self.changed.emit()
 
@@ -184,11 +196,18 @@ class SearchSession(QObject):
     def _on_outcome(self, result: dict) -> None:
         self.result = result
 
+    def _sync(self) -> None:
+        if self.running and self.url and self.study_name and self.book.study_name:
+            url, name = self.url, self.study_name
+            self.reader.submit("sync", lambda: core.read_study(self.studies.get(url, name)))
+
     def _on_thread_finished(self) -> None:
+        self.sync.stop()
         thread, self.thread = self.thread, None
         if thread is not None:
             thread.deleteLater()
-        self._imp_key = None       # one last importance read with every trial in
+        if self.book.winner is None:
+            self._imp_key, self._imp_at = None, 0.0   # one last importance read, with every trial
         if self.url and self.study_name and self.book.study_name:
             # the stored attrs (std across folds, durations) complete what the events carried
             url, name = self.url, self.study_name
@@ -245,6 +264,12 @@ class SearchSession(QObject):
             self.book.merge_snapshots(snaps, best_number=best)
             self.synced = True
             self.changed.emit()
+            return
+        if key == "sync":
+            # finished trials only: what is training is the events' business
+            done = [x for x in snaps if x.state not in ("running", "waiting")
+                    and (x.number not in self.book.records or self.book.records[x.number].finished)]
+            self.book.merge_snapshots(done, best_number=self.book.best_number)
             return
         if key == "earlier":
             known = set(self.book.records)
@@ -317,5 +342,6 @@ class SearchSession(QObject):
     def close(self) -> None:
         self.redraw.stop()
         self.poll.stop()
+        self.sync.stop()
         self.imp_timer.stop()
         self.reader.close()

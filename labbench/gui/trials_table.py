@@ -96,7 +96,7 @@ class TrialsModel(QAbstractTableModel):
         if col == 4:
             return len(rec.epochs)
         if col == 5:
-            return round(rec.duration_s, 1) if rec.duration_s else None
+            return round(rec.duration_s, 2) if rec.duration_s else None
         if col < n + len(self.params):
             return rec.params.get(self.params[col - n])
         return rec.reason

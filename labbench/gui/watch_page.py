@@ -183,10 +183,12 @@ class WatchPage(QWidget):
     def _progress(self, book: TrialBook) -> None:
         p = book.progress
         if p is None:
-            if book.ended is None and not book.records:
-                self._bar(0, 1, 0, "no search running")
+            if book.ended is None:
+                n = len(book.records)
+                self._bar(0, 1, 0, f"{n} trials stored" if n else "no search running")
                 self._set(self.time_left, "")
-                self._set(self.in_flight, "")
+                running = sum(1 for r in book.records.values() if r.state == "running")
+                self._set(self.in_flight, f"{running} trial(s) training elsewhere" if running else "")
             return
         if p.budget:
             self._bar(0, p.budget, min(p.done, p.budget), f"{p.done} / {p.budget} trials")

@@ -46,13 +46,13 @@ class MainWindow(QMainWindow):
 
         self.steps = QListWidget()
         self.steps.setObjectName("stepList")
-        self.steps.setFixedWidth(172)
+        self.steps.setFixedWidth(188)
         self.steps.setFocusPolicy(Qt.FocusPolicy.TabFocus)
         self.steps.setIconSize(QSize(20, 20))
         self.stack = QStackedWidget()
         for (key, label, num), page in zip(STEPS, (self.data, self.space, self.watch)):
             item = QListWidgetItem(theme.icon(f"step_{key}"), f"{num}  {label}")
-            item.setSizeHint(QSize(164, 40))
+            item.setSizeHint(QSize(178, 40))
             self.steps.addItem(item)
             self.stack.addWidget(page)
         self.steps.currentRowChanged.connect(self.stack.setCurrentIndex)
