@@ -31,7 +31,7 @@ class CurvesPanel(Panel):
 
     def __init__(self, parent=None):
         super().__init__("Learning curves", "Validation loss after each epoch (mean over the folds), one line "
-                         "per trial: amber is training now, green is the best, dashed were stopped early, "
+                         "per trial: amber is training now, green is the best, dashed were pruned (stopped early), "
                          "dotted failed or were cancelled.", parent, short="validation loss per epoch")
         self.hint.setTextFormat(Qt.TextFormat.RichText)
         self._theme_legend = None

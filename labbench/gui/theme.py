@@ -32,7 +32,7 @@ _STATE_COLOURS = {
 STATE_WORDS = {
     "running": "training",
     "complete": "finished",
-    "pruned": "stopped early",
+    "pruned": "pruned",
     "failed": "failed",
     "cancelled": "cancelled",
     "waiting": "queued",

@@ -16,7 +16,7 @@ from labbench.gui import core, theme
 from labbench.gui.trialbook import TrialBook, TrialRecord
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-FILTERS = [("every state", None), ("finished", {"complete"}), ("stopped early", {"pruned"}),
+FILTERS = [("every state", None), ("finished", {"complete"}), ("pruned", {"pruned"}),
            ("failed or cancelled", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
 
 

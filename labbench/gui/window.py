@@ -391,7 +391,7 @@ class MainWindow(QMainWindow):
             self.steps.setCurrentRow(1)
             QMessageBox.warning(self, "Fix the search first", next(iter(problems.values())))
             return False
-        if fresh and not self.quiet_dialogs:
+        if fresh:
             if QMessageBox.question(self, "Start afresh?", "Delete every stored trial of this experiment "
                                     "and start a new search under the same name?") != QMessageBox.StandardButton.Yes:
                 return False

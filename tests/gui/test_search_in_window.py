@@ -67,7 +67,7 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     # the table: every trial, sortable, filterable; picking a row highlights it in the plots
     table = w.watch.table
     assert table.proxy.rowCount() == 4
-    table.filter_box.setCurrentText("stopped early")
+    table.filter_box.setCurrentText("pruned")
     assert table.proxy.rowCount() == 0
     table.filter_box.setCurrentText("every state")
     table.select(trials[0].number)
