@@ -170,7 +170,11 @@ def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawn
 
     def watch() -> None:
         while not cancel.is_set():
-            if stop.wait(0.05) or os.getppid() != parent_pid:
+            if stop.wait(0.05):
+                cancel.set()
+                return
+            if os.getppid() != parent_pid:      # the window was killed: nobody reads the queue
+                queue.cancel_join_thread()
                 cancel.set()
                 return
 

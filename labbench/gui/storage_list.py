@@ -24,3 +24,18 @@ def study_names(url: str) -> list[str]:
         first = (str(exc).strip().splitlines() or [type(exc).__name__])[0]
         raise SpecError(f"storage {mask_url(url)}: cannot read it ({mask_password_text(first)[:160]}); "
                         "check the URL") from None
+
+
+def masked(url: str) -> str:
+    from labbench.search.storage import mask_url
+
+    return mask_url(url)
+
+
+def storage_exists(url: str) -> bool:
+    """Whether a storage URL points at something already there (a SQLite file that exists)."""
+    from pathlib import Path
+
+    if url.startswith("sqlite") and ":///" in url:
+        return Path(url.split(":///", 1)[1]).exists()
+    return True
