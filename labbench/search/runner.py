@@ -106,6 +106,7 @@ class SearchRunner:
         self.asked = self.finished = 0
         self.in_flight: dict[int, InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
+        self.worker_cpu_s = 0.0        # CPU the workers spent training this run's trials
         self.next_stale_check = 0.0
         self.should_prune = PruneCheck(self.study, self.pruner, warmup_epochs(self.spec),
                                        refresh_s=float(self.heartbeat.interval))
@@ -344,6 +345,7 @@ class SearchRunner:
         write_intermediate_values(self.study, flight.trial._trial_id, values)
 
     def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
+        self.worker_cpu_s += float(result.get("cpu_s", 0.0))
         if flight.stopping == "pruned":
             last = flight.points[-1][2] if flight.points else float("nan")
             reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "

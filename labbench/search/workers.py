@@ -32,6 +32,7 @@ import pickle
 import queue
 import signal
 import socket
+import time
 import traceback
 from dataclasses import dataclass, field
 from typing import Any
@@ -93,8 +94,10 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
         def should_stop(number=number) -> bool:
             return stop.value == number or bool(halt.value) or orphaned()
 
+        cpu = time.process_time()
         try:
             result = run_trial(prepared, settings, seed=seed, on_epoch=send, should_stop=should_stop)
+            result["cpu_s"] = time.process_time() - cpu     # the worker's CPU for this trial
         except Exception as exc:
             outbox.put(("error", index, number, f"{type(exc).__name__}: {exc}",
                         traceback.format_exc()))
