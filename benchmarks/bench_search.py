@@ -172,15 +172,17 @@ def overhead(folder: Path, trials: int, workload: str) -> None:
           f"{100 * cpu / reference_cpu:.1f} % of trial CPU, spent beside the worker on the other core")
 
 
-def scaling(folder: Path, trials: int) -> None:
+def scaling(folder: Path, trials: int, epochs: int = 40) -> None:
     csv = write_table(folder, "digits")
-    spec = write_spec(folder, csv, name="scaling", sampler="random", epochs=40, trials=trials,
+    spec = write_spec(folder, csv, name="scaling", sampler="random", epochs=epochs, trials=trials,
                       units="{ low = 64, high = 128 }")
     print(f"\n[2] throughput: {trials} trials, digits (1,437 training rows × 61), 5 folds, "
-          f"40 epochs, 64–128 units, random sampler   ({load_avg()})")
+          f"{epochs} epochs, 64–128 units, random sampler   ({load_avg()})")
     rates: dict[int, list[float]] = {1: [], 2: []}
+    settings: list = []
     for workers in (1, 2, 1, 2):         # alternated: the machine's load drifts
-        _, clock, outcome, total = search(spec, workers)
+        runner, clock, outcome, total = search(spec, workers)
+        settings = settings or [t.user_attrs["settings"] for t in runner.study.get_trials()]
         span = clock.last_end - clock.first_start
         rates[workers].append(clock.trials / span)
         print(f"    {workers} worker(s): {clock.trials} trials in {span:.2f} s "
@@ -189,6 +191,40 @@ def scaling(folder: Path, trials: int) -> None:
     print(f"    2 workers vs 1 (best run of each): {best:.2f} × (goal ≥ 1.8 ×) on "
           f"{os.cpu_count()} cores; per pair: "
           + ", ".join(f"{b / a:.2f} ×" for a, b in zip(rates[1], rates[2])))
+    ceiling = machine_ceiling(spec, settings)
+    print(f"    reference: the same trainings in 2 plain processes vs 1 (no search, no storage): "
+          f"{ceiling:.2f} × — what this machine gives two busy processes   ({load_avg()})")
+
+
+def _train_all(spec_path: str, settings: list) -> float:
+    """Train the settings one after another in this process; returns the wall time."""
+    import logging
+
+    from threadpoolctl import threadpool_limits
+
+    from labbench.search.objective import run_trial
+    from labbench.search.prepare import prepare
+    from labbench.search.spec import load_spec
+
+    logging.getLogger("labbench").setLevel(logging.ERROR)
+    prepared = prepare(load_spec(spec_path))
+    with threadpool_limits(1):
+        t0 = time.perf_counter()
+        for s in settings:
+            run_trial(prepared, s, seed=11, on_epoch=lambda v: None, should_stop=lambda: False)
+        return time.perf_counter() - t0
+
+
+def machine_ceiling(spec: Path, settings: list) -> float:
+    """Throughput of 2 processes training half the list each, over 1 process training it all."""
+    import multiprocessing
+
+    ctx = multiprocessing.get_context("spawn")
+    with ctx.Pool(2) as pool:
+        one = pool.apply(_train_all, (str(spec), settings))
+        halves = [settings[0::2], settings[1::2]]
+        two = max(pool.starmap(_train_all, [(str(spec), h) for h in halves]))
+    return one / two
 
 
 def main() -> int:
@@ -197,7 +233,9 @@ def main() -> int:
     logging.getLogger("labbench").setLevel(logging.ERROR)   # the digits' blank pixels warn
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--trials", type=int, default=200)
-    parser.add_argument("--scaling-trials", type=int, default=24)
+    parser.add_argument("--scaling-trials", type=int, default=32)
+    parser.add_argument("--scaling-epochs", type=int, default=40,
+                        help="epochs per trial of the scaling test (longer trials: less overhead)")
     parser.add_argument("--only", choices=("overhead", "scaling"))
     parser.add_argument("--workload", choices=tuple(WORKLOADS), action="append",
                         help="overhead workload(s) (default: both)")
@@ -219,7 +257,7 @@ def main() -> int:
             for workload in args.workload or tuple(WORKLOADS):
                 overhead(folder, args.trials, workload)
         if args.only in (None, "scaling"):
-            scaling(folder, args.scaling_trials)
+            scaling(folder, args.scaling_trials, args.scaling_epochs)
     return 0
 
 

@@ -268,6 +268,7 @@ class SearchRunner:
         elif kind == "started":
             if flight is not None:
                 flight.training, flight.started = True, time.monotonic()
+                flight.saved_at = flight.started     # first batch of values after SAVE_EVERY_S
                 self.emit(ev.TrialStarted(number, dict(flight.trial.params), plain(flight.settings)))
         elif kind == "epoch":
             _, _, number, epoch, train_loss, val_loss, val_metric = message
