@@ -238,6 +238,7 @@ class SearchRunner:
 
         now = time.monotonic()
         if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
+            self.beats.beat_now()
             optuna.storages.fail_stale_trials(self.study)
             self.next_stale_check = now + self.heartbeat.interval
         trial = self.study.ask()

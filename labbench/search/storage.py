@@ -384,15 +384,20 @@ class HeartbeatThread:
         with self._lock:
             self._ids.discard(trial_id)
 
+    def beat_now(self) -> None:
+        """Record every heartbeat now (the controller does this before it fails stale trials,
+        so a starved heartbeat thread on a busy machine never makes its own trials look stale)."""
+        with self._lock:
+            ids = list(self._ids)
+        for trial_id in ids:
+            try:
+                self._storage.record_heartbeat(trial_id)
+            except Exception as exc:  # a busy database must not kill the search
+                log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
+
     def _beat(self) -> None:
         while not self._stop.wait(self._interval):
-            with self._lock:
-                ids = list(self._ids)
-            for trial_id in ids:
-                try:
-                    self._storage.record_heartbeat(trial_id)
-                except Exception as exc:  # a busy database must not kill the search
-                    log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
+            self.beat_now()
 
     def stop(self) -> None:
         self._stop.set()

@@ -76,19 +76,22 @@ def test_sigkill_loses_no_finished_trial_and_the_orphan_is_retried(tmp_path):
     iris_csv(tmp_path)
     spec = write_spec(tmp_path, trials=20, space=SPACE, sampler="random")
     db = tmp_path / "exp.db"
-    args = ["run", str(spec), "--heartbeat", "1,2", "--out", str(tmp_path / "o")]
+    args = ["run", str(spec), "--heartbeat", "1,3", "--out", str(tmp_path / "o")]
     proc = subprocess.Popen(cli(*args, "--trials", "20"), stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)
-    orphan = _wait_for(lambda: _running_with_epochs(db, 2), 240, proc)
+    _wait_for(lambda: _running_with_epochs(db, 2), 240, proc)
     proc.send_signal(signal.SIGKILL)
     proc.communicate(timeout=30)
+    stored = load(db).get_trials(deepcopy=False)
     before = {t.number: (t.params, t.value, t.user_attrs)
-              for t in load(db).get_trials(deepcopy=False) if t.state.name == "COMPLETE"}
+              for t in stored if t.state.name == "COMPLETE"}
     assert len(before) >= 2
+    # the trial that was training when the process died (read after the kill: no race)
+    orphan = next(t for t in stored if t.state.name == "RUNNING" and t.intermediate_values)
     # the worker that trained the orphan notices its controller is gone and quits
     worker_pid = int(orphan.user_attrs["worker"].rsplit(":", 1)[1])
     assert _gone(worker_pid), "a worker outlived its killed controller"
-    time.sleep(3.5)                  # let the orphan's heartbeat go stale (grace 2 s, 1 s resolution)
+    time.sleep(4.5)                  # let the orphan's heartbeat go stale (grace 3 s, 1 s resolution)
 
     rerun = subprocess.run(cli(*args, "--trials", "2"), capture_output=True, text=True,
                            timeout=300)
