@@ -149,8 +149,14 @@ class SpacePage(QWidget):
         """Start from the spec's own defaults (labbench.search.spec), not from guesses here."""
         from labbench.search.spec import EvaluationSpec, SearchSettings
 
-        e, s = EvaluationSpec(), SearchSettings()
         self._quiet = True
+        try:
+            self._show_run_fields(EvaluationSpec(), SearchSettings())
+        finally:
+            self._quiet = False
+
+    def _show_run_fields(self, e, s) -> None:
+        """Put evaluation settings ``e`` and search settings ``s`` into their fields."""
         self.folds.setValue(e.folds)
         self.repeats.setValue(e.repeats)
         self.holdout.setValue(e.holdout)
@@ -159,10 +165,14 @@ class SpacePage(QWidget):
         self.trials_on.setChecked(s.trials is not None)
         if s.trials is not None:
             self.trials.setValue(s.trials)
+        self.minutes_on.setChecked(s.minutes is not None)
+        if s.minutes is not None:
+            self.minutes.setValue(s.minutes)
         self.sampler.setCurrentText(s.sampler)
         self.pruner.setCurrentText(s.pruner)
         self.workers.setValue(s.workers)
-        self._quiet = False
+        self.storage.setText(s.storage or "")
+        self.name.setText(s.name or "")
 
     # ------------------------------------------------------------------ building
     def _spin(self, low: int, high: int, value: int) -> QSpinBox:
@@ -223,23 +233,7 @@ class SpacePage(QWidget):
             for name, raw in spec.space.to_dict().items():
                 if name in self.rows:
                     self.rows[name].set_raw(raw)
-            e, s = spec.evaluation, spec.search
-            self.folds.setValue(e.folds)
-            self.repeats.setValue(e.repeats)
-            self.holdout.setValue(e.holdout)
-            self.seed.setValue(e.seed)
-            self.seed_spread.setValue(e.seed_spread)
-            self.trials_on.setChecked(s.trials is not None)
-            if s.trials is not None:
-                self.trials.setValue(s.trials)
-            self.minutes_on.setChecked(s.minutes is not None)
-            if s.minutes is not None:
-                self.minutes.setValue(s.minutes)
-            self.sampler.setCurrentText(s.sampler)
-            self.pruner.setCurrentText(s.pruner)
-            self.workers.setValue(s.workers)
-            self.storage.setText(s.storage or "")
-            self.name.setText(s.name or "")
+            self._show_run_fields(spec.evaluation, spec.search)
         finally:
             self._quiet = False
         self.changed.emit()
