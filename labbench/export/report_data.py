@@ -139,9 +139,9 @@ def collect(source: Any, study: str | None = None) -> ReportData:
     if hasattr(source, "get_trials") and hasattr(source, "study_name"):
         opened, shown = source, "(an open study)"
     else:
-        from labbench.search.commands import _open_for_reading
+        from labbench.search.commands import open_for_reading
 
-        opened, shown = _open_for_reading(str(source), study, None)
+        opened, shown = open_for_reading(str(source), study, None)
         shown = mask_url(shown)
     attrs = dict(opened.user_attrs)
     spec_text = attrs.get("spec_toml") or ""

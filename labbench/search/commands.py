@@ -205,7 +205,8 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
 # show
 
 
-def _open_for_reading(source: str, study: str | None, storage: str | None):
+def open_for_reading(source: str, study: str | None, storage: str | None):
+    """Open a stored search from a spec path or a database URL (``show``, ``report``, the window)."""
     import optuna
 
     from labbench.search.storage import mask_url, quiet_optuna_warnings, resolve_url
@@ -302,7 +303,7 @@ def trials_table(study) -> str:
 
 
 def show_command(args) -> int:
-    study, _ = _open_for_reading(args.source, args.study, args.storage)
+    study, _ = open_for_reading(args.source, args.study, args.storage)
     try:
         print(trials_table(study))
         sys.stdout.flush()
@@ -312,6 +313,3 @@ def show_command(args) -> int:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
     return EXIT_OK
 
-
-#: Public name of the reader (``labbench report`` and the window open stored searches with it).
-open_for_reading = _open_for_reading
