@@ -86,25 +86,30 @@ def test_sigkill_loses_no_finished_trial_and_the_orphan_is_retried(tmp_path):
     before = {t.number: (t.params, t.value, t.user_attrs)
               for t in stored if t.state.name == "COMPLETE"}
     assert len(before) >= 2
-    # the trial that was training when the process died (read after the kill: no race)
-    orphan = next(t for t in stored if t.state.name == "RUNNING" and t.intermediate_values)
-    # the worker that trained the orphan notices its controller is gone and quits
-    worker_pid = int(orphan.user_attrs["worker"].rsplit(":", 1)[1])
-    assert _gone(worker_pid), "a worker outlived its killed controller"
-    time.sleep(4.5)                  # let the orphan's heartbeat go stale (grace 3 s, 1 s resolution)
+    # the trials in flight when the process died (read after the kill: no race). The one being
+    # trained may have finished between the poll and the kill, so any RUNNING trial counts: the
+    # one in training and the one queued behind it are both orphans and both must be retried.
+    orphans = [t for t in stored if t.state.name == "RUNNING"]
+    assert orphans, "no trial was in flight when the process was killed"
+    for orphan in orphans:
+        if "worker" in orphan.user_attrs:   # a worker that trained it notices its controller is gone
+            worker_pid = int(orphan.user_attrs["worker"].rsplit(":", 1)[1])
+            assert _gone(worker_pid), "a worker outlived its killed controller"
+    time.sleep(4.5)                  # let the orphans' heartbeats go stale (grace 3 s, 1 s resolution)
 
-    rerun = subprocess.run(cli(*args, "--trials", "2"), capture_output=True, text=True,
-                           timeout=300)
+    rerun = subprocess.run(cli(*args, "--trials", str(len(orphans))), capture_output=True,
+                           text=True, timeout=300)
     assert rerun.returncode == 0, rerun.stderr
     trials = load(db).get_trials(deepcopy=False)
     after = {t.number: (t.params, t.value, t.user_attrs) for t in trials}
     for number, stored in before.items():           # every finished trial is still there, as it was
         assert after[number] == stored
-    old = next(t for t in trials if t.number == orphan.number)
-    assert old.state.name == "FAIL" and "no heartbeat" in old.user_attrs["end_reason"]
-    retries = [t for t in trials if t.system_attrs.get("failed_trial") == orphan.number]
-    assert len(retries) == 1
-    assert retries[0].state.name == "COMPLETE" and retries[0].params == orphan.params
+    for orphan in orphans:
+        old = next(t for t in trials if t.number == orphan.number)
+        assert old.state.name == "FAIL" and "no heartbeat" in old.user_attrs["end_reason"]
+        retries = [t for t in trials if t.system_attrs.get("failed_trial") == orphan.number]
+        assert len(retries) == 1
+        assert retries[0].state.name == "COMPLETE" and retries[0].params == orphan.params
     assert "RUNNING" not in _states(db)
 
 
