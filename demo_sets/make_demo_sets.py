@@ -16,7 +16,7 @@ network has something non-linear to find.
   promotion days, with multiplicative noise.
 
 Run ``python demo_sets/make_demo_sets.py [OUT_DIR]`` (default: this folder). The output depends
-only on the seeds below: a rerun writes byte-identical files.
+only on the fixed seeds below: a rerun writes byte-identical files.
 """
 
 from __future__ import annotations

@@ -10,7 +10,7 @@ The non-stratified hold-out equals ``train_test_split(shuffle=True, random_state
 ``ceil(fraction * n)``). The stratified hold-out is our own: each class gives its share of the
 hold-out by the largest-remainder rule (ties: earlier class), so the per-class counts depend only
 on the class counts - :func:`check_folds` can tell in advance whether every class keeps enough
-training rows. Which rows go is drawn from the seed.
+training rows. Which rows go is drawn from the given seed.
 """
 
 from __future__ import annotations

@@ -201,7 +201,7 @@ def winner_section(data: ReportData) -> str:
     if not w:
         best = plots.best_number(data)
         text = ("No winner.json was found in the output folder, so the refit, the hold-out score and "
-                "the seed spread are not known yet; `labbench run` writes them when the search ends.")
+                "its seed spread are not known yet; `labbench run` writes them when the search ends.")
         if best is not None:
             t = next(t for t in data.trials if t.number == best)
             text += f" The best complete trial so far is trial {best} with CV {num(t.value)} ± {num(t.cv_std)}."

@@ -234,7 +234,7 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
 
         QMessageBox.about(self, "About labbench",
                           f"<b>labbench {__version__}</b><p>Tune small neural networks on tabular data: "
-                          "cross-validated search, a hold-out check, the seed spread, and files to take "
+                          "cross-validated search, a hold-out check, a seed-spread check, and files to take "
                           "the winner away.</p>")
 
 

@@ -38,7 +38,7 @@ def _positive(key: str, value: Any, *, allow_zero: bool = False, integer: bool =
 
 @dataclass(frozen=True)
 class NetConfig:
-    """Everything that defines how one network is built and trained (not the data, not the seed)."""
+    """Everything that defines how one network is built and trained (not the data, not the random seeds)."""
 
     hidden: tuple[int, ...] = (64,)     # 0 to 3 layers; () = linear / logistic baseline
     activation: str = "relu"            # "relu" | "tanh" | "sigmoid"

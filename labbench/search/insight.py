@@ -120,7 +120,7 @@ def spread_stats(scores: Sequence[float], seeds: Sequence[int] = ()) -> dict[str
 
 def lead_inside_spread(winner: float, runner_up: float | None, spread: Mapping[str, Any] | None,
                        metric: str) -> dict[str, Any]:
-    """Is the winner's lead over the runner-up smaller than the seed-to-seed range?"""
+    """Is the winner's lead over the runner-up smaller than its seed-to-seed range?"""
     if runner_up is None:
         return {"lead": None, "inside": False,
                 "text": "There is no runner-up with different settings to compare with."}
@@ -128,7 +128,7 @@ def lead_inside_spread(winner: float, runner_up: float | None, spread: Mapping[s
     width = None if not spread else spread.get("range")
     if width is None:
         return {"lead": lead, "inside": False,
-                "text": f"The winner leads the runner-up by {fmt(lead)} {metric}; the seed spread "
+                "text": f"The winner leads the runner-up by {fmt(lead)} {metric}; its seed spread "
                         "was not measured, so it is unknown whether that lead is real."}
     inside = lead <= width
     if inside:

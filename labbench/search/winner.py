@@ -42,7 +42,7 @@ CAUTION = ("A cross-validated score is an estimate from this data set, not a gua
 
 
 def _seed_list(base: int, n: int) -> list[int]:
-    """The seeds of the spread check; the first is the search's own seed."""
+    """Seeds of the spread check; the first is the search's own seed."""
     return [int(base) + i for i in range(n)]
 
 
@@ -198,7 +198,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         try:
             spread = measure_seed_spread(prepared, settings, seeds, dtype=dtype)
         except LabbenchError as exc:      # e.g. a seed that diverges: report it, keep the winner
-            warnings.append(f"The seed-spread check stopped: {exc}")
+            warnings.append(f"Seed-spread check stopped: {exc}")
         if spread is not None:
             lead = lead_inside_spread(cv_mean, None if runner_up is None else runner_up.value,
                                       spread, metric)
