@@ -84,11 +84,12 @@ class Background(QObject):
             except Exception as exc:
                 log.warning("background %s failed: %s", key, traceback.format_exc())
                 result, error = None, f"{type(exc).__name__}: {exc}"
+            # emit under the lock: close() takes it too, so nothing is emitted from this thread
+            # once the owner has closed (and may delete) this object
             with self._lock:
                 self._busy.discard(key)
-                closed = self._closed
-            if not closed:
-                self.done.emit(key, result, error)
+                if not self._closed:
+                    self.done.emit(key, result, error)
 
         self._pool.submit(work)
         return True
@@ -123,11 +124,12 @@ class Background(QObject):
                 result, error = None, str(exc)
             except Exception as exc:
                 result, error = None, f"{type(exc).__name__}: {exc}"
+            # emit under the lock: close() takes it too, so nothing is emitted from this thread
+            # once the owner has closed (and may delete) this object
             with self._lock:
                 self._busy.discard(key)
-                closed = self._closed
-            if not closed:
-                self.done.emit(key, result, error)
+                if not self._closed:
+                    self.done.emit(key, result, error)
 
         future.add_done_callback(finished)
         return True
