@@ -60,8 +60,8 @@ def prepare_folds(table: Table, rows: Sequence[int] | np.ndarray,
     numeric, categorical = table.numeric, table.categorical
     regression = table.task == "regression"
     where = f"{table.path}: "
-    if regression:     # checked on every training row once, so the error names the column once
-        TargetScaler(target_scaling, table.target).fit(table.y[rows], where)
+    if regression:     # the whole column checked once (log: positive?), one error for all folds
+        TargetScaler(target_scaling, table.target).fit(table.y, where)
     out: dict[str, list] = {k: [] for k in ("X_train", "y_train", "X_val", "y_val", "train_rows",
                                             "val_rows", "pre", "target")}
     for train_pos, val_pos in folds:
