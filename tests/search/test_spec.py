@@ -159,4 +159,4 @@ def test_target_scaling_defaults_to_standard_and_round_trips(tmp_path):
     for method in ("log", "none", "standard"):
         spec = old.with_data(target_scaling=method)
         assert tomllib.loads(spec.to_toml())["data"]["target_scaling"] == method
-        assert loads_spec(spec.to_toml(), tmp_path) == spec
+        assert loads_spec(spec.to_toml(tmp_path), tmp_path) == spec
