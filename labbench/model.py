@@ -29,6 +29,9 @@ class TrainedModel:
     scores: Mapping[str, Any] = field(default_factory=dict)     # cv_mean, cv_std, holdout_score ...
     data_sha256: str = ""
     id_column: str | None = None
+    # regression: labbench.data.TargetScaler mapping the network's output to the target's own
+    # units (fitted on the training rows); None = the network outputs target units directly
+    target_scaler: Any = None
 
     def _inputs(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
         missing = [c for c in self.features if c not in frame.columns]
@@ -40,8 +43,12 @@ class TrainedModel:
         return self.preprocessor.transform(frame.loc[:, list(self.features)])
 
     def output(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
-        """Raw network output: regression values (n,), P(class 1) (n,), or class probabilities (n, C)."""
-        return np.asarray(self.weights.forward(self._inputs(frame, source)))
+        """Regression values (n,) in the target's own units, P(class 1) (n,), or class
+        probabilities (n, C)."""
+        out = np.asarray(self.weights.forward(self._inputs(frame, source)))
+        if self.task == "regression" and self.target_scaler is not None:
+            out = self.target_scaler.inverse(out)
+        return out
 
     def predict(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
         out = self.output(frame, source)

@@ -9,10 +9,12 @@ from labbench.data.reading import read_csv
 from labbench.data.roles import KINDS, TASKS, category_text, infer_kinds, infer_task
 from labbench.data.splits import check_folds, holdout_split, make_folds
 from labbench.data.table import MISSING_POLICIES, Table, load_table
+from labbench.data.target import DEFAULT_TARGET_SCALING, TARGET_SCALINGS, TargetScaler
 
 __all__ = [
     "read_csv", "infer_kinds", "infer_task", "load_table", "Table",
     "check_folds", "holdout_split", "make_folds",
-    "Preprocessor", "prepare_folds", "FoldArrays",
+    "Preprocessor", "prepare_folds", "FoldArrays", "TargetScaler",
     "category_text", "KINDS", "TASKS", "SCALINGS", "MISSING_POLICIES",
+    "TARGET_SCALINGS", "DEFAULT_TARGET_SCALING",
 ]

@@ -13,6 +13,14 @@ Entries (all plain numeric or unicode arrays; saved and loaded with ``allow_pick
 ``categories{j}``           unicode (k_j,): the one-hot order of categorical column j; a value not
                             in the list encodes as all zeros
 Network inputs: all numeric columns, then each categorical column's one-hot block.
+
+Target scaling (format 2). A regression network is trained on a scaled target; the metadata's
+``preprocessing.target`` = ``{"method": "standard" | "log" | "none", "center": float, "scale":
+float}`` maps its output z back to the target's own units: ``center + scale * z`` (standard,
+none) or ``exp(center + scale * z)`` (log), in float64. A bundle whose network needs that map is
+written as format 2, so a labbench that does not know it refuses the file instead of predicting
+in the wrong units; any other bundle is written as format 1. A format-1 bundle (or one without
+the entry) loads with ``"none"``: its network gives target units directly.
 """
 
 from __future__ import annotations
@@ -33,7 +41,7 @@ from labbench.errors import BundleError
 from labbench.model import TrainedModel
 
 FORMAT_NAME = "labbench-model-bundle"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2          # the newest format this labbench reads and writes
 CAUTION = (
     "A cross-validated score is an estimate of how the model does on new rows like the training "
     "data, not a guarantee. Decisions that affect people, money or safety need independent "
@@ -86,9 +94,13 @@ def bundle_arrays(model: TrainedModel) -> dict[str, np.ndarray]:
     for key in ("cv_mean", "cv_std", "holdout_score"):
         scores.setdefault(key, None)
     first_W = model.weights.layers[0][0]
+    preprocessing: dict[str, Any] = {"scaling": state["scaling"]}
+    target = model.target_scaler if model.task == "regression" else None
+    if target is not None and not target.is_identity:
+        preprocessing["target"] = target.to_state()
     meta = {
         "format": FORMAT_NAME,
-        "format_version": FORMAT_VERSION,
+        "format_version": 2 if "target" in preprocessing else 1,
         "labbench_version": __version__,
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "data_sha256": model.data_sha256,
@@ -103,7 +115,7 @@ def bundle_arrays(model: TrainedModel) -> dict[str, np.ndarray]:
         "id_column": model.id_column,
         "network": {"layers": len(model.weights.layers), "activation": model.weights.activation,
                     "output": model.weights.output, "dtype": str(np.asarray(first_W).dtype)},
-        "preprocessing": {"scaling": state["scaling"]},
+        "preprocessing": preprocessing,
         "caution": CAUTION,
     }
     text = json.dumps(json_safe(meta), indent=1, sort_keys=True, allow_nan=False)
@@ -301,6 +313,22 @@ def _check_task(meta, name: str) -> int:
     return 1 if task == "binary" else len(classes)
 
 
+def _check_target(meta, name: str):
+    """The regression target scaler (``"none"`` when the bundle has none); None for classes."""
+    from labbench.data import TargetScaler
+
+    preprocessing = meta.get("preprocessing")
+    state = preprocessing.get("target") if isinstance(preprocessing, dict) else None
+    if meta["task"] != "regression":
+        if state is not None:
+            raise _fail(name, f"a {meta['task']} model must not have target scaling")
+        return None
+    try:
+        return TargetScaler.from_state(state, str(meta["target"]))
+    except ValueError as exc:
+        raise _fail(name, f"has an invalid target scaling in its metadata ({exc})") from None
+
+
 def load_bundle(path: str | os.PathLike) -> TrainedModel:
     """Read and validate a bundle; every problem is one :class:`BundleError` line."""
     from labbench.data import Preprocessor
@@ -313,6 +341,7 @@ def load_bundle(path: str | os.PathLike) -> TrainedModel:
     state = _check_preprocessing(arrays, meta, name)
     n_inputs = len(state["numeric"]) + sum(len(c) for c in state["categories"])
     layers = _check_network(arrays, meta, name, n_inputs, n_outputs)
+    target_scaler = _check_target(meta, name)
     try:
         preprocessor = Preprocessor.from_state(state)
         weights = NetWeights(layers=layers, activation=meta["network"]["activation"],
@@ -325,7 +354,7 @@ def load_bundle(path: str | os.PathLike) -> TrainedModel:
         classes=tuple(meta["classes"]) if meta["classes"] is not None else None,
         settings=dict(meta["settings"] or {}), metric=str(meta["metric"] or ""),
         scores=dict(meta["scores"] or {}), data_sha256=str(meta["data_sha256"] or ""),
-        id_column=meta["id_column"],
+        id_column=meta["id_column"], target_scaler=target_scaler,
     )
 
 

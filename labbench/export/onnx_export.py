@@ -7,14 +7,17 @@ other characters become ``_``, a leading digit gets ``c_`` in front), each of sh
     numbers without ".0", booleans as "True"/"False"); "" means missing (replaced by the most
     frequent training value); a category not seen in training encodes as all zeros.
 Outputs:
-  * regression:      ``value`` tensor(float) [N]
+  * regression:      ``value`` tensor(float) [N], in the target's own units: the network's
+                     output z goes through the target scaling's inverse in double
+                     (``center + scale * z``, then ``Exp`` for "log"), then back to float
   * classification:  ``label`` tensor(string) [N] and ``probabilities`` tensor(float) [N, C]
                      (columns in the order of the class list in the metadata).
 
 Operators: default domain opset 17 (Concat, IsNaN, Where, Sub, Div, Cast, Equal, Gemm, Relu, Tanh,
-Sigmoid, Softmax, ArgMax, GreaterOrEqual, Gather, Reshape) and, for the categories, ``LabelEncoder``
-of the ONNX-ML domain ``ai.onnx.ml`` (opset 2): ``Equal`` takes strings only from opset 19 on, so
-strings are first mapped to their one-hot position by the label encoder, then compared as int64.
+Sigmoid, Softmax, ArgMax, GreaterOrEqual, Gather, Reshape, Mul, Add, Exp) and, for the categories,
+``LabelEncoder`` of the ONNX-ML domain ``ai.onnx.ml`` (opset 2): ``Equal`` takes strings only from
+opset 19 on, so strings are first mapped to their one-hot position by the label encoder, then
+compared as int64.
 Numeric preprocessing runs in double (as labbench does), the network in its own dtype (float32 by
 default). The model's metadata_props carry the bundle metadata as JSON (``labbench``) and the
 column → input name map (``inputs``).
@@ -113,6 +116,16 @@ def build_onnx(model: TrainedModel):
 
     outputs = []
     if model.task == "regression":
+        target = model.target_scaler
+        if target is not None and not target.is_identity:     # back to the target's own units
+            double = TensorProto.DOUBLE
+            z = h if net_type == double else node("Cast", [h], "_lb.output_double", to=double)
+            scale = const("target_scale", np.array(target.scale, np.float64))
+            center = const("target_center", np.array(target.center, np.float64))
+            z = node("Add", [node("Mul", [z, scale], "_lb.target_scaled"), center], "_lb.target_shifted")
+            if target.method == "log":
+                z = node("Exp", [z], "_lb.target_exp")
+            h = z if net_type == double else node("Cast", [z], "_lb.target_units", to=net_type)
         node("Reshape", [h, const("flat", np.array([-1], np.int64))], "value")
         outputs.append(helper.make_tensor_value_info("value", net_type, ["N"]))
     else:

@@ -111,7 +111,8 @@ ACTIVATIONS = {
 
 
 def forward(model, X):
-    """Regression values (n,), P(second class) (n,) for binary, class probabilities (n, C)."""
+    """Network output: regression (n,) in training units (see target_units), P(second class)
+    (n,) for binary, class probabilities (n, C)."""
     n = model["meta"]["network"]["layers"]
     h = X.astype(model["layer0_W"].dtype)
     for i in range(n):
@@ -125,12 +126,23 @@ def forward(model, X):
     return ACTIVATIONS[output](h)[:, 0]
 
 
+def target_units(model, z):
+    """A regression network's output z in the target's own units: the network was trained on
+    a scaled target (metadata "preprocessing" -> "target"; absent in bundles without it)."""
+    target = (model["meta"].get("preprocessing") or {}).get("target") or {"method": "none"}
+    z = np.asarray(z, dtype=np.float64)
+    if target["method"] == "none":
+        return z
+    y = z * target["scale"] + target["center"]
+    return np.exp(y) if target["method"] == "log" else y
+
+
 def predict(model, columns):
     """(predictions, class probabilities or None) for {column: [text, ...]}."""
     out = forward(model, inputs(model, columns))
     classes = model["meta"]["classes"]
     if classes is None:
-        return out.astype(np.float64), None
+        return target_units(model, out), None
     proba = np.column_stack([1 - out, out]) if out.ndim == 1 else out
     labels = np.array(classes)[(out >= 0.5).astype(int) if out.ndim == 1 else proba.argmax(axis=1)]
     return labels, proba

@@ -69,7 +69,8 @@ class StackTrainer:
     def __init__(self, config: NetConfig, task: str, n_outputs: int, X_train: Sequence[np.ndarray],
                  y_train: Sequence[np.ndarray], X_val: Sequence[np.ndarray] | None = None,
                  y_val: Sequence[np.ndarray] | None = None, *, seeds: Sequence[int],
-                 metric: str | None = None):
+                 metric: str | None = None,
+                 target_inverse: Sequence[Callable[[np.ndarray], np.ndarray]] | None = None):
         if task not in TASKS:
             raise ValueError(f"task {task!r} is not one of {', '.join(TASKS)}")
         X_train, y_train = _as_list(X_train, "X_train"), _as_list(y_train, "y_train")
@@ -135,6 +136,10 @@ class StackTrainer:
                 self._Xv[i, :self._nv[i], :d] = x
             self._plan_validation()
             self._yv = [np.asarray(y) for y in y_val]
+            # per member: scaled regression output -> target units, where the metric is computed
+            self._target_inverse = None if target_inverse is None else list(target_inverse)
+            if self._target_inverse is not None and len(self._target_inverse) != m:
+                raise ValueError("target_inverse needs one entry per member")
             self._Yv = [encode_targets(task, y, k, np.float64) for y in y_val]
             self.metric = metric or default_metric(task)
             check_metric(self.metric, task)
@@ -271,7 +276,10 @@ class StackTrainer:
                 out = outs[i, :self._nv[i]]
                 val_loss[i] = self._out.loss(out, self._Yv[i])
                 if np.all(np.isfinite(out)):
-                    val_metric[i] = compute(self.metric, self._yv[i], self._member_output(out), self.task,
+                    truth, pred = self._yv[i], self._member_output(out)
+                    if self._target_inverse is not None:   # scores in the target's own units
+                        truth, pred = self._target_inverse[i](truth), self._target_inverse[i](pred)
+                    val_metric[i] = compute(self.metric, truth, pred, self.task,
                                             self.n_outputs if self.task == "multiclass" else 2)
                 else:
                     val_metric[i] = np.nan

@@ -66,6 +66,7 @@ def run_trial(
         config, prepared.task, prepared.n_outputs,
         folds.X_train, folds.y_train, folds.X_val, folds.y_val,
         seeds=member_seeds(seed, n_members), metric=prepared.metric,
+        target_inverse=folds.target_inverse,    # regression: scores in the target's own units
     )
     state = {"epochs": 0, "last": None, "stopped": False}
 

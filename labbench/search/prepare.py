@@ -5,7 +5,9 @@ Order matters and is fixed here once for the runner and the winner refit alike:
 1. load the table with the spec's data settings;
 2. resolve the task (spec override or inferred) and the metric (spec or the task's default);
 3. split off the hold-out FIRST (``evaluation.seed``), so its rows never reach any fold;
-4. make the folds on the training rows only and fit one preprocessor per fold (``FoldArrays``).
+4. make the folds on the training rows only and fit one preprocessor per fold (``FoldArrays``);
+   for regression also one target scaler per fold (``data.target_scaling``), so the networks
+   train on a scaled target while every score is computed in the target's own units.
 """
 
 from __future__ import annotations
@@ -31,6 +33,7 @@ class Prepared:
     holdout_pos: np.ndarray            # positions into the table: locked away until the end
     folds: tuple                       # (train, val) positions into train_pos, one pair per fold
     fold_arrays: Any                   # labbench.data.FoldArrays (rows = positions into the table)
+    target_scaling: str = "standard"   # regression: how the refit scales the target (spec key)
 
     @property
     def n_outputs(self) -> int:
@@ -70,9 +73,9 @@ def prepare(spec: Spec) -> Prepared:
     holdout_pos = np.asarray(holdout_pos, dtype=np.int64)
     folds = make_folds(table.y[train_pos], e.folds, repeats=e.repeats, seed=e.seed,
                        stratify=stratify)
-    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling)
+    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling, d.target_scaling)
     log.info("%s: %d training rows, %d hold-out rows, %d folds", d.path, len(train_pos),
              len(holdout_pos), len(folds))
     return Prepared(table=table, task=task, metric=metric, direction=metric_direction(metric),
                     train_pos=train_pos, holdout_pos=holdout_pos, folds=tuple(folds),
-                    fold_arrays=fold_arrays)
+                    fold_arrays=fold_arrays, target_scaling=d.target_scaling)

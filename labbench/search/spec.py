@@ -1,7 +1,7 @@
 """The spec file: one human-editable TOML file holds a whole experiment.
 
 ```toml
-[data]          path, target, ignore, task, kinds, missing, scaling
+[data]          path, target, ignore, task, kinds, missing, scaling, target_scaling
 [evaluation]    folds, repeats, holdout, seed, metric, seed_spread
 [search]        trials, minutes, sampler, pruner, workers, storage, name
 [space]         one entry per network setting (see labbench.search.space)
@@ -30,6 +30,7 @@ TASKS = ("regression", "binary", "multiclass")
 KINDS = ("numeric", "categorical")
 MISSING = ("impute", "drop")
 SCALING = ("standard", "minmax")
+TARGET_SCALING = ("standard", "log", "none")    # labbench.data.TARGET_SCALINGS
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
 PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
@@ -46,6 +47,7 @@ class DataSpec:
     kinds: Mapping[str, str] = field(default_factory=dict)   # column -> numeric | categorical
     missing: str = "impute"
     scaling: str = "standard"
+    target_scaling: str = "standard"           # regression only: "standard" | "log" | "none"
 
 
 @dataclass(frozen=True)
@@ -98,6 +100,7 @@ class Spec:
             data["kinds"] = dict(d.kinds)
         data["missing"] = d.missing
         data["scaling"] = d.scaling
+        data["target_scaling"] = d.target_scaling
         evaluation: dict[str, Any] = {"folds": e.folds, "repeats": e.repeats, "holdout": e.holdout,
                                       "seed": e.seed}
         if e.metric:
@@ -269,7 +272,7 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         raise spec_error(source, "data", "missing section; a spec needs [data] with path and target")
 
     ds = _Section(d["data"], "data", ("path", "target", "ignore", "task", "kinds", "missing",
-                                      "scaling"), source)
+                                      "scaling", "target_scaling"), source)
     path = ds.text("path", required=True)
     kinds = ds.d.get("kinds", {})
     if not isinstance(kinds, Mapping):
@@ -286,6 +289,8 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         kinds=dict(kinds),
         missing=ds.text("missing", "impute", choices=MISSING),
         scaling=ds.text("scaling", "standard", choices=SCALING),
+        # a spec written before this key existed gets the default (the target standardised)
+        target_scaling=ds.text("target_scaling", "standard", choices=TARGET_SCALING),
     )
     if data.target in data.ignore:
         raise ds.fail("ignore", f"lists the target {show(data.target)}; remove it from ignore")

@@ -82,9 +82,11 @@ def _versions() -> dict[str, str]:
 
 
 def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling: str,
-          dtype: str = "float32"):
-    """Train the settings on all training rows; returns ``(Preprocessor, NetWeights)``."""
-    from labbench.data import Preprocessor
+          dtype: str = "float32", target_scaling: str | None = None):
+    """Train the settings on all training rows; returns ``(Preprocessor, NetWeights,
+    TargetScaler or None)``. Regression: the target scaler (``target_scaling``, default the
+    prepared spec's) is fitted on the same rows and the network trains in its units."""
+    from labbench.data import Preprocessor, TargetScaler
     from labbench.nets import StackTrainer
 
     table = prepared.table
@@ -93,10 +95,14 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
     pre = Preprocessor(numeric, categorical, scaling=scaling)
     X = pre.fit_transform(table.frame.iloc[prepared.train_pos])
     y = table.y[prepared.train_pos]
+    target = None
+    if prepared.task == "regression":
+        target = TargetScaler(target_scaling or prepared.target_scaling, table.target)
+        y = target.fit_transform(y, f"{table.path}: ")
     trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
                            prepared.n_outputs, [X], [y], seeds=_member_seeds(seed, 1))
     trainer.run()
-    return pre, trainer.weights(0)
+    return pre, trainer.weights(0), target
 
 
 def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: list[int],
@@ -110,7 +116,9 @@ def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: 
     trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
                            prepared.n_outputs, list(fa.X_train) * len(seeds),
                            list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
-                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric)
+                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric,
+                           target_inverse=None if fa.target_inverse is None
+                           else list(fa.target_inverse) * len(seeds))
     history = trainer.run()
     per_member = np.asarray(history[-1].val_metric, dtype=np.float64)
     scores = [float(per_member[i * k:(i + 1) * k].mean()) for i in range(len(seeds))]
@@ -175,13 +183,14 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         emit(events.FinalStage(stage=name, text=text))
 
     stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
-    pre, weights = refit(prepared, settings, seed=seed, scaling=spec.data.scaling, dtype=dtype)
+    pre, weights, target_scaler = refit(prepared, settings, seed=seed, scaling=spec.data.scaling,
+                                        dtype=dtype)
     table = prepared.table
     model = TrainedModel(preprocessor=pre, weights=weights, task=prepared.task, target=table.target,
                          features=tuple(table.features), kinds=dict(table.kinds),
                          classes=None if table.classes is None else tuple(table.classes),
                          settings=settings, metric=metric, data_sha256=table.sha256,
-                         id_column=table.id_column)
+                         id_column=table.id_column, target_scaler=target_scaler)
 
     stage("holdout", f"Scoring the refit model once on {len(prepared.holdout_pos)} hold-out rows")
     h_score = holdout_score(model, prepared)

@@ -150,3 +150,13 @@ def test_spec_is_a_plain_frozen_value(example):
     with pytest.raises(dataclasses.FrozenInstanceError):
         spec.search = None                            # type: ignore[misc]
     assert isinstance(spec, Spec)
+
+
+def test_target_scaling_defaults_to_standard_and_round_trips(tmp_path):
+    # a spec written before the key existed (no target_scaling) gets the documented default
+    old = loads_spec('[data]\npath = "a.csv"\ntarget = "y"\n', tmp_path, "x.toml")
+    assert old.data.target_scaling == "standard"
+    for method in ("log", "none", "standard"):
+        spec = old.with_data(target_scaling=method)
+        assert tomllib.loads(spec.to_toml())["data"]["target_scaling"] == method
+        assert loads_spec(spec.to_toml(tmp_path), tmp_path) == spec

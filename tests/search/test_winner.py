@@ -99,7 +99,7 @@ def run_search(spec, prepared, n_trials):
         trainer = StackTrainer(settings_to_config(settings), prepared.task, prepared.n_outputs,
                                fa.X_train, fa.y_train, fa.X_val, fa.y_val,
                                seeds=member_seeds(spec.evaluation.seed, len(fa.X_train)),
-                               metric=prepared.metric)
+                               metric=prepared.metric, target_inverse=fa.target_inverse)
         scores = [float(v) for v in trainer.run()[-1].val_metric]
         trial.set_user_attr("settings", settings)
         trial.set_user_attr("fold_scores", scores)
