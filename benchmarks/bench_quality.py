@@ -88,7 +88,8 @@ def run_labbench(spec: Path, out: Path) -> tuple[dict, float]:
                            "--out", str(out)], capture_output=True, text=True)
     seconds = time.perf_counter() - t0
     if proc.returncode != 0:
-        raise SystemExit(f"labbench run {spec.name} exited {proc.returncode}:\n{proc.stderr}")
+        raise RuntimeError(f"labbench run exited {proc.returncode}: "
+                           + (proc.stderr.strip().splitlines() or ["?"])[-1])
     return json.loads((out / "winner.json").read_text(encoding="utf-8")), seconds
 
 
@@ -200,7 +201,12 @@ def main(argv=None) -> int:
     rows = []
     with tempfile.TemporaryDirectory(prefix="lb-quality-") as tmp:
         for name in args.sets:
-            rows.append(one_set(name, Path(tmp), args))
+            try:
+                rows.append(one_set(name, Path(tmp), args))
+            except RuntimeError as exc:           # labbench refused or failed: a row that says so
+                print(f"  {name}: {exc}", flush=True)
+                rows.append({"set": name, "error": str(exc)})
+                continue
             r = rows[-1]
             print(f"  {name}: labbench {r['labbench']:.4g} in {r['labbench_s']:.0f} s", flush=True)
     print()
@@ -211,6 +217,9 @@ def main(argv=None) -> int:
     print(head)
     print("|" + "---|" * (head.count("|") - 1))
     for r in rows:
+        if "error" in r:
+            print(f"| {r['set']} | – | failed: {r['error']} |")
+            continue
         sign = 1.0 if METRICS[r["metric"]].direction == "maximize" else -1.0
         diff = sign * (r["labbench"] - r["sklearn MLP"])
         verdict = "better" if diff > 2 * r["se_vs_mlp"] else (
