@@ -103,6 +103,7 @@ class SearchRunner:
             fresh=self.fresh)
         existing = self.study.get_trials(deepcopy=False)
         self.best = best_of(existing, self.direction)
+        fixed_only = self._nothing_searched(existing)
         self.asked = self.finished = 0
         self.in_flight: dict[int, InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
@@ -120,6 +121,8 @@ class SearchRunner:
             budget_minutes=self.minutes, existing_trials=len(existing),
             searched=tuple(self.spec.space.searched_params()),
             log_scaled=tuple(self.spec.space.log_scaled_params())))
+        if fixed_only:
+            self.emit(ev.Notice(fixed_only, "info"))
         if resumed:
             log.info("resuming study %s (%d trials stored)", name, len(existing))
         if self.best is not None:
@@ -157,6 +160,20 @@ class SearchRunner:
         if error is not None:
             raise error
         return outcome
+
+    def _nothing_searched(self, existing) -> str:
+        """With every setting fixed, more than one trial would train the same model again: the
+        budget becomes one trial (none when one is already complete); returns the notice."""
+        from optuna.trial import TrialState
+
+        if self.spec.space.searched_params():
+            return ""
+        done = any(t.state == TrialState.COMPLETE for t in existing)
+        self.trials, self.minutes = (0 if done else 1), None
+        return ("Nothing is searched (every setting is fixed), so " +
+                ("the stored trial already holds the result: no new trial is run" if done else
+                 "one trial is run instead of the budget") +
+                "; give a setting a range or choices in [space] to search it")
 
     # ------------------------------------------------------------------------------------
     # the loop
@@ -319,7 +336,8 @@ class SearchRunner:
             self._report(flight, int(epoch), self.sign * float(val_loss))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
-        if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch)):
+        most = int(flight.settings["epochs"])
+        if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch), most):
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
 

@@ -24,6 +24,7 @@ from typing import Any, Mapping
 import tomli_w
 
 from labbench.errors import SpecError
+from labbench.search.defaults import default_space_dict
 from labbench.search.space import SearchSpace, show, spec_error
 
 TASKS = ("regression", "binary", "multiclass")
@@ -331,7 +332,9 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         name=ss.text("name"),
     )
 
-    space_raw = d.get("space", {})
+    # No [space] at all: the default searched space (labbench.search.defaults); with a [space]
+    # section, settings left out are fixed at their defaults.
+    space_raw = d["space"] if "space" in d else default_space_dict()
     if not isinstance(space_raw, Mapping):
         raise spec_error(source, "space", f"{show(space_raw)} is not a table; write [space] "
                          "with one line per setting")

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import importlib.util
 import logging
+import math
 from typing import Any
 
 from labbench.errors import SpecError
@@ -96,16 +97,32 @@ def epoch_range(spec: Any) -> tuple[int, int]:
     raise AssertionError(f"epochs cannot be {s!r}")
 
 
+#: Share of a trial's own maximum epochs that it trains before any pruner may judge it, and the
+#: fewest epochs in any case. Chosen by measurement (benchmarks/bench_quality.py, see the README's
+#: quality table): judging at 30 % of the *shortest* trial (3 epochs on a 10-200 range) stopped the
+#: slow starters (small learning rates, many units), which are often the best, and cost accuracy.
+WARMUP_SHARE = 0.5
+MIN_WARMUP = 5
+#: Complete trials the median pruner waits for before it compares anything.
+PRUNER_STARTUP_TRIALS = 10
+
+
+def trial_warmup(max_epochs: int) -> int:
+    """Epochs a trial with at most ``max_epochs`` epochs trains before it may be pruned."""
+    return max(MIN_WARMUP, math.ceil(WARMUP_SHARE * int(max_epochs)))
+
+
 def warmup_epochs(spec: Any) -> int:
-    """Epochs before any trial may be pruned: 30 % of the shortest trial, 3 to 10 (common
-    practice: the first epochs of a network say little about where it ends, and early on a
-    large learning rate always looks better than a small one)."""
+    """The shortest warm-up of any trial of this space (the warm-up of its fewest epochs)."""
     fewest, _ = epoch_range(spec)
-    return max(3, min(10, round(0.3 * fewest)))
+    return trial_warmup(fewest)
 
 
 def make_pruner(spec: Any):
-    """The pruner of ``[search] pruner``; step = epoch (1-based), value = fold-mean val loss."""
+    """The pruner of ``[search] pruner``; step = epoch (1-based), value = fold-mean val loss.
+
+    Each trial's own warm-up (``trial_warmup`` of its maximum epochs) is enforced by
+    ``PruneCheck``; the pruners get the shortest one so that they never undercut it."""
     import optuna
 
     name = spec.search.pruner
@@ -114,8 +131,8 @@ def make_pruner(spec: Any):
     if name == "none":
         return optuna.pruners.NopPruner()
     if name == "median":
-        # Compare only after five finished trials (Optuna's default) and after the warm-up epochs.
-        return optuna.pruners.MedianPruner(n_startup_trials=5, n_warmup_steps=warmup)
+        return optuna.pruners.MedianPruner(n_startup_trials=PRUNER_STARTUP_TRIALS,
+                                           n_warmup_steps=warmup)
     if name == "halving":
         return optuna.pruners.SuccessiveHalvingPruner(min_resource=warmup, reduction_factor=3)
     if name == "hyperband":
@@ -132,8 +149,9 @@ class PruneCheck:
     on each call (≈5 ms with SQLite), once per epoch. Here the median pruner sees a cached list
     of the COMPLETE trials instead: it is re-read after each trial this run tells (so a search
     of one process decides exactly as Optuna would) and otherwise at most every ``refresh_s``
-    seconds (trials other processes finish on a shared database). Steps before the warm-up are
-    never checked (every pruner says no there). The other pruners take Optuna's own path.
+    seconds (trials other processes finish on a shared database). Steps before the trial's own
+    warm-up (``trial_warmup`` of its maximum epochs, when the caller gives them; else the
+    shortest warm-up of the space) are never checked. The other pruners take Optuna's own path.
     """
 
     def __init__(self, study, pruner, warmup: int, refresh_s: float = 10.0):
@@ -163,8 +181,9 @@ class PruneCheck:
     def __getattr__(self, name: str):          # direction, study_name, _storage, ...
         return getattr(self.study, name)
 
-    def __call__(self, trial, epoch: int) -> bool:
-        if not self.enabled or epoch < self.warmup:
+    def __call__(self, trial, epoch: int, max_epochs: int | None = None) -> bool:
+        warmup = self.warmup if max_epochs is None else max(self.warmup, trial_warmup(max_epochs))
+        if not self.enabled or epoch < warmup:
             return False
         if self.cached:
             return bool(self.pruner.prune(self, trial._get_latest_trial()))
