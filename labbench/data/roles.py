@@ -3,8 +3,19 @@
 Rules (common practice): a column pandas reads as numbers (or True/False) is numeric, even an
 integer column with few distinct values (a count, a rating) - the user can override it to
 categorical; a text column is categorical. A target of text or True/False is a class label
-(2 distinct: binary, more: multiclass); a numeric target with 2 distinct values is binary, with at
-most ``MAX_CLASSES`` distinct whole numbers multiclass, otherwise regression.
+(2 distinct: binary, more: multiclass); a numeric target with 2 distinct values is binary. A
+numeric target with 3 or more distinct values is multiclass only when it reads like a set of codes:
+
+* every value is a whole number, and there are at most ``MAX_CLASSES`` (20) of them;
+* the values repeat: at most half as many distinct values as rows (``CODES_PER_ROW``; each class
+  has two rows or more on average - Longley's employment total, 16 values in 16 rows, is a
+  quantity);
+* the values are small (all within -20..20) or compact (the range they span holds at most twice
+  as many whole numbers as there are distinct values: a 1-5 rating, 0-9 digit codes; a
+  body-weight column of 18 kilogram values spread over 52..97 is a quantity).
+
+Anything else numeric is regression. ``task = "regression"`` (or "multiclass") in the spec's
+[data] section overrides the rule; every error about classes says so.
 """
 
 from __future__ import annotations
@@ -20,6 +31,9 @@ from labbench.data.reading import show
 KINDS = ("numeric", "categorical")
 TASKS = ("regression", "binary", "multiclass")
 MAX_CLASSES = 20   # whole-number targets with more distinct values are treated as regression
+CODES_PER_ROW = 0.5   # more distinct values than this share of the rows: a quantity
+SMALL_CODE = 20       # whole numbers within -20..20 are small enough to be codes in any pattern
+FORCE_REGRESSION = 'if the target is a quantity, set task = "regression" in the spec\'s [data] section'
 
 
 def is_numeric(series: pd.Series) -> bool:
@@ -44,9 +58,13 @@ def infer_task(series: pd.Series) -> str:
     if not is_numeric(series) or pd.api.types.is_bool_dtype(series):
         return "multiclass"
     v = values.to_numpy(dtype=np.float64)
-    if distinct <= MAX_CLASSES and np.all(v == np.round(v)):
-        return "multiclass"
-    return "regression"
+    if distinct > MAX_CLASSES or not np.all(v == np.round(v)):
+        return "regression"
+    if distinct > CODES_PER_ROW * len(v):
+        return "regression"
+    small = bool(np.abs(v).max() <= SMALL_CODE)
+    compact = (v.max() - v.min() + 1) <= 2 * distinct
+    return "multiclass" if small or compact else "regression"
 
 
 _FIX_FEATURE = "fix that value, leave it empty for missing, or treat the column as categorical"

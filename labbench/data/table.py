@@ -20,7 +20,7 @@ import pandas as pd
 
 from labbench.errors import DataError
 from labbench.data.reading import read_file, show
-from labbench.data.roles import (TASKS, as_float, check_kinds, class_labels,
+from labbench.data.roles import (FORCE_REGRESSION, TASKS, as_float, check_kinds, class_labels,
                                  infer_kinds, infer_task, is_numeric)
 
 log = logging.getLogger("labbench.data")
@@ -201,7 +201,8 @@ def _target(y: pd.Series, target: str, task: str | None, where: str, lines: np.n
     classes, codes = class_labels(y)
     if task == "binary" and len(classes) != 2:
         raise DataError(f"{where}: task = 'binary' needs 2 classes but the target {show(target)} has "
-                        f"{len(classes)} ({_first(classes)}); use task = 'multiclass'")
+                        f"{len(classes)} ({_first(classes)}); use task = 'multiclass'"
+                        + (f", or, {FORCE_REGRESSION}" if is_numeric(y) else ""))
     return task, classes, codes
 
 
