@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import BundleError, DataError
-from labbench.data.reading import show
+from labbench.data.reading import names_text, show
 from labbench.data.roles import as_float, category_text
 
 SCALINGS = ("standard", "minmax")
@@ -154,8 +154,8 @@ class Preprocessor:
     def _check_columns(self, frame: pd.DataFrame) -> None:
         absent = [c for c in self.numeric + self.categorical if c not in frame.columns]
         if absent:
-            raise DataError(f"missing column(s) {', '.join(absent)}; the preprocessing needs "
-                            f"{', '.join(self.numeric + self.categorical)}")
+            raise DataError(f"missing column(s) {names_text(absent)}; the preprocessing needs "
+                            f"{names_text(self.numeric + self.categorical)}")
 
     def _numeric_block(self, frame: pd.DataFrame) -> np.ndarray:
         X = np.empty((len(frame), len(self.numeric)), dtype=np.float64)

@@ -60,6 +60,17 @@ def show(value: object, width: int = 40) -> str:
     return text if len(text) <= width else text[: width - 3] + "..."
 
 
+def names_text(names, limit: int = 12, width: int = 30) -> str:
+    """Names for a one-line message, plain (no quotes), comma separated: line breaks escaped,
+    long names shortened, at most ``limit`` shown."""
+    names = [str(n) for n in names]
+    parts = []
+    for n in names[:limit]:
+        n = n.replace("\n", "\\n").replace("\r", "\\r")
+        parts.append(n if len(n) <= width else n[: width - 3] + "...")
+    return ", ".join(parts) + (f", ... ({len(names)} in all)" if len(names) > limit else "")
+
+
 def read_csv(path: str | Path) -> pd.DataFrame:
     """Read a CSV file as it is (no target handling); see the module docstring for what is checked.
 

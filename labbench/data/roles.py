@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import DataError
-from labbench.data.reading import show
+from labbench.data.reading import names_text, show
 
 KINDS = ("numeric", "categorical")
 TASKS = ("regression", "binary", "multiclass")
@@ -142,7 +142,7 @@ def check_kinds(kinds: Mapping[str, str] | None, columns: list[str], target: str
                             "(regression, binary, multiclass) instead of its kind")
         if col not in columns:
             raise DataError(f"{where}: kinds: no column {show(col)}; the columns are "
-                            f"{', '.join(columns)}")
+                            f"{names_text(columns)}")
         if kind not in KINDS:
             raise DataError(f"{where}: kinds: {show(col)} = {show(kind)}; use 'numeric' or 'categorical'")
         out[col] = kind

@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import DataError
-from labbench.data.reading import read_file, show
+from labbench.data.reading import names_text, read_file, show
 from labbench.data.roles import (FORCE_REGRESSION, TASKS, as_float, check_kinds, class_labels,
                                  infer_kinds, infer_task, is_numeric)
 
@@ -77,10 +77,10 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     columns = [str(c) for c in frame.columns]
 
     if target not in columns:
-        raise DataError(f"{where}: no column {show(target)} for the target; the columns are {', '.join(columns)}")
+        raise DataError(f"{where}: no column {show(target)} for the target; the columns are {names_text(columns)}")
     for col in ignore:
         if col not in columns:
-            raise DataError(f"{where}: ignore: no column {show(col)}; the columns are {', '.join(columns)}")
+            raise DataError(f"{where}: ignore: no column {show(col)}; the columns are {names_text(columns)}")
         if col == target:
             raise DataError(f"{where}: ignore: {show(col)} is the target; remove it from the ignored columns")
     overrides = check_kinds(kinds, columns, target, where)
@@ -207,7 +207,7 @@ def _target(y: pd.Series, target: str, task: str | None, where: str, lines: np.n
 
 
 def _first(classes: tuple[str, ...], limit: int = 6) -> str:
-    return ", ".join(classes[:limit]) + (", ..." if len(classes) > limit else "")
+    return names_text(classes, limit)
 
 
 def _mostly_numbers(y: pd.Series) -> bool:
