@@ -5,8 +5,9 @@ from __future__ import annotations
 
 from labbench.data.folds import FoldArrays, prepare_folds
 from labbench.data.prep import SCALINGS, Preprocessor
-from labbench.data.reading import read_csv
+from labbench.data.reading import MISSING_MARKERS, read_csv
 from labbench.data.roles import KINDS, TASKS, category_text, infer_kinds, infer_task
+from labbench.data.screen import screen_columns
 from labbench.data.splits import check_folds, holdout_split, make_folds
 from labbench.data.table import MISSING_POLICIES, Table, load_table
 
@@ -15,4 +16,5 @@ __all__ = [
     "check_folds", "holdout_split", "make_folds",
     "Preprocessor", "prepare_folds", "FoldArrays",
     "category_text", "KINDS", "TASKS", "SCALINGS", "MISSING_POLICIES",
+    "screen_columns", "MISSING_MARKERS",
 ]

@@ -7,7 +7,7 @@ from typing import Sequence
 
 import numpy as np
 
-from labbench.data.prep import Preprocessor
+from labbench.data.prep import Preprocessor, category_levels
 from labbench.data.table import Table
 
 
@@ -40,10 +40,11 @@ def prepare_folds(table: Table, rows: Sequence[int] | np.ndarray,
     rows = np.asarray(rows, dtype=np.int64)
     numeric, categorical = table.numeric, table.categorical
     out: dict[str, list] = {k: [] for k in ("X_train", "y_train", "X_val", "y_val", "train_rows", "val_rows", "pre")}
+    levels = category_levels(table.frame.iloc[rows], categorical)   # one column layout for all folds
     for train_pos, val_pos in folds:
         tr = rows[np.asarray(train_pos, dtype=np.int64)]
         va = rows[np.asarray(val_pos, dtype=np.int64)]
-        pre = Preprocessor(numeric, categorical, scaling).fit(table.frame.iloc[tr])
+        pre = Preprocessor(numeric, categorical, scaling, levels=levels).fit(table.frame.iloc[tr])
         out["X_train"].append(pre.transform(table.frame.iloc[tr]))
         out["X_val"].append(pre.transform(table.frame.iloc[va]))
         out["y_train"].append(table.y[tr])

@@ -67,6 +67,32 @@ def infer_task(series: pd.Series) -> str:
     return "multiclass" if small or compact else "regression"
 
 
+MOSTLY_NUMERIC = 0.9   # a text column whose non-missing cells are at least this share numbers
+
+
+def stray_cells(series: pd.Series, *, always: bool = False) -> np.ndarray | None:
+    """Positions of the cells that are not numbers in a mostly numeric text column.
+
+    "Mostly numeric" (common practice): at least ``MOSTLY_NUMERIC`` of the non-missing cells read
+    as numbers (surrounding spaces ignored). None when the column is numeric already, is not
+    mostly numeric (a label column; unless ``always``), or has no stray cell.
+    """
+    if is_numeric(series):
+        return None
+    present = series.notna().to_numpy()
+    if not present.any():
+        return None
+    text = series.astype(object).where(series.notna(), None)
+    converted = pd.to_numeric(text.map(lambda v: v.strip() if isinstance(v, str) else v), errors="coerce")
+    numbers = converted.notna().to_numpy()
+    bad = present & ~numbers
+    if not bad.any():
+        return None
+    if not always and numbers.sum() < MOSTLY_NUMERIC * present.sum():
+        return None
+    return np.flatnonzero(bad)
+
+
 _FIX_FEATURE = "fix that value, leave it empty for missing, or treat the column as categorical"
 
 

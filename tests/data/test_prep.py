@@ -164,6 +164,21 @@ def test_validation_rows_cannot_leak_into_what_is_fitted(seed, shift, scaling, f
     moved.loc[val, "weight"] = np.nan
     moved.loc[val, "variety"] = "Unheard-of"
     after = prepare_folds(make_table(moved, y), rows, folds, scaling)
-    assert after.preprocessors[fold].to_state() == before.preprocessors[fold].to_state()
-    np.testing.assert_array_equal(after.X_train[fold], before.X_train[fold])
-    assert not np.array_equal(after.X_val[fold], before.X_val[fold])
+    # the folds share one column layout (every level of the search's rows), so the new level gets
+    # a column; what is fitted - and every value the training rows get - stays the same, and the
+    # new column is all zeros in the training rows (the level is unseen there)
+    a, b = after.preprocessors[fold].to_state(), before.preprocessors[fold].to_state()
+    seen = lambda st_: [sorted(set(c) - set(u)) for c, u in
+                        zip(st_["categories"], st_.get("unseen") or [[]] * len(st_["categories"]))]
+    assert seen(a) == seen(b)
+    for key in ("impute", "center", "scale", "cat_impute", "numeric", "categorical"):
+        assert a[key] == b[key], key
+    names_a = after.preprocessors[fold].feature_names_
+    names_b = before.preprocessors[fold].feature_names_
+    shared = [names_a.index(n) for n in names_b]
+    np.testing.assert_array_equal(after.X_train[fold][:, shared], before.X_train[fold])
+    extra = [i for i, n in enumerate(names_a) if n not in names_b]
+    assert names_a[extra[0]] == "variety=Unheard-of"
+    np.testing.assert_array_equal(after.X_train[fold][:, extra], 0.0)
+    np.testing.assert_array_equal(after.X_val[fold][:, extra], 0.0)     # unseen: all zeros
+    assert not np.array_equal(after.X_val[fold][:, shared], before.X_val[fold])
