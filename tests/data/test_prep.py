@@ -175,10 +175,15 @@ def test_validation_rows_cannot_leak_into_what_is_fitted(seed, shift, scaling, f
         assert a[key] == b[key], key
     names_a = after.preprocessors[fold].feature_names_
     names_b = before.preprocessors[fold].feature_names_
-    shared = [names_a.index(n) for n in names_b]
-    np.testing.assert_array_equal(after.X_train[fold][:, shared], before.X_train[fold])
-    extra = [i for i, n in enumerate(names_a) if n not in names_b]
-    assert names_a[extra[0]] == "variety=Unheard-of"
-    np.testing.assert_array_equal(after.X_train[fold][:, extra], 0.0)
-    np.testing.assert_array_equal(after.X_val[fold][:, extra], 0.0)     # unseen: all zeros
-    assert not np.array_equal(after.X_val[fold][:, shared], before.X_val[fold])
+    common = [n for n in names_b if n in names_a]
+    in_a, in_b = [names_a.index(n) for n in common], [names_b.index(n) for n in common]
+    np.testing.assert_array_equal(after.X_train[fold][:, in_a], before.X_train[fold][:, in_b])
+    # a level only the validation rows had (before or after the change) is all zeros in training
+    # and in validation (unseen)
+    extra_a = [i for i, n in enumerate(names_a) if n not in names_b]
+    extra_b = [i for i, n in enumerate(names_b) if n not in names_a]
+    assert "variety=Unheard-of" in [names_a[i] for i in extra_a]
+    for fa, i in [(after, extra_a), (before, extra_b)]:
+        np.testing.assert_array_equal(fa.X_train[fold][:, i], 0.0)
+        np.testing.assert_array_equal(fa.X_val[fold][:, i], 0.0)
+    assert not np.array_equal(after.X_val[fold][:, in_a], before.X_val[fold][:, in_b])
