@@ -362,7 +362,7 @@ def _number_format(ds: _Section) -> dict[str, Any]:
     markers = ds.d.get("missing_markers", [])
     if not isinstance(markers, list) or not all(isinstance(m, str) for m in markers):
         raise ds.fail("missing_markers", f"{show(markers)} is not allowed; write a list of texts that "
-                      'mean "missing", e.g. ["n/a", "?"]')
+                      'mean "missing", e.g. ["not measured", "unknown"]')
     thousands = ds.d.get("thousands")
     if thousands is not None and thousands not in THOUSANDS:
         raise ds.fail("thousands", f"{show(thousands)} is not allowed; use one of "
