@@ -82,9 +82,10 @@ def stray_cells(series: pd.Series, *, always: bool = False) -> np.ndarray | None
     present = series.notna().to_numpy()
     if not present.any():
         return None
-    text = series.astype(object).where(series.notna(), None)
-    converted = pd.to_numeric(text.map(lambda v: v.strip() if isinstance(v, str) else v), errors="coerce")
-    numbers = converted.notna().to_numpy()
+    codes, uniques = pd.factorize(series, use_na_sentinel=True)      # judge each distinct text once
+    stripped = pd.Series([u.strip() if isinstance(u, str) else u for u in uniques], dtype=object)
+    is_number = pd.to_numeric(stripped, errors="coerce").notna().to_numpy()
+    numbers = np.append(is_number, False)[codes]                       # code -1 (missing) -> False
     bad = present & ~numbers
     if not bad.any():
         return None

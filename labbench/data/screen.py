@@ -42,14 +42,14 @@ def name_says_key(name: str) -> bool:
     return low in _KEY_NAMES or bool(_KEY_SUFFIX.search(low)) or bool(_KEY_CAMEL.search(str(name).strip()))
 
 
-def id_reason(series: pd.Series) -> str | None:
-    """Why ``series`` looks like a row id (a short phrase), or None."""
-    present = series.dropna()
-    n = len(present)
+def id_reason(series: pd.Series, distinct: int | None = None) -> str | None:
+    """Why ``series`` looks like a row id (a short phrase), or None. ``distinct``: the number of
+    different non-missing values, when already known."""
+    n = int(series.notna().sum())
     if pd.api.types.is_bool_dtype(series) or n < COUNTER_MIN_ROWS:
         return None
     if is_numeric(series):
-        v = present.to_numpy(dtype=np.float64)
+        v = series.dropna().to_numpy(dtype=np.float64)
         if not np.all(np.isfinite(v)) or not np.all(v == np.round(v)):
             return None                                      # a measurement
         distinct = np.unique(v)
@@ -62,7 +62,7 @@ def id_reason(series: pd.Series) -> str | None:
         return None
     if n < ID_MIN_ROWS:
         return None
-    distinct = int(present.nunique())
+    distinct = int(series.nunique(dropna=True)) if distinct is None else distinct
     if distinct >= ID_SHARE * n:
         return f"{distinct} different values in {n} rows"
     return None
@@ -80,12 +80,14 @@ def screen_columns(frame: pd.DataFrame, features: Sequence[str], where: str, *,
     kept: list[str] = []
     for col in features:
         s = frame[col]
+        count = None
         if is_numeric(s) and not pd.api.types.is_bool_dtype(s):
             v = s.to_numpy(dtype=np.float64, na_value=np.nan)
             present = v[~np.isnan(v)]
             distinct = 0 if present.size == 0 else (1 if present.min() == present.max() else 2)
         else:
-            distinct = min(int(s.nunique(dropna=True)), 2)
+            count = int(s.nunique(dropna=True))
+            distinct = min(count, 2)
         if distinct == 0:
             notices.append(f"{where}: column {show(col)} is empty in every row; dropped it")
             continue
@@ -93,7 +95,7 @@ def screen_columns(frame: pd.DataFrame, features: Sequence[str], where: str, *,
             notices.append(f"{where}: column {show(col)} has the same value ({show(s.dropna().iloc[0])}) "
                            "in every row; dropped it")
             continue
-        reason = id_reason(s) if ids and col not in forced else None
+        reason = id_reason(s, count) if ids and col not in forced else None
         if reason:
             notices.append(f"{where}: column {show(col)} looks like a row id ({reason}); left it out "
                            f"of the inputs - to use it anyway, add it to keep = [...] in [data]")
