@@ -13,7 +13,7 @@ from typing import Sequence
 
 import numpy as np
 
-from labbench.data.prep import Preprocessor
+from labbench.data.prep import Preprocessor, category_levels
 from labbench.data.table import Table
 from labbench.data.target import DEFAULT_TARGET_SCALING, TargetScaler
 
@@ -64,10 +64,11 @@ def prepare_folds(table: Table, rows: Sequence[int] | np.ndarray,
         TargetScaler(target_scaling, table.target).fit(table.y, where)
     out: dict[str, list] = {k: [] for k in ("X_train", "y_train", "X_val", "y_val", "train_rows",
                                             "val_rows", "pre", "target")}
+    levels = category_levels(table.frame.iloc[rows], categorical)   # one column layout for all folds
     for train_pos, val_pos in folds:
         tr = rows[np.asarray(train_pos, dtype=np.int64)]
         va = rows[np.asarray(val_pos, dtype=np.int64)]
-        pre = Preprocessor(numeric, categorical, scaling).fit(table.frame.iloc[tr])
+        pre = Preprocessor(numeric, categorical, scaling, levels=levels).fit(table.frame.iloc[tr])
         out["X_train"].append(pre.transform(table.frame.iloc[tr]))
         out["X_val"].append(pre.transform(table.frame.iloc[va]))
         if regression:

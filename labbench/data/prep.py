@@ -8,6 +8,12 @@ the most frequent training value (ties: the smallest, as scikit-learn's ``Simple
 one 0/1 column per training category in sorted order; a category never seen in training encodes as
 all zeros.
 
+The folds of one search must share one column layout (the networks of a trial are trained
+stacked), so :func:`labbench.data.prepare_folds` passes ``levels``: every category of the search's
+training rows. A level that a fold's training rows lack still gets its column (all zeros in that
+fold's training rows) and is encoded as unseen - all zeros - when it turns up in the fold's
+validation rows; a level occurring in a single row thus never changes a fold's width.
+
 ``fit`` looks at the frame it is given and nothing else, and ``transform`` reads only the fitted
 state, so validation rows cannot leak into what is fitted.
 """
@@ -15,13 +21,13 @@ state, so validation rows cannot leak into what is fitted.
 from __future__ import annotations
 
 import warnings
-from typing import Any, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
 
 from labbench.errors import BundleError, DataError
-from labbench.data.reading import show
+from labbench.data.reading import names_text, show
 from labbench.data.roles import as_float, category_text
 
 SCALINGS = ("standard", "minmax")
@@ -30,12 +36,14 @@ SCALINGS = ("standard", "minmax")
 class Preprocessor:
     """Fold-safe preprocessing; output columns: all numeric, then each categorical's one-hot block."""
 
-    def __init__(self, numeric: Sequence[str] = (), categorical: Sequence[str] = (), scaling: str = "standard"):
+    def __init__(self, numeric: Sequence[str] = (), categorical: Sequence[str] = (), scaling: str = "standard",
+                 levels: Mapping[str, Sequence[str]] | None = None):
         if scaling not in SCALINGS:
             raise DataError(f"scaling = {show(scaling)}; use 'standard' (mean 0, sd 1) or 'minmax' (0 to 1)")
         self.numeric = [str(c) for c in numeric]
         self.categorical = [str(c) for c in categorical]
         self.scaling = scaling
+        self.levels = {str(c): [str(v) for v in lv] for c, lv in (levels or {}).items()}
 
     # ------------------------------------------------------------------ fitting
     def fit(self, frame: pd.DataFrame) -> "Preprocessor":
@@ -55,23 +63,28 @@ class Preprocessor:
             scale = filled.max(axis=0) - center
         scale = np.where(np.isfinite(scale) & (scale > 0), scale, 1.0)
 
-        categories, cat_impute = [], []
+        categories, cat_impute, unseen = [], [], []
         for col in self.categorical:
             text = category_text(frame[col])
             present = pd.Series(text[pd.notna(text)], dtype=object)
+            layout = self.levels.get(col, [])
             if present.empty:
-                categories.append([])
+                categories.append(sorted(set(layout)))
                 cat_impute.append("")
+                unseen.append(sorted(set(layout)))
                 continue
             counts = present.value_counts()
             top = counts[counts == counts.max()].index
             cat_impute.append(min(str(t) for t in top))
-            categories.append(sorted(str(c) for c in counts.index))
+            seen = {str(c) for c in counts.index}
+            categories.append(sorted(seen | set(layout)))
+            unseen.append(sorted(set(layout) - seen))
         self.impute_ = impute.astype(np.float64)
         self.center_ = np.asarray(center, dtype=np.float64)
         self.scale_ = np.asarray(scale, dtype=np.float64)
         self.categories_ = categories
         self.cat_impute_ = cat_impute
+        self.unseen_ = unseen
         self.feature_names_ = self._names()
         return self
 
@@ -90,12 +103,14 @@ class Preprocessor:
         out[:, :p] = (np.where(np.isnan(X), self.impute_, X) - self.center_) / self.scale_
         offset = p
         rows = np.arange(n)
-        for col, cats, fill in zip(self.categorical, self.categories_, self.cat_impute_):
+        for col, cats, fill, unseen in zip(self.categorical, self.categories_, self.cat_impute_, self.unseen_):
             if cats:
                 text = category_text(frame[col])
                 text[pd.isna(text)] = fill
                 codes = pd.Index(cats, dtype=object).get_indexer(text)
                 seen = codes >= 0
+                if unseen:      # levels with a column but not in the rows fitted on: all zeros
+                    seen &= ~np.isin(codes, pd.Index(cats, dtype=object).get_indexer(unseen))
                 out[rows[seen], offset + codes[seen]] = 1.0
             offset += len(cats)
         return out
@@ -114,6 +129,7 @@ class Preprocessor:
             "categorical": list(self.categorical),
             "categories": [list(c) for c in self.categories_],
             "cat_impute": list(self.cat_impute_),
+            **({"unseen": [list(u) for u in self.unseen_]} if any(self.unseen_) else {}),
         }
 
     @classmethod
@@ -141,6 +157,11 @@ class Preprocessor:
         pre.scale_ = np.asarray(state["scale"], dtype=np.float64).reshape(p)
         pre.categories_ = [[str(c) for c in cats] for cats in state["categories"]]
         pre.cat_impute_ = [str(v) for v in state["cat_impute"]]
+        unseen = state.get("unseen") or [[] for _ in range(q)]
+        if len(unseen) != q:
+            raise BundleError(f"preprocessing state: unseen has {len(unseen)} entries for {q} categorical "
+                              "columns; the model file is damaged")
+        pre.unseen_ = [[str(c) for c in u] for u in unseen]
         pre.feature_names_ = pre._names()
         return pre
 
@@ -154,8 +175,8 @@ class Preprocessor:
     def _check_columns(self, frame: pd.DataFrame) -> None:
         absent = [c for c in self.numeric + self.categorical if c not in frame.columns]
         if absent:
-            raise DataError(f"missing column(s) {', '.join(absent)}; the preprocessing needs "
-                            f"{', '.join(self.numeric + self.categorical)}")
+            raise DataError(f"missing column(s) {names_text(absent)}; the preprocessing needs "
+                            f"{names_text(self.numeric + self.categorical)}")
 
     def _numeric_block(self, frame: pd.DataFrame) -> np.ndarray:
         X = np.empty((len(frame), len(self.numeric)), dtype=np.float64)
@@ -172,3 +193,13 @@ class Preprocessor:
         fitted = "fitted" if hasattr(self, "feature_names_") else "not fitted"
         return (f"Preprocessor(numeric={len(self.numeric)}, categorical={len(self.categorical)}, "
                 f"scaling={self.scaling!r}, {fitted})")
+
+
+def category_levels(frame: pd.DataFrame, categorical: Sequence[str]) -> dict[str, list[str]]:
+    """Every category (as text) of each categorical column in ``frame``: the shared layout of a
+    search's fold preprocessors."""
+    out = {}
+    for col in categorical:
+        text = category_text(frame[col])
+        out[str(col)] = sorted({str(t) for t in text if t is not None})
+    return out

@@ -3,9 +3,13 @@
 What is handled: delimiter ``,`` ``;`` or tab (detected by counting, quote-aware), UTF-8 with or
 without a byte-order mark, UTF-16 with a byte-order mark, a latin-1 fallback (with a warning),
 quoted fields (delimiters and line breaks inside quotes), blank lines, decimal commas in
-semicolon files. What is refused, with a one-line :class:`DataError`: an empty file, a header
-row without data, a first row that looks like data instead of names, blank or duplicate column
-names, rows with a different number of fields than the header, binary files.
+semicolon files, headers and fields of any length. Cells holding one of ``MISSING_MARKERS``
+(empty, NA, N/A, n/a, #N/A, NaN, nan, NULL, null, None, ?, -, --, <NA>) are missing; a caller
+may add markers (``missing_markers``) and declare a thousands separator or a decimal comma
+(``thousands``, ``decimal``). What is refused, with a one-line :class:`DataError`: an empty
+file, a header row without data, a first row that looks like data instead of names, blank or
+duplicate column names, rows with a different number of fields than the header, binary files,
+damaged UTF-16, a carriage return inside a line outside quotes (mixed line ends).
 
 The user's file is only ever read (one ``read_bytes``), never written.
 """
@@ -27,6 +31,11 @@ log = logging.getLogger("labbench.data")
 
 DELIMITERS = (",", ";", "\t")
 _SAMPLE_RECORDS = 100          # records looked at to choose the delimiter
+_SAMPLE_CHARS = 65536          # ... within about this many characters (whole lines, header whole)
+MISSING_MARKERS = ("", "NA", "N/A", "n/a", "#N/A", "NaN", "nan", "NULL", "null", "None", "?",
+                   "-", "--", "<NA>")
+THOUSANDS = (",", ".", " ", "'", "_")
+DECIMALS = (".", ",")
 _UNNAMED = "\x00unnamed:"     # placeholder for a blank header cell (cannot occur in a text file)
 _DELIM_NAMES = {",": "','", ";": "';'", "\t": "tab"}
 
@@ -51,6 +60,17 @@ def show(value: object, width: int = 40) -> str:
     return text if len(text) <= width else text[: width - 3] + "..."
 
 
+def names_text(names, limit: int = 12, width: int = 30) -> str:
+    """Names for a one-line message, plain (no quotes), comma separated: line breaks escaped,
+    long names shortened, at most ``limit`` shown."""
+    names = [str(n) for n in names]
+    parts = []
+    for n in names[:limit]:
+        n = n.replace("\n", "\\n").replace("\r", "\\r")
+        parts.append(n if len(n) <= width else n[: width - 3] + "...")
+    return ", ".join(parts) + (f", ... ({len(names)} in all)" if len(names) > limit else "")
+
+
 def read_csv(path: str | Path) -> pd.DataFrame:
     """Read a CSV file as it is (no target handling); see the module docstring for what is checked.
 
@@ -60,8 +80,13 @@ def read_csv(path: str | Path) -> pd.DataFrame:
     return read_file(path).frame
 
 
-def read_file(path: str | Path) -> ReadResult:
+def read_file(path: str | Path, *, missing_markers: tuple[str, ...] | list[str] = (),
+              thousands: str | None = None, decimal: str | None = None) -> ReadResult:
+    """The frame and what was found reading it. ``missing_markers`` add to ``MISSING_MARKERS``;
+    ``thousands`` / ``decimal``: declared number format (``decimal=None``: a point, and decimal
+    commas in semicolon files are recognised on their own)."""
     name = str(path)
+    _check_format(name, thousands, decimal)
     try:
         raw = Path(path).read_bytes()
     except FileNotFoundError:
@@ -82,8 +107,11 @@ def read_file(path: str | Path) -> ReadResult:
     if "\r" in text and "\n" not in text:       # old Mac line ends: a lone CR per line
         text = text.replace("\r", "\n")
         scan_bytes = text.encode("utf-8")
-    delimiter = _choose_delimiter(text)
-    header = _header_fields(text, delimiter)
+    elif "\r" in text:
+        _check_carriage_returns(scan_bytes, name)
+    sample = _sample_text(text)
+    delimiter = _choose_delimiter(sample, len(sample) < len(text))
+    header = _header_fields(sample, delimiter, name)
     names = _check_header(header, name)
     fields, lines = _scan_records(scan_bytes, delimiter)
     if len(fields) <= 1:
@@ -92,10 +120,12 @@ def read_file(path: str | Path) -> ReadResult:
     if bad.size:
         _raise_ragged(text, delimiter, len(names), name, fields, lines, bad)
 
+    markers = list(dict.fromkeys((*MISSING_MARKERS, *missing_markers)))
     try:
         frame = pd.read_csv(
             io.StringIO(text), sep=delimiter, header=0, names=names, index_col=False,
             skipinitialspace=True, skip_blank_lines=True, low_memory=False, quotechar='"',
+            keep_default_na=False, na_values=markers, thousands=thousands, decimal=decimal or ".",
         )
     except (pd.errors.ParserError, csv.Error, ValueError) as exc:
         detail = str(exc).strip().splitlines()[-1] if str(exc).strip() else type(exc).__name__
@@ -104,17 +134,33 @@ def read_file(path: str | Path) -> ReadResult:
     if len(frame) != len(lines):  # a quirk the scan did not foresee: fall back to row numbers
         lines = np.arange(2, len(frame) + 2, dtype=np.int64)
     frame = _unnamed_columns(frame, name, warnings)
-    if delimiter == ";":
+    if delimiter == ";" and decimal is None:
         frame = _decimal_commas(frame)
     for text_ in warnings:
         log.warning(text_)
     return ReadResult(frame, raw, delimiter, encoding, lines, tuple(warnings))
 
 
+def _check_format(name: str, thousands: str | None, decimal: str | None) -> None:
+    if thousands is not None and thousands not in THOUSANDS:
+        raise DataError(f"{name}: thousands = {show(thousands)}; use one of "
+                        + ", ".join(show(t) for t in THOUSANDS) + " (or leave it out)")
+    if decimal is not None and decimal not in DECIMALS:
+        raise DataError(f"{name}: decimal = {show(decimal)}; use '.' or ','")
+    if thousands is not None and thousands == (decimal or "."):
+        raise DataError(f"{name}: thousands and decimal are both {show(thousands)}; "
+                        "they must differ (e.g. thousands = '.' with decimal = ',')")
+
+
 def _decode(raw: bytes, name: str, warnings: list[str]) -> tuple[str, str, bytes]:
     """Text, the encoding used, and ASCII-compatible bytes to scan for delimiters and quotes."""
     if raw.startswith((b"\xff\xfe", b"\xfe\xff")):
-        text = raw.decode("utf-16")
+        try:
+            text = raw.decode("utf-16")
+        except UnicodeDecodeError as exc:
+            what = "an odd number of bytes" if len(raw) % 2 else f"damaged bytes at byte {exc.start}"
+            raise DataError(f"{name}: starts as UTF-16 text but has {what} (a cut-off or damaged "
+                            "file?); save the file again, preferably as UTF-8") from None
         return text, "utf-16", text.encode("utf-8")
     if raw.startswith(b"\xef\xbb\xbf"):
         encoding, body = "utf-8-sig", raw[3:]
@@ -131,8 +177,34 @@ def _decode(raw: bytes, name: str, warnings: list[str]) -> tuple[str, str, bytes
         return body.decode("latin-1"), "latin-1", body
 
 
-def _sample_records(text: str, delimiter: str) -> list[list[str]]:
-    reader = csv.reader(io.StringIO(text[:65536]), delimiter=delimiter, skipinitialspace=True)
+def _check_carriage_returns(data: bytes, name: str) -> None:
+    """A carriage return outside quotes and not before a line feed: mixed line ends or a stray
+    character, which the csv module and pandas would each split differently."""
+    a = np.frombuffer(data, dtype=np.uint8)
+    cr = np.flatnonzero(a == 13)
+    lone = cr[(cr + 1 >= a.size) | (a[np.minimum(cr + 1, a.size - 1)] != 10)]
+    lone = lone[lone != a.size - 1]                      # a CR ending the file is harmless
+    if lone.size:
+        quotes = np.flatnonzero(a == 34)
+        lone = lone[(np.searchsorted(quotes, lone) & 1) == 0]
+    if lone.size:
+        line = int(np.count_nonzero(a[: int(lone[0])] == 10)) + 1
+        raise DataError(f"{name}: line {line} holds a carriage return (\\r) inside the line - mixed "
+                        "line ends or a stray character; save the file again with one kind of "
+                        "line end, or remove that character")
+
+
+def _sample_text(text: str) -> str:
+    """The start of the file for choosing the delimiter: the whole header line and whole lines
+    up to about ``_SAMPLE_CHARS`` characters."""
+    header_end = text.find("\n")
+    limit = max(_SAMPLE_CHARS, header_end + 1)
+    end = text.find("\n", limit)
+    return text if end < 0 else text[: end + 1]
+
+
+def _sample_records(text: str, delimiter: str, cut: bool) -> list[list[str]]:
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter, skipinitialspace=True)
     out: list[list[str]] = []
     try:
         for row in reader:
@@ -142,12 +214,12 @@ def _sample_records(text: str, delimiter: str) -> list[list[str]]:
                 break
     except csv.Error:
         pass
-    if len(text) > 65536 and len(out) > 1:
+    if cut and len(out) > 1:
         out.pop()  # the sample may cut the last record short
     return out
 
 
-def _choose_delimiter(text: str) -> str:
+def _choose_delimiter(text: str, cut: bool = False) -> str:
     """The candidate that splits the header into most fields, with the same count in most rows.
 
     Counting on parsed records (quotes respected); a file with one column has no delimiter and
@@ -155,7 +227,7 @@ def _choose_delimiter(text: str) -> str:
     """
     best, best_key = ",", (-1.0, 0, 0)
     for rank, delim in enumerate(DELIMITERS):
-        records = _sample_records(text, delim)
+        records = _sample_records(text, delim, cut)
         if not records or len(records[0]) < 2:
             continue
         width = len(records[0])
@@ -166,9 +238,13 @@ def _choose_delimiter(text: str) -> str:
     return best
 
 
-def _header_fields(text: str, delimiter: str) -> list[str]:
-    first = next((r for r in csv.reader(io.StringIO(text[:65536]), delimiter=delimiter,
-                                        skipinitialspace=True) if r), [])
+def _header_fields(text: str, delimiter: str, name: str) -> list[str]:
+    reader = csv.reader(io.StringIO(text), delimiter=delimiter, skipinitialspace=True)
+    try:
+        first = next((r for r in reader if r), [])
+    except csv.Error as exc:
+        raise DataError(f"{name}: the header row (line {reader.line_num}) cannot be parsed ({exc}); "
+                        "check its quotes and that it holds short column names") from None
     return [f.strip() for f in first]
 
 

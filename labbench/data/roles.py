@@ -3,8 +3,19 @@
 Rules (common practice): a column pandas reads as numbers (or True/False) is numeric, even an
 integer column with few distinct values (a count, a rating) - the user can override it to
 categorical; a text column is categorical. A target of text or True/False is a class label
-(2 distinct: binary, more: multiclass); a numeric target with 2 distinct values is binary, with at
-most ``MAX_CLASSES`` distinct whole numbers multiclass, otherwise regression.
+(2 distinct: binary, more: multiclass); a numeric target with 2 distinct values is binary. A
+numeric target with 3 or more distinct values is multiclass only when it reads like a set of codes:
+
+* every value is a whole number, and there are at most ``MAX_CLASSES`` (20) of them;
+* the values repeat: at most half as many distinct values as rows (``CODES_PER_ROW``; each class
+  has two rows or more on average - Longley's employment total, 16 values in 16 rows, is a
+  quantity);
+* the values are small (all within -20..20) or compact (the range they span holds at most twice
+  as many whole numbers as there are distinct values: a 1-5 rating, 0-9 digit codes; a
+  body-weight column of 18 kilogram values spread over 52..97 is a quantity).
+
+Anything else numeric is regression. ``task = "regression"`` (or "multiclass") in the spec's
+[data] section overrides the rule; every error about classes says so.
 """
 
 from __future__ import annotations
@@ -15,11 +26,14 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import DataError
-from labbench.data.reading import show
+from labbench.data.reading import names_text, show
 
 KINDS = ("numeric", "categorical")
 TASKS = ("regression", "binary", "multiclass")
 MAX_CLASSES = 20   # whole-number targets with more distinct values are treated as regression
+CODES_PER_ROW = 0.5   # more distinct values than this share of the rows: a quantity
+SMALL_CODE = 20       # whole numbers within -20..20 are small enough to be codes in any pattern
+FORCE_REGRESSION = 'if the target is a quantity, set task = "regression" in the spec\'s [data] section'
 
 
 def is_numeric(series: pd.Series) -> bool:
@@ -44,9 +58,40 @@ def infer_task(series: pd.Series) -> str:
     if not is_numeric(series) or pd.api.types.is_bool_dtype(series):
         return "multiclass"
     v = values.to_numpy(dtype=np.float64)
-    if distinct <= MAX_CLASSES and np.all(v == np.round(v)):
-        return "multiclass"
-    return "regression"
+    if distinct > MAX_CLASSES or not np.all(v == np.round(v)):
+        return "regression"
+    if distinct > CODES_PER_ROW * len(v):
+        return "regression"
+    small = bool(np.abs(v).max() <= SMALL_CODE)
+    compact = (v.max() - v.min() + 1) <= 2 * distinct
+    return "multiclass" if small or compact else "regression"
+
+
+MOSTLY_NUMERIC = 0.9   # a text column whose non-missing cells are at least this share numbers
+
+
+def stray_cells(series: pd.Series, *, always: bool = False) -> np.ndarray | None:
+    """Positions of the cells that are not numbers in a mostly numeric text column.
+
+    "Mostly numeric" (common practice): at least ``MOSTLY_NUMERIC`` of the non-missing cells read
+    as numbers (surrounding spaces ignored). None when the column is numeric already, is not
+    mostly numeric (a label column; unless ``always``), or has no stray cell.
+    """
+    if is_numeric(series):
+        return None
+    present = series.notna().to_numpy()
+    if not present.any():
+        return None
+    codes, uniques = pd.factorize(series, use_na_sentinel=True)      # judge each distinct text once
+    stripped = pd.Series([u.strip() if isinstance(u, str) else u for u in uniques], dtype=object)
+    is_number = pd.to_numeric(stripped, errors="coerce").notna().to_numpy()
+    numbers = np.append(is_number, False)[codes]                       # code -1 (missing) -> False
+    bad = present & ~numbers
+    if not bad.any():
+        return None
+    if not always and numbers.sum() < MOSTLY_NUMERIC * present.sum():
+        return None
+    return np.flatnonzero(bad)
 
 
 _FIX_FEATURE = "fix that value, leave it empty for missing, or treat the column as categorical"
@@ -124,7 +169,7 @@ def check_kinds(kinds: Mapping[str, str] | None, columns: list[str], target: str
                             "(regression, binary, multiclass) instead of its kind")
         if col not in columns:
             raise DataError(f"{where}: kinds: no column {show(col)}; the columns are "
-                            f"{', '.join(columns)}")
+                            f"{names_text(columns)}")
         if kind not in KINDS:
             raise DataError(f"{where}: kinds: {show(col)} = {show(kind)}; use 'numeric' or 'categorical'")
         out[col] = kind

@@ -21,6 +21,7 @@ import numpy as np
 
 from labbench.errors import DataError
 from labbench.data.reading import show
+from labbench.data.roles import FORCE_REGRESSION
 
 _MAX_SEED = 2**32 - 1
 
@@ -163,4 +164,4 @@ def check_folds(table, folds: int, holdout: float) -> None:
         fix = f"use at most {most} folds, " if most >= 2 else ""
         raise DataError(f"{where}: class {show(table.classes[c])} of the target {show(table.target)} has "
                         f"{most} training row(s){kept}, fewer than the {folds} folds; {fix}"
-                        "add rows of that class, or remove it")
+                        f"add rows of that class, or remove it; or, {FORCE_REGRESSION}")

@@ -1,8 +1,9 @@
 """A validated table: the feature columns, the encoded target, column roles, and what was changed.
 
 ``load_table`` reads the file (:mod:`labbench.data.reading`), assigns roles (target, ignored,
-features), drops what cannot be used (rows without a target, constant columns, rows with missing
-values under ``missing="drop"``) with a warning for each, and refuses with a one-line
+features), drops what cannot be used (rows without a target, constant and id-like columns - see
+:mod:`labbench.data.screen` -, rows with missing values under ``missing="drop"``) with a warning
+for each, stops on a mostly numeric column with a few stray text cells (naming them), and refuses with a one-line
 :class:`DataError` what cannot be fixed silently. Nothing is fitted here: imputation and scaling
 are fitted per fold later (:mod:`labbench.data.prep`).
 """
@@ -11,6 +12,7 @@ from __future__ import annotations
 
 import hashlib
 import logging
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Mapping, Sequence
@@ -19,9 +21,10 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import DataError
-from labbench.data.reading import read_file, show
-from labbench.data.roles import (TASKS, as_float, check_kinds, class_labels,
-                                 infer_kinds, infer_task, is_numeric)
+from labbench.data.reading import names_text, read_file, show
+from labbench.data.roles import (FORCE_REGRESSION, TASKS, as_float, check_kinds, class_labels,
+                                 infer_kinds, infer_task, is_numeric, stray_cells)
+from labbench.data.screen import screen_columns
 
 log = logging.getLogger("labbench.data")
 
@@ -63,31 +66,42 @@ def _lines_text(lines: np.ndarray, limit: int = 5) -> str:
 
 def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
                kinds: Mapping[str, str] | None = None, task: str | None = None,
-               missing: str = "impute") -> Table:
-    """Read ``path`` and make a :class:`Table` with ``target`` as the column to predict."""
+               missing: str = "impute", missing_markers: Sequence[str] = (),
+               thousands: str | None = None, decimal: str | None = None,
+               keep: Sequence[str] = ()) -> Table:
+    """Read ``path`` and make a :class:`Table` with ``target`` as the column to predict.
+
+    ``missing_markers`` add to the usual markers of a missing cell (see
+    :data:`labbench.data.reading.MISSING_MARKERS`); ``thousands`` / ``decimal`` declare the number
+    format; ``keep`` lists columns to use as inputs even when they look like row ids (so does
+    giving a column's kind in ``kinds``).
+    """
     where = str(path)
     if missing not in MISSING_POLICIES:
         raise DataError(f"{where}: missing = {show(missing)}; use 'impute' (fill per fold) or 'drop' (drop rows)")
     if task is not None and task not in TASKS:
         raise DataError(f"{where}: task = {show(task)}; use one of {', '.join(TASKS)} (or leave it out)")
-    if isinstance(ignore, str):
-        ignore = (ignore,)
-    read = read_file(path)
+    ignore = (ignore,) if isinstance(ignore, str) else tuple(ignore)
+    keep = (keep,) if isinstance(keep, str) else tuple(keep)
+    markers = (missing_markers,) if isinstance(missing_markers, str) else tuple(missing_markers)
+    read = read_file(path, missing_markers=markers, thousands=thousands, decimal=decimal)
     frame, lines, notes = read.frame, read.lines, list(read.warnings)
     columns = [str(c) for c in frame.columns]
 
     if target not in columns:
-        raise DataError(f"{where}: no column {show(target)} for the target; the columns are {', '.join(columns)}")
-    for col in ignore:
-        if col not in columns:
-            raise DataError(f"{where}: ignore: no column {show(col)}; the columns are {', '.join(columns)}")
-        if col == target:
-            raise DataError(f"{where}: ignore: {show(col)} is the target; remove it from the ignored columns")
+        raise DataError(f"{where}: no column {show(target)} for the target; the columns are {names_text(columns)}")
+    for key, listed in (("ignore", ignore), ("keep", keep)):
+        for col in listed:
+            if col not in columns:
+                raise DataError(f"{where}: {key}: no column {show(col)}; the columns are {names_text(columns)}")
+            if col == target:
+                raise DataError(f"{where}: {key}: {show(col)} is the target; remove it from {key}")
     overrides = check_kinds(kinds, columns, target, where)
     ignored = set(ignore)
-    for col in overrides:
-        if col in ignored:
-            raise DataError(f"{where}: kinds: {show(col)} is ignored; remove it from kinds or from ignore")
+    for key, listed in (("kinds", overrides), ("keep", keep)):
+        for col in listed:
+            if col in ignored:
+                raise DataError(f"{where}: {key}: {show(col)} is ignored; remove it from {key} or from ignore")
 
     # rows without a target are of no use: drop them (with a warning)
     y_raw = frame[target]
@@ -95,7 +109,7 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     if no_target.all():
         raise DataError(f"{where}: the target column {show(target)} is empty in every row; "
                         "choose another target or fill it in")
-    keep = ~no_target
+    rows = ~no_target
     if no_target.any():
         notes.append(f"{where}: dropped {int(no_target.sum())} row(s) with no value in the target "
                      f"{show(target)} ({_lines_text(lines[no_target])})")
@@ -108,32 +122,40 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     kinds_.update(overrides)
     feats = frame[features].copy()
     for col in features:
+        if col not in overrides or (kinds_[col] == "numeric" and not is_numeric(feats[col])):
+            # a mostly numeric text column (or one declared numeric) with stray text cells
+            bad = stray_cells(feats[col], always=col in overrides)
+            if bad is not None:
+                _stray_error(where, col, feats[col], bad, lines)
         if kinds_[col] == "numeric" and not is_numeric(feats[col]):
             feats[col] = as_float(feats[col], col, where, lines)
         if kinds_[col] == "numeric":
             _check_finite(feats[col], col, where, lines)
 
-    # constant columns carry nothing to learn from (checked on the rows with a target, before
-    # missing = "drop" so an empty column does not take every row with it, and again after)
-    features = _drop_constant(feats.loc[keep], features, where, notes)
+    # constant, empty and id-like columns carry nothing to learn from (judged on the rows with a
+    # target, before missing = "drop" so an empty column does not take every row with it; the
+    # constant check again after)
+    features, dropped = screen_columns(feats.loc[rows], features, where, forced=set(keep) | set(overrides))
+    notes.extend(dropped)
     if missing == "drop":
-        incomplete = feats[features].isna().any(axis=1).to_numpy() & keep
+        incomplete = feats[features].isna().any(axis=1).to_numpy() & rows
         if incomplete.any():
             notes.append(f"{where}: dropped {int(incomplete.sum())} row(s) with missing values "
                          f"({_lines_text(lines[incomplete])}) as missing = 'drop' asks")
-            keep &= ~incomplete
-        if not keep.any():
+            rows &= ~incomplete
+        if not rows.any():
             raise DataError(f"{where}: no row is complete, so missing = 'drop' leaves nothing; "
                             "use missing = 'impute' or ignore the emptiest columns")
-        features = _drop_constant(feats.loc[keep], features, where, notes)
+        features, dropped = screen_columns(feats.loc[rows], features, where, ids=False)
+        notes.extend(dropped)
 
-    feats = feats.loc[keep, features].reset_index(drop=True)
-    y_kept = y_raw.loc[keep].reset_index(drop=True)
-    lines_kept = lines[keep]
+    feats = feats.loc[rows, features].reset_index(drop=True)
+    y_kept = y_raw.loc[rows].reset_index(drop=True)
+    lines_kept = lines[rows]
     categorical = [c for c in features if kinds_[c] == "categorical"]
     distinct = feats[categorical].nunique(dropna=True)
     for col in categorical:
-        if distinct[col] > 20 and distinct[col] > 0.5 * len(feats):
+        if distinct[col] > 20 and distinct[col] > 0.5 * len(feats) and col not in keep:
             notes.append(f"{where}: column {show(col)} has {int(distinct[col])} different values in "
                          f"{len(feats)} rows (an id or free text?); consider ignoring it")
     feats = feats[features]
@@ -142,7 +164,7 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     task_, classes, y = _target(y_kept, target, task, where, lines_kept)
 
     id_column = next(iter(ignore), None)
-    ids = frame[id_column].loc[keep].to_numpy() if id_column is not None else None
+    ids = frame[id_column].loc[rows].to_numpy() if id_column is not None else None
     for note in notes[len(read.warnings):]:
         log.warning(note)
     return Table(path=where, frame=feats, target=target, features=tuple(features), kinds=kinds_final,
@@ -150,26 +172,35 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
                  sha256=hashlib.sha256(read.raw).hexdigest(), warnings=tuple(notes))
 
 
-def _drop_constant(feats: pd.DataFrame, features: list[str], where: str, notes: list[str]) -> list[str]:
-    distinct = {}
-    for col in features:
-        s = feats[col]
-        if is_numeric(s) and not pd.api.types.is_bool_dtype(s):
-            v = s.to_numpy(dtype=np.float64, na_value=np.nan)
-            present = v[~np.isnan(v)]
-            distinct[col] = 0 if present.size == 0 else (1 if present.min() == present.max() else 2)
-        else:
-            distinct[col] = min(int(s.nunique(dropna=True)), 2)
-    for col in features:
-        if distinct[col] == 0:
-            notes.append(f"{where}: column {show(col)} is empty in every row; dropped it")
-        elif distinct[col] == 1:
-            value = feats[col].dropna().iloc[0]
-            notes.append(f"{where}: column {show(col)} has the same value ({show(value)}) in every row; dropped it")
-    kept = [c for c in features if distinct[c] > 1]
-    if not kept:
-        raise DataError(f"{where}: every feature column is constant or empty; the table has nothing to learn from")
-    return kept
+_THOUSANDS_COMMA = re.compile(r"[+-]?\d{1,3}(,\d{3})+(\.\d+)?")
+_THOUSANDS_POINT = re.compile(r"[+-]?\d{1,3}(\.\d{3})+(,\d+)?")
+_DECIMAL_COMMA = re.compile(r"[+-]?\d*,\d+")
+
+
+def _stray_error(where: str, col: str, series: pd.Series, bad: np.ndarray, lines: np.ndarray) -> None:
+    """One line: the column, the lines and values that are not numbers, and the ways out."""
+    values = [str(series.iloc[int(p)]).strip() for p in bad]
+    shown = ", ".join(f"line {int(lines[int(p)])} {show(v, 20)}" for p, v in zip(bad[:3], values[:3]))
+    more = f", ... ({len(bad)} in all)" if len(bad) > 3 else ""
+    if any(_THOUSANDS_COMMA.fullmatch(v) for v in values):
+        fmt = ', declare the number format (thousands = ",")'
+    elif any(_THOUSANDS_POINT.fullmatch(v) for v in values):
+        fmt = ', declare the number format (thousands = "." and decimal = ",")'
+    elif any(_DECIMAL_COMMA.fullmatch(v) for v in values):
+        fmt = ', declare the number format (decimal = ",")'
+    else:
+        fmt = ""
+    words = list(dict.fromkeys(v for v in values if v and not any(ch.isdigit() for ch in v)))[:2]
+    markers = ", ".join(show_marker(w) for w in words) if words else '"unknown"'
+    raise DataError(f"{where}: column {show(col)} holds numbers but {len(bad)} cell(s) do not: {shown}{more}; "
+                    f"correct them, declare them missing in [data] (missing_markers = [{markers}]){fmt}, "
+                    'or give the column the kind "categorical" in kinds')
+
+
+def show_marker(text: str) -> str:
+    """A TOML string for a message: double quotes, shortened, on one line."""
+    text = text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n").replace("\r", "\\r")
+    return f'"{text[:20]}"'
 
 
 def _check_finite(series: pd.Series, col: str, where: str, lines: np.ndarray) -> None:
@@ -201,12 +232,13 @@ def _target(y: pd.Series, target: str, task: str | None, where: str, lines: np.n
     classes, codes = class_labels(y)
     if task == "binary" and len(classes) != 2:
         raise DataError(f"{where}: task = 'binary' needs 2 classes but the target {show(target)} has "
-                        f"{len(classes)} ({_first(classes)}); use task = 'multiclass'")
+                        f"{len(classes)} ({_first(classes)}); use task = 'multiclass'"
+                        + (f", or, {FORCE_REGRESSION}" if is_numeric(y) else ""))
     return task, classes, codes
 
 
 def _first(classes: tuple[str, ...], limit: int = 6) -> str:
-    return ", ".join(classes[:limit]) + (", ..." if len(classes) > limit else "")
+    return names_text(classes, limit)
 
 
 def _mostly_numbers(y: pd.Series) -> bool:

@@ -84,6 +84,7 @@ class DataPage(QWidget):
         self.inferred_kinds: dict[str, str] = {}
         self.inferred_task: str | None = None
         self.task_error = ""
+        self.read_warnings: list[str] = []
         self._explicit_kinds: set[str] = set()
         self._loading = False
 
@@ -147,6 +148,11 @@ class DataPage(QWidget):
         self.columns.setToolTip("Untick a column to leave it out (an id, a leak of the answer); "
                                 "change a kind when numbers are really labels")
         cols_layout.addWidget(self.columns)
+        self.column_notes = QLabel("")      # the core's notices: columns left out, reading warnings
+        self.column_notes.setWordWrap(True)
+        self.column_notes.setObjectName("columnNotes")
+        self.column_notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        cols_layout.addWidget(self.column_notes)
         side_layout.addWidget(cols, 1)
         split.addWidget(side)
         split.setStretchFactor(0, 3)
@@ -161,9 +167,12 @@ class DataPage(QWidget):
     # ------------------------------------------------------------------ loading
     def load(self, path: str) -> None:
         """Read the file (raises the core's DataError) and fill the page."""
-        from labbench.data import infer_kinds, read_csv
+        from labbench.data import infer_kinds
+        from labbench.data.reading import read_file
 
-        frame = read_csv(path)
+        read = read_file(path)
+        frame = read.frame
+        self.read_warnings = [w.replace(str(path), Path(path).name) for w in read.warnings]
         kinds = infer_kinds(frame)
         self._loading = True
         try:
@@ -221,6 +230,22 @@ class DataPage(QWidget):
             kind.setEnabled(not is_target)
             roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
         self.preview_model.set_roles(roles)
+        self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
+
+    def _show_column_notes(self, target: str, features: list[str]) -> None:
+        """The notices ``labbench run`` prints for these columns (one shared rule in the core)."""
+        from labbench.data import screen_columns
+        from labbench.errors import LabbenchError
+
+        notes = list(self.read_warnings)
+        if self.frame is not None and features and target in self.frame.columns:
+            rows = self.frame[self.frame[target].notna()]
+            try:
+                notes += screen_columns(rows, features, Path(self.path or "").name,
+                                        forced=self._explicit_kinds)[1]
+            except LabbenchError as exc:
+                notes.append(str(exc))
+        self.column_notes.setText("\n".join(notes))
 
     # ------------------------------------------------------------------ choices
     def _target_changed(self, target: str) -> None:

@@ -61,7 +61,8 @@ def prepare(spec: Spec) -> Prepared:
 
     d, e = spec.data, spec.evaluation
     table = load_table(d.path, d.target, ignore=d.ignore, kinds=dict(d.kinds) or None,
-                       task=d.task, missing=d.missing)
+                       task=d.task, missing=d.missing, missing_markers=d.missing_markers,
+                       thousands=d.thousands, decimal=d.decimal, keep=d.keep)
     task = table.task
     metric = e.metric or default_metric(task)
     if e.metric:

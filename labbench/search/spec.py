@@ -1,7 +1,8 @@
 """The spec file: one human-editable TOML file holds a whole experiment.
 
 ```toml
-[data]          path, target, ignore, task, kinds, missing, scaling, target_scaling
+[data]          path, target, ignore, task, kinds, missing, scaling, target_scaling,
+                missing_markers, thousands, decimal, keep
 [evaluation]    folds, repeats, holdout, seed, metric, seed_spread
 [search]        trials, minutes, sampler, pruner, workers, storage, name
 [space]         one entry per network setting (see labbench.search.space)
@@ -32,6 +33,8 @@ KINDS = ("numeric", "categorical")
 MISSING = ("impute", "drop")
 SCALING = ("standard", "minmax")
 TARGET_SCALING = ("standard", "log", "none")    # labbench.data.TARGET_SCALINGS
+THOUSANDS = (",", ".", " ", "'", "_")     # as labbench.data.reading.THOUSANDS
+DECIMALS = (".", ",")
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
 PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
@@ -49,6 +52,10 @@ class DataSpec:
     missing: str = "impute"
     scaling: str = "standard"
     target_scaling: str = "standard"           # regression only: "standard" | "log" | "none"
+    missing_markers: tuple[str, ...] = ()       # cells read as missing besides the usual markers
+    thousands: str | None = None                # declared thousands separator
+    decimal: str | None = None                  # declared decimal mark; None: "." (a semicolon file's "," found)
+    keep: tuple[str, ...] = ()                  # columns used even when they look like row ids
 
 
 @dataclass(frozen=True)
@@ -102,6 +109,14 @@ class Spec:
         data["missing"] = d.missing
         data["scaling"] = d.scaling
         data["target_scaling"] = d.target_scaling
+        if d.missing_markers:
+            data["missing_markers"] = list(d.missing_markers)
+        if d.thousands is not None:
+            data["thousands"] = d.thousands
+        if d.decimal is not None:
+            data["decimal"] = d.decimal
+        if d.keep:
+            data["keep"] = list(d.keep)
         evaluation: dict[str, Any] = {"folds": e.folds, "repeats": e.repeats, "holdout": e.holdout,
                                       "seed": e.seed}
         if e.metric:
@@ -273,7 +288,9 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         raise spec_error(source, "data", "missing section; a spec needs [data] with path and target")
 
     ds = _Section(d["data"], "data", ("path", "target", "ignore", "task", "kinds", "missing",
-                                      "scaling", "target_scaling"), source)
+                                      "scaling", "target_scaling", "missing_markers", "thousands",
+                                      "decimal", "keep"),
+                  source)
     path = ds.text("path", required=True)
     kinds = ds.d.get("kinds", {})
     if not isinstance(kinds, Mapping):
@@ -292,9 +309,15 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         scaling=ds.text("scaling", "standard", choices=SCALING),
         # a spec written before this key existed gets the default (the target standardised)
         target_scaling=ds.text("target_scaling", "standard", choices=TARGET_SCALING),
+        **_number_format(ds),
     )
     if data.target in data.ignore:
         raise ds.fail("ignore", f"lists the target {show(data.target)}; remove it from ignore")
+    if data.target in data.keep:
+        raise ds.fail("keep", f"lists the target {show(data.target)}; remove it from keep")
+    if set(data.keep) & set(data.ignore):
+        raise ds.fail("keep", f"{show(sorted(set(data.keep) & set(data.ignore))[0])} is also in ignore; "
+                      "remove it from one of them")
 
     es = _Section(d.get("evaluation", {}), "evaluation",
                   ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
@@ -341,6 +364,24 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
     space = SearchSpace.from_dict(space_raw, source)
     _check_sampler_space(search, space, source)
     return Spec(data, evaluation, search, space, source)
+
+
+def _number_format(ds: _Section) -> dict[str, Any]:
+    """[data] missing_markers, thousands, decimal, keep (see labbench.data.reading)."""
+    markers = ds.d.get("missing_markers", [])
+    if not isinstance(markers, list) or not all(isinstance(m, str) for m in markers):
+        raise ds.fail("missing_markers", f"{show(markers)} is not allowed; write a list of texts that "
+                      'mean "missing", e.g. ["not measured", "unknown"]')
+    thousands = ds.d.get("thousands")
+    if thousands is not None and thousands not in THOUSANDS:
+        raise ds.fail("thousands", f"{show(thousands)} is not allowed; use one of "
+                      + ", ".join(f'"{t}"' for t in THOUSANDS) + " (or leave it out)")
+    decimal = ds.text("decimal", None, choices=DECIMALS)
+    if thousands is not None and thousands == (decimal or "."):
+        raise ds.fail("thousands", f"{show(thousands)} is also the decimal mark; they must differ "
+                      '(e.g. thousands = "." with decimal = ",")')
+    return {"missing_markers": tuple(dict.fromkeys(markers)), "thousands": thousands,
+            "decimal": decimal, "keep": ds.texts("keep")}
 
 
 def _check_sampler_space(search: SearchSettings, space: SearchSpace, source: str | None) -> None:

@@ -164,6 +164,26 @@ def test_validation_rows_cannot_leak_into_what_is_fitted(seed, shift, scaling, f
     moved.loc[val, "weight"] = np.nan
     moved.loc[val, "variety"] = "Unheard-of"
     after = prepare_folds(make_table(moved, y), rows, folds, scaling)
-    assert after.preprocessors[fold].to_state() == before.preprocessors[fold].to_state()
-    np.testing.assert_array_equal(after.X_train[fold], before.X_train[fold])
-    assert not np.array_equal(after.X_val[fold], before.X_val[fold])
+    # the folds share one column layout (every level of the search's rows), so the new level gets
+    # a column; what is fitted - and every value the training rows get - stays the same, and the
+    # new column is all zeros in the training rows (the level is unseen there)
+    a, b = after.preprocessors[fold].to_state(), before.preprocessors[fold].to_state()
+    seen = lambda st_: [sorted(set(c) - set(u)) for c, u in
+                        zip(st_["categories"], st_.get("unseen") or [[]] * len(st_["categories"]))]
+    assert seen(a) == seen(b)
+    for key in ("impute", "center", "scale", "cat_impute", "numeric", "categorical"):
+        assert a[key] == b[key], key
+    names_a = after.preprocessors[fold].feature_names_
+    names_b = before.preprocessors[fold].feature_names_
+    common = [n for n in names_b if n in names_a]
+    in_a, in_b = [names_a.index(n) for n in common], [names_b.index(n) for n in common]
+    np.testing.assert_array_equal(after.X_train[fold][:, in_a], before.X_train[fold][:, in_b])
+    # a level only the validation rows had (before or after the change) is all zeros in training
+    # and in validation (unseen)
+    extra_a = [i for i, n in enumerate(names_a) if n not in names_b]
+    extra_b = [i for i, n in enumerate(names_b) if n not in names_a]
+    assert "variety=Unheard-of" in [names_a[i] for i in extra_a]
+    for fa, i in [(after, extra_a), (before, extra_b)]:
+        np.testing.assert_array_equal(fa.X_train[fold][:, i], 0.0)
+        np.testing.assert_array_equal(fa.X_val[fold][:, i], 0.0)
+    assert not np.array_equal(after.X_val[fold][:, in_a], before.X_val[fold][:, in_b])

@@ -95,13 +95,16 @@ def test_regression_target_and_integer_classes(tmp_path):
     assert load_table(path, "stars", task="regression").task == "regression"
 
 
-def test_id_like_text_column_gets_a_warning(tmp_path):
+def test_id_like_text_column_is_left_out_and_free_text_gets_a_warning(tmp_path):
     n = 50
     path = tmp_path / "ids.csv"
     pd.DataFrame({"code": [f"k{i}" for i in range(n)], "x": np.arange(n) % 7,
+                  "words": [f"w{i % 30}" for i in range(n)],
                   "y": np.arange(n) % 2}).to_csv(path, index=False)
     table = load_table(path, "y")
-    assert any("'code'" in w and "consider ignoring it" in w for w in table.warnings)
+    assert table.features == ("x", "words")
+    assert any("'code'" in w and "left it out" in w for w in table.warnings)
+    assert any("'words'" in w and "consider ignoring it" in w for w in table.warnings)
 
 
 @pytest.mark.parametrize("values", [
@@ -134,7 +137,7 @@ def test_text_target_with_a_typo_among_numbers_is_reported(tmp_path):
     values = [f"{100 + i * 1.5:.1f}" for i in range(40)]
     values[17] = "1O7.5"
     path = tmp_path / "t.csv"
-    pd.DataFrame({"x": range(40), "sales": values}).to_csv(path, index=False)
+    pd.DataFrame({"x": [(i * 7) % 13 for i in range(40)], "sales": values}).to_csv(path, index=False)
     with pytest.raises(DataError, match=r"'sales'.*line 19.*'1O7.5'"):
         load_table(path, "sales")
 
