@@ -63,7 +63,7 @@ def test_search_path_with_a_single_row_level_markers_and_an_id_column(tmp_path):
     spec = tmp_path / "s.toml"
     spec.write_text(BASE + 'missing_markers = ["not measured"]\n'
                     "[evaluation]\nfolds = 3\nseed_spread = 0\n"
-                    '[search]\ntrials = 2\npruner = "none"\n[space]\nepochs = 3\n', encoding="utf-8")
+                    '[search]\ntrials = 2\npruner = "none"\n[space]\nepochs = { choices = [3, 4] }\n', encoding="utf-8")
     done = subprocess.run([sys.executable, "-m", "labbench", "run", str(spec)], capture_output=True,
                           text=True, timeout=300, cwd=tmp_path)
     out = done.stdout + done.stderr

@@ -74,7 +74,11 @@ def test_defaults_when_sections_are_left_out(tmp_path):
     spec = loads_spec('[data]\npath = "a.csv"\ntarget = "y"\n', tmp_path, "x.toml")
     assert spec.search.trials == DEFAULT_TRIALS and spec.search.minutes is None
     assert spec.evaluation.folds == 5 and spec.search.workers == 1
-    assert not spec.space.searched_params()          # every setting fixed at its default
+    # no [space] section: the default searched space (tests/search/test_defaults_and_pruning.py)
+    assert spec.space.searched_params()
+    # a [space] section leaves every setting it does not name fixed at its default
+    spec = loads_spec('[data]\npath = "a.csv"\ntarget = "y"\n[space]\n', tmp_path, "x.toml")
+    assert not spec.space.searched_params()
     # a time budget alone leaves the trial count open
     spec = loads_spec('[data]\npath = "a.csv"\ntarget = "y"\n[search]\nminutes = 2\n', tmp_path)
     assert spec.search.trials is None and spec.search.minutes == 2.0
