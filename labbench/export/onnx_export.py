@@ -1,7 +1,8 @@
 """ONNX export of a trained model: preprocessing and network in one graph of standard operators.
 
 Inputs, one per input column of the model, named after the column (letters, digits and ``_``;
-other characters become ``_``, a leading digit gets ``c_`` in front), each of shape [N, 1]:
+other characters become ``_``, a leading digit gets ``c_`` in front, a name taken by an output or
+an earlier column gets ``_2``, ``_3``, ...), each of shape [N, 1]:
   * numeric column:     tensor(double); NaN means missing (replaced by the training median);
   * categorical column: tensor(string), the category as text without surrounding spaces (whole
     numbers without ".0", booleans as "True"/"False"); "" means missing (replaced by the most
@@ -41,10 +42,14 @@ IR_VERSION = 8   # the IR version that goes with opset 17
 _ACTIVATION_OPS = {"relu": "Relu", "tanh": "Tanh", "sigmoid": "Sigmoid"}
 
 
+#: The graph's output names; an input column of the same name gets a suffix ("value" -> "value_2").
+OUTPUT_NAMES = ("value", "label", "probabilities")
+
+
 def input_names(features) -> dict[str, str]:
-    """Column name -> ONNX input name (sanitised, unique)."""
+    """Column name -> ONNX input name (sanitised, unique, never one of ``OUTPUT_NAMES``)."""
     out: dict[str, str] = {}
-    used: set[str] = set()
+    used: set[str] = set(OUTPUT_NAMES)
     for col in features:
         base = re.sub(r"[^A-Za-z0-9_]", "_", str(col)) or "column"
         if base[0].isdigit():

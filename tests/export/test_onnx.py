@@ -66,3 +66,32 @@ def test_unseen_category_encodes_as_zeros(trained, tmp_path):
 def test_input_names_are_sanitised_and_unique():
     assert input_names(["mean radius", "mean-radius", "2nd", "ok"]) == {
         "mean radius": "mean_radius", "mean-radius": "mean_radius_2", "2nd": "c_2nd", "ok": "ok"}
+
+
+def test_input_names_never_take_an_output_name():
+    assert input_names(["value", "label", "probabilities", "value_2"]) == {
+        "value": "value_2", "label": "label_2", "probabilities": "probabilities_2",
+        "value_2": "value_2_2"}
+
+
+@pytest.mark.parametrize("task", ["regression", "multiclass"])
+def test_a_column_named_like_an_output_exports_and_runs(trained, task, tmp_path):
+    """statsmodels' Grunfeld data has a column named "value": the graph once used that name for
+    an input and the regression output, which onnx's checker rejects (SSA form)."""
+    import dataclasses
+
+    model, frame = trained[task]["model"], trained[task]["frame"]
+    renamed = {model.features[0]: "value", model.features[1]: "label"}
+    frame = frame.rename(columns=renamed)
+    state = model.preprocessor.to_state()
+    state["numeric"] = [renamed.get(c, c) for c in state["numeric"]]
+    pre = type(model.preprocessor).from_state(state)
+    model = dataclasses.replace(model, preprocessor=pre,
+                                features=tuple(renamed.get(c, c) for c in model.features),
+                                kinds={renamed.get(c, c): k for c, k in model.kinds.items()})
+    path = export_onnx(model, tmp_path / "m.onnx")
+    onnx.checker.check_model(onnx.load(str(path)), full_check=True)   # source: onnx's checker
+    rows = frame.iloc[:20]
+    session = ort.InferenceSession(str(path), providers=["CPUExecutionProvider"])
+    out = session.run(None, _feeds(model, rows))[0 if task == "regression" else 1]
+    np.testing.assert_allclose(out, model.output(rows), atol=1e-5)     # source: onnxruntime
