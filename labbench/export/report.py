@@ -273,9 +273,31 @@ def render_html(data: ReportData) -> str:
             f"<body><h1>labbench report: {esc(data.study_name)}</h1>{sections}</body></html>\n")
 
 
+def report_file_name(data: ReportData) -> str:
+    """``<search name>_report.html``, the name made safe for a file name (labbench.fileio)."""
+    from labbench.fileio import safe_file_name
+
+    return f"{safe_file_name(data.study_name)}_report.html"
+
+
 def default_report_path(data: ReportData) -> Path:
     folder = Path(data.out_dir) if data.out_dir else Path.cwd()
-    return folder / f"{data.study_name}_report.html"
+    return folder / report_file_name(data)
+
+
+def report_path(data: ReportData, out_path: str | os.PathLike | None) -> Path:
+    """``-o`` (a folder gets the default file name inside it), else the default place; never an
+    input of the search (its spec, its data file, its database)."""
+    from labbench.fileio import check_output
+
+    target = Path(out_path) if out_path is not None else default_report_path(data)
+    if target.is_dir():
+        target = target / report_file_name(data)
+    inputs = [("spec file", data.spec_path), ("data file", data.data.get("path"))]
+    url = data.storage or ""
+    if url.startswith("sqlite") and "///" in url:
+        inputs.append(("search's database", url.split("///", 1)[1]))
+    return check_output(target, inputs=inputs, what="report file")
 
 
 def write_report(source: Any, out_path: str | os.PathLike | None = None, *, study: str | None = None) -> Path:
@@ -284,10 +306,12 @@ def write_report(source: Any, out_path: str | os.PathLike | None = None, *, stud
     Default place: ``<search name>_report.html`` in the search's output folder (where
     ``labbench run`` writes winner.json). Returns the path written.
     """
+    from labbench.fileio import write_text
+    from labbench.search.storage import mask_password_text
+
     data = collect(source, study)
-    target = Path(out_path) if out_path is not None else default_report_path(data)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    target.write_text(render_html(data), encoding="utf-8")
+    target = report_path(data, out_path)
+    write_text(target, mask_password_text(render_html(data)))
     log.info("report written to %s", target)
     return target
 

@@ -101,7 +101,9 @@ def out_dir(spec, given: str | None) -> Path:
     if spec.source_path:
         src = Path(spec.source_path).resolve()
         return src.parent / f"{src.stem}_out"
-    return Path.cwd() / f"{spec.study_name()}_out"
+    from labbench.fileio import safe_file_name
+
+    return Path.cwd() / f"{safe_file_name(spec.study_name())}_out"
 
 
 def run_command(args) -> int:
