@@ -85,8 +85,14 @@ class Spec:
     def base_dir(self) -> str:
         return str(Path(self.source_path).resolve().parent) if self.source_path else os.getcwd()
 
-    def to_dict(self, base_dir: str | os.PathLike | None = None) -> dict[str, Any]:
-        """TOML-ready; the data path relative to ``base_dir`` (default: the spec's folder)."""
+    def to_dict(self, base_dir: str | os.PathLike | None = None, *,
+                keep_password: bool = False) -> dict[str, Any]:
+        """TOML-ready; the data path relative to ``base_dir`` (default: the spec's folder).
+
+        A password in ``[search] storage`` is left out unless ``keep_password`` (only the user's
+        own spec file keeps it, see ``save_spec``): the text goes into files labbench writes
+        (winner.toml, the spec stored with the search, the report). Without it in the URL,
+        PostgreSQL's client library takes it from PGPASSWORD or ~/.pgpass."""
         base = Path(base_dir if base_dir is not None else self.base_dir()).resolve()
         d, e, s = self.data, self.evaluation, self.search
         data: dict[str, Any] = {"path": _relative(d.path, base), "target": d.target}
@@ -110,19 +116,20 @@ class Spec:
             search["minutes"] = s.minutes
         search.update(sampler=s.sampler, pruner=s.pruner, workers=s.workers)
         if s.storage:
-            search["storage"] = s.storage
+            search["storage"] = s.storage if keep_password else without_password(s.storage)
         if s.name:
             search["name"] = s.name
         return {"data": data, "evaluation": evaluation, "search": search,
                 "space": self.space.to_dict()}
 
-    def to_toml(self, base_dir: str | os.PathLike | None = None) -> str:
-        return tomli_w.dumps(self.to_dict(base_dir))
+    def to_toml(self, base_dir: str | os.PathLike | None = None, *,
+                keep_password: bool = False) -> str:
+        return tomli_w.dumps(self.to_dict(base_dir, keep_password=keep_password))
 
     # ---- validated copies (command-line overrides, the window's edits)
 
     def _rebuilt(self, section: str, changes: Mapping[str, Any]) -> "Spec":
-        d = self.to_dict()
+        d = self.to_dict(keep_password=True)
         for key, value in changes.items():
             if value is None:
                 d[section].pop(key, None)
@@ -147,6 +154,21 @@ class Spec:
         spec = dataclasses.replace(self, space=space)
         _check_sampler_space(spec.search, space, self.source_path)
         return spec
+
+
+def without_password(url: str) -> str:
+    """The database URL with any password left out (``user:secret@host`` -> ``user@host``)."""
+    try:
+        from sqlalchemy.engine import make_url
+
+        parsed = make_url(url)
+        if parsed.password is None:
+            return url
+        return parsed._replace(password=None).render_as_string(hide_password=False)
+    except Exception:  # not parseable: drop anything that looks like :password@
+        import re
+
+        return re.sub(r"(://[^:/@\s]*):[^@\s]*@", r"\1@", url)
 
 
 def _relative(path: str, base: Path) -> str:
@@ -187,10 +209,14 @@ def loads_spec(text: str, base_dir: str | os.PathLike, source: str | None = None
 
 
 def save_spec(spec: Spec, path: str | os.PathLike) -> Spec:
-    """Write the spec to ``path`` (data path relative to its folder); returns it with that source."""
+    """Write the spec to ``path`` (data path relative to its folder, atomically); returns it with
+    that source. This is the user's spec file, so a password in its storage URL is kept."""
+    from labbench.fileio import write_text
+
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
-    p.write_text(spec.to_toml(p.resolve().parent), encoding="utf-8")
+    # the user's own spec file: it keeps a password written in its storage URL
+    write_text(p, spec.to_toml(p.resolve().parent, keep_password=True))
     return dataclasses.replace(spec, source_path=str(p))
 
 
