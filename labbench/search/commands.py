@@ -35,7 +35,8 @@ def add_parser(subparsers) -> None:
         "130 interrupted (Ctrl-C; run the same command again to continue).")
     run.add_argument("spec", metavar="SPEC.toml", help="the experiment's spec file")
     run.add_argument("--trials", type=int, metavar="N",
-                     help="trials to add in this run (default: [search] trials)")
+                     help="trials to add in this run (default: [search] trials); 0: no new "
+                     "trial, only check the winner of the stored trials and write its files")
     run.add_argument("--minutes", type=float, metavar="M",
                      help="stop starting trials after M minutes (default: [search] minutes)")
     run.add_argument("--workers", type=int, metavar="W",
@@ -71,11 +72,15 @@ def add_parser(subparsers) -> None:
 
 
 class _Interrupts:
-    """Ctrl-C / SIGTERM set the cancel event (first time) or raise KeyboardInterrupt (again)."""
+    """Ctrl-C / SIGTERM set the cancel event (first time) or raise KeyboardInterrupt (again).
+
+    Once the search is over (``immediate``), the first one raises KeyboardInterrupt at once: the
+    trials are all stored, and nobody waits for a refit after pressing Ctrl-C."""
 
     def __init__(self, cancel: threading.Event, say):
         self.cancel, self.say = cancel, say
         self.saved: dict[int, Any] = {}
+        self.immediate = False
 
     def __enter__(self):
         if threading.current_thread() is threading.main_thread():
@@ -84,7 +89,8 @@ class _Interrupts:
         return self
 
     def _handle(self, signum, frame) -> None:
-        if self.cancel.is_set():
+        if self.cancel.is_set() or self.immediate:
+            self.cancel.set()
             raise KeyboardInterrupt
         self.cancel.set()
         self.say("stopping: the trials in flight end after their current epoch "
@@ -107,6 +113,8 @@ def out_dir(spec, given: str | None) -> Path:
 
 
 def run_command(args) -> int:
+    from labbench.fileio import check_out_dir
+    from labbench.search import events
     from labbench.search.progress import ProgressLine
     from labbench.search.runner import SearchRunner
     from labbench.search.spec import load_spec
@@ -115,26 +123,60 @@ def run_command(args) -> int:
     spec = load_spec(args.spec)
     heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
     target = out_dir(spec, args.out)
+    # checked before the search starts, not after it ran for hours
+    check_out_dir(target, inputs=(("spec file", args.spec), ("data file", spec.data.path)))
+    if args.trials == 0:
+        return _winner_only(args, spec, target)
     progress = ProgressLine(sys.stderr, quiet=args.quiet)
-    runner = SearchRunner(spec, progress, storage=args.storage, trials=args.trials,
+    ended: dict[str, int] = {}          # this run's trials by how they ended
+
+    def emit(event) -> None:
+        if isinstance(event, events.TrialEnded):
+            ended[event.state] = ended.get(event.state, 0) + 1
+        progress(event)
+
+    runner = SearchRunner(spec, emit, storage=args.storage, trials=args.trials,
                           minutes=args.minutes, workers=args.workers, fresh=args.fresh,
                           heartbeat=heartbeat)
     cancel = threading.Event()
 
     def say(text: str) -> None:
-        progress(__import__("labbench.search.events", fromlist=["Notice"]).Notice(text, "info"))
+        progress(events.Notice(text, "info"))
 
-    with _Interrupts(cancel, say):
-        outcome = runner.run(cancel)
-    if outcome.cancelled:
-        print(f"labbench: interrupted; {outcome.trials_run} trial(s) finished in this run are "
-              f"stored in {outcome.storage}; run the same command again to continue",
-              file=sys.stderr)
-        return EXIT_INTERRUPTED
-    if outcome.best_number is None:
-        print(f"labbench: no trial completed, so there is no winner; see `labbench show "
-              f"{args.spec}` for why the trials failed", file=sys.stderr)
-        return EXIT_NO_WINNER
+    with _Interrupts(cancel, say) as interrupts:
+        try:
+            outcome = runner.run(cancel)
+        except KeyboardInterrupt:          # a second Ctrl-C while the trials were stopping
+            progress.close()
+            print(interrupted_text(ended, None, args.spec, after_search=False), file=sys.stderr)
+            return EXIT_INTERRUPTED
+        except Exception as exc:
+            raise storage_error(exc, _shown_url(spec, args.storage)) from None
+        if outcome.cancelled or cancel.is_set():
+            # also a Ctrl-C that came after the last trial: stop now, nothing is refit or written
+            progress.close()
+            print(interrupted_text(ended, outcome.storage, args.spec,
+                                   after_search=not outcome.cancelled), file=sys.stderr)
+            return EXIT_INTERRUPTED
+        interrupts.immediate = True
+        if outcome.best_number is None:
+            print(f"labbench: no trial completed, so there is no winner; see `labbench show "
+                  f"{args.spec}` for why the trials failed", file=sys.stderr)
+            return EXIT_NO_WINNER
+        try:
+            return _finish(spec, runner.study, runner.prepared, target, progress)
+        except KeyboardInterrupt:
+            progress.close()
+            print(f"labbench: interrupted while checking the winner; the trials are stored in "
+                  f"{outcome.storage}, but the winner's files in {target} are not complete; "
+                  f"`labbench run {args.spec} --trials 0` writes them without new trials",
+                  file=sys.stderr)
+            return EXIT_INTERRUPTED
+
+
+def _finish(spec, study, prepared, target: Path, progress) -> int:
+    """Refit, hold-out, seed spread, winner files, bundle/script/ONNX; prints the summary."""
+    from labbench.export import export_all
     from labbench.search import events
     from labbench.search.winner import finalize
 
@@ -145,14 +187,130 @@ def run_command(args) -> int:
             files.extend(event.files)
         progress(event)
 
-    summary, model = finalize(spec, runner.study, runner.prepared, emit=collect, out_dir=target)
-    from labbench.export import export_all
-
+    summary, model = finalize(spec, study, prepared, emit=collect, out_dir=target)
     progress(events.FinalStage("files", f"Saving the trained winner (bundle, script, ONNX) to {target}"))
     files.extend(str(p) for p in export_all(model, summary, target))
     progress.close()
     print(winner_text(summary, files))
     return EXIT_OK
+
+
+def _winner_only(args, spec, target: Path) -> int:
+    """``--trials 0``: no new trial; check the winner of the stored trials and write its files."""
+    from labbench.search.progress import ProgressLine
+
+    study, _ = open_for_reading(args.spec, None, args.storage)
+    progress = ProgressLine(sys.stderr, quiet=args.quiet)
+    cancel = threading.Event()
+    with _Interrupts(cancel, lambda text: None) as interrupts:
+        interrupts.immediate = True
+        try:
+            return _finish(spec, study, None, target, progress)
+        except KeyboardInterrupt:
+            progress.close()
+            print(f"labbench: interrupted; the winner's files in {target} are not complete",
+                  file=sys.stderr)
+            return EXIT_INTERRUPTED
+
+
+def interrupted_text(ended: dict[str, int], storage: str | None, spec_path: str, *,
+                     after_search: bool) -> str:
+    """The line ``labbench run`` prints on Ctrl-C: this run's trials by how they ended."""
+    cancelled = ended.get("cancelled", 0)
+    done = {k: n for k, n in ended.items() if k != "cancelled" and n}
+    finished = sum(done.values())
+    parts = ", ".join(f"{n} {k}" for k, n in done.items())
+    where = f" in {storage}" if storage else ""
+    text = f"labbench: interrupted; {finished} trial(s) of this run finished"
+    text += f" ({parts})" if parts else ""
+    if cancelled:
+        text += (f" and {cancelled} were cancelled (stored as failed, 'cancelled by the user', "
+                 "never counted as results)")
+    text += f"; they are stored{where}"
+    if after_search:
+        return (text + "; the interrupt came after the last trial, so the winner was not refit "
+                f"and no file was written: `labbench run {spec_path} --trials 0` does that "
+                "without new trials")
+    return text + "; run the same command again to continue"
+
+
+def _shown_url(spec, storage: str | None) -> str:
+    from labbench.search.storage import mask_url, resolve_url
+
+    try:
+        return mask_url(resolve_url(spec, storage))
+    except Exception:
+        return "the storage"
+
+
+def _chain_text(exc: BaseException) -> str:
+    """Every message in an exception's chain (Optuna wraps SQLAlchemy wraps the driver's)."""
+    seen, texts, todo = set(), [], [exc]
+    while todo:
+        e = todo.pop()
+        if e is None or id(e) in seen:
+            continue
+        seen.add(id(e))
+        texts.append(str(e))
+        todo += [getattr(e, "orig", None), e.__cause__, e.__context__]
+    return " | ".join(texts).lower()
+
+
+# (what the database driver says, what labbench says, the fix)
+_STORAGE_PROBLEMS = (
+    (("file is not a database", "file is encrypted", "malformed", "not an error"),
+     "is not a SQLite database (or is damaged)",
+     "move that file away or give another storage path with --storage or [search] storage"),
+    (("database is locked", "database table is locked"),
+     "is locked by another program (an open database browser, or a process writing to it)",
+     "close that program or wait for it, then run the command again"),
+    (("password authentication failed", "no password supplied", "password is required"),
+     "refused the user name or password",
+     "check the user; give the password in PGPASSWORD or ~/.pgpass (or in the URL)"),
+    (("connection refused", "could not connect", "could not translate host name",
+      "name or service not known", "timeout expired"),
+     "does not answer",
+     "check the host and port in the URL and that the database server is running"),
+    (("does not exist",),
+     "has no such database or user",
+     "create the database and user first (see the README's 'Several machines' section)"),
+)
+
+
+def storage_error(exc: BaseException, shown: str) -> BaseException:
+    """A one-line SpecError for a database problem the user can fix; other errors unchanged."""
+    from labbench.errors import LabbenchError
+
+    ours = isinstance(exc, SpecError) and str(exc).startswith("storage ")
+    if not (ours or _is_database_error(exc)):
+        return exc
+    text = _chain_text(exc)
+    for needles, what, fix in _STORAGE_PROBLEMS:
+        if any(n in text for n in needles):
+            return SpecError(f"storage {shown}: {what}; {fix}")
+    if isinstance(exc, LabbenchError):
+        return exc
+    return SpecError(f"storage {shown}: cannot use it ({_first_line(exc)}); check the URL in "
+                     "--storage or [search] storage")
+
+
+def _is_database_error(exc: BaseException) -> bool:
+    names = {type(e).__module__.split(".")[0] for e in _chain(exc)}
+    return bool(names & {"sqlalchemy", "sqlite3", "psycopg", "psycopg2"}) or \
+        any(type(e).__name__ == "StorageInternalError" for e in _chain(exc))
+
+
+def _chain(exc: BaseException):
+    while exc is not None:
+        yield exc
+        exc = exc.__cause__ or exc.__context__
+
+
+def _first_line(exc: BaseException) -> str:
+    from labbench.search.storage import mask_password_text
+
+    lines = str(getattr(exc, "orig", None) or exc).strip().splitlines()
+    return mask_password_text(lines[0] if lines else type(exc).__name__)[:200]
 
 
 def _fmt(value) -> str:
@@ -234,10 +392,11 @@ def open_for_reading(source: str, study: str | None, storage: str | None):
         names = [s.study_name for s in optuna.get_all_study_summaries(storage=rdb,
                                                                       include_best_trial=False)]
     except Exception as exc:
-        from labbench.search.storage import mask_password_text
-
-        raise SpecError(f"storage {shown}: cannot read it ({mask_password_text(str(exc).splitlines()[0])})"
-                        "; check the URL") from None
+        error = storage_error(exc, shown)
+        if isinstance(error, SpecError):
+            raise error from None
+        raise SpecError(f"storage {shown}: cannot read it ({_first_line(exc)}); check the URL") \
+            from None
     if name is None:
         if len(names) != 1:
             raise SpecError(f"storage {shown}: holds {len(names)} searches "
