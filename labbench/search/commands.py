@@ -122,6 +122,8 @@ def run_command(args) -> int:
 
     spec = load_spec(args.spec)
     heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
+    if args.workers is not None:
+        _check_workers(spec, args.workers)
     target = out_dir(spec, args.out)
     # checked before the search starts, not after it ran for hours
     check_out_dir(target, inputs=(("spec file", args.spec), ("data file", spec.data.path)))
@@ -172,6 +174,19 @@ def run_command(args) -> int:
                   f"`labbench run {args.spec} --trials 0` writes them without new trials",
                   file=sys.stderr)
             return EXIT_INTERRUPTED
+
+
+def _check_workers(spec, workers: int) -> None:
+    import dataclasses
+
+    from labbench.search.spec import MAX_WORKERS, check_memory
+
+    if workers > MAX_WORKERS:
+        raise SpecError(f"--workers: {workers} is more than labbench allows ({MAX_WORKERS}; one "
+                        f"process per worker); give a whole number from 1 to {MAX_WORKERS}")
+    if workers >= 1:
+        check_memory(dataclasses.replace(spec, search=dataclasses.replace(spec.search,
+                                                                          workers=workers)))
 
 
 def _finish(spec, study, prepared, target: Path, progress) -> int:

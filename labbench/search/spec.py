@@ -34,6 +34,14 @@ SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
 PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
 
+# Upper bounds: each keeps one spec from hanging the program silently (README, "Limits").
+MAX_FOLDS = 50            # 5 or 10 folds is common practice; 50 is already leave-few-out
+MAX_REPEATS = 20          # repeated k-fold: 3-10 repeats is common practice
+MAX_MODELS = 200          # folds × repeats networks trained together in one trial
+MAX_SEED_SPREAD = 50      # seeds of the winner's spread check (each trains every fold again)
+MAX_WORKERS = 64          # worker processes (one trial each)
+MEMORY_SHARE = 0.8        # a spec whose networks need more than this share of RAM is refused
+
 _SECTIONS = ("data", "evaluation", "search", "space")
 
 
@@ -254,12 +262,18 @@ class _Section:
             raise self.fail(key, f"{show(v)} is not allowed; write a non-empty text in quotes")
         return v
 
-    def integer(self, key: str, default: Any, *, least: int) -> Any:
+    def integer(self, key: str, default: Any, *, least: int, most: int | None = None,
+                why: str = "") -> Any:
         if key not in self.d:
             return default
         v = self.d[key]
         if isinstance(v, bool) or not isinstance(v, int) or v < least:
-            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}")
+            rule = f" (at most {most})" if most is not None else ""
+            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}{rule}")
+        if most is not None and v > most:
+            raise self.fail(key, f"{show(v)} is more than labbench allows ({most}"
+                            + (f"; {why}" if why else "") + f"); write a whole number from "
+                            f"{least} to {most}")
         return v
 
     def number(self, key: str, default: Any, *, above: float, below: float | None = None) -> Any:
@@ -318,12 +332,15 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
 
     es = _Section(d.get("evaluation", {}), "evaluation",
                   ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
-    spread = es.integer("seed_spread", 5, least=0)
+    spread = es.integer("seed_spread", 5, least=0, most=MAX_SEED_SPREAD,
+                        why="each seed retrains every fold of the winner")
     if spread == 1:
         raise es.fail("seed_spread", "1 is not allowed; write 0 to skip the check or 2 or more seeds")
     evaluation = EvaluationSpec(
-        folds=es.integer("folds", 5, least=2),
-        repeats=es.integer("repeats", 1, least=1),
+        folds=es.integer("folds", 5, least=2, most=MAX_FOLDS,
+                         why="5 or 10 folds is common practice"),
+        repeats=es.integer("repeats", 1, least=1, most=MAX_REPEATS,
+                           why="every repeat trains all folds again in every trial"),
         holdout=es.number("holdout", 0.2, above=0.0, below=0.9),
         seed=es.integer("seed", 0, least=0),
         metric=es.text("metric"),
@@ -331,6 +348,10 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
     )
     if evaluation.metric is not None:
         check_metric(evaluation.metric, data.task, source)
+    if evaluation.folds * evaluation.repeats > MAX_MODELS:
+        raise es.fail("repeats", f"{evaluation.folds} folds × {evaluation.repeats} repeats = "
+                      f"{evaluation.folds * evaluation.repeats} networks per trial, more than "
+                      f"{MAX_MODELS}; lower folds or repeats")
 
     ss = _Section(d.get("search", {}), "search",
                   ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
@@ -347,7 +368,8 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         minutes=minutes,
         sampler=ss.text("sampler", "tpe", choices=SAMPLERS),
         pruner=ss.text("pruner", "median", choices=PRUNERS),
-        workers=ss.integer("workers", 1, least=1),
+        workers=ss.integer("workers", 1, least=1, most=MAX_WORKERS,
+                           why="one process per worker; more workers than CPU cores only share them"),
         storage=storage,
         name=ss.text("name"),
     )
@@ -358,7 +380,72 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
                          "with one line per setting")
     space = SearchSpace.from_dict(space_raw, source)
     _check_sampler_space(search, space, source)
-    return Spec(data, evaluation, search, space, source)
+    spec = Spec(data, evaluation, search, space, source)
+    check_memory(spec)
+    return spec
+
+
+# -- memory ------------------------------------------------------------------------------------
+
+
+def _largest(space: SearchSpace, name: str) -> int:
+    values = space._values(name) or (getattr(space[name], "high", 0),)
+    flat = [v for x in values for v in (x if isinstance(x, (list, tuple)) else (x,))]
+    return int(max(flat, default=0))
+
+
+def physical_memory() -> int | None:
+    """Bytes of RAM of this machine (None where the OS does not say)."""
+    try:
+        return int(os.sysconf("SC_PAGE_SIZE")) * int(os.sysconf("SC_PHYS_PAGES"))
+    except (AttributeError, ValueError, OSError):
+        return None
+
+
+def memory_estimate(spec: Spec) -> dict[str, float]:
+    """A lower bound of the bytes the largest networks of the spec hold at once.
+
+    Counted: the hidden-to-hidden weights of the widest, deepest network the space allows, four
+    arrays of them per network (weights, gradient and the optimiser's two moment estimates, as
+    Adam keeps), 4 bytes each (float32), for every network trained together: folds × repeats per
+    trial times the workers, and folds × seeds for the winner's spread check. The first layer's
+    weights (inputs × units) and the batch's activations come on top; they depend on the data.
+    """
+    units = _largest(spec.space, "hidden_units")
+    layers = _largest(spec.space, "hidden_layers")
+    per_net = 4 * 4 * max(layers - 1, 0) * units * (units + 1)
+    e = spec.evaluation
+    return {"trial": per_net * e.folds * e.repeats * spec.search.workers,
+            "spread": per_net * e.folds * e.seed_spread, "per_net": per_net,
+            "units": units, "layers": layers}
+
+
+def check_memory(spec: Spec, available: int | None = None) -> None:
+    """Raise a SpecError (naming the key to lower) when the spec's networks cannot fit in RAM."""
+    ram = physical_memory() if available is None else available
+    if not ram:
+        return
+    est = memory_estimate(spec)
+    limit = MEMORY_SHARE * ram
+    if max(est["trial"], est["spread"]) <= limit:
+        return
+    e, gb = spec.evaluation, 1024 ** 3
+    shape = f"{est['layers']} hidden layers of {est['units']} units"
+    have = f"{ram / gb:.1f} GB of memory here"
+    if est["per_net"] * e.folds * e.repeats > limit:
+        key, what = "space.hidden_units", (f"{e.folds * e.repeats} networks of {shape} need at "
+                                           f"least {est['per_net'] * e.folds * e.repeats / gb:.1f} GB")
+        fix = "allow fewer units (or layers), or fewer folds"
+    elif est["trial"] > limit:
+        key, what = "search.workers", (f"{spec.search.workers} workers × {e.folds * e.repeats} "
+                                       f"networks of {shape} need at least {est['trial'] / gb:.1f} GB")
+        fix = "use fewer workers or fewer units"
+    else:
+        key, what = "evaluation.seed_spread", (f"{e.seed_spread} seeds × {e.folds} folds of "
+                                               f"networks of {shape} need at least "
+                                               f"{est['spread'] / gb:.1f} GB")
+        fix = "use fewer seeds (or 0 to skip the check) or fewer units"
+    raise spec_error(spec.source_path, key, f"{what}, more than {MEMORY_SHARE:.0%} of the {have}; {fix}")
 
 
 def _check_sampler_space(search: SearchSettings, space: SearchSpace, source: str | None) -> None:
