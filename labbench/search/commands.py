@@ -287,8 +287,8 @@ _STORAGE_PROBLEMS = (
      "does not answer",
      "check the host and port in the URL and that the database server is running"),
     (("does not exist",),
-     "has no such database or user",
-     "create the database and user first (see the README's 'Several machines' section)"),
+     "has no such database",
+     "create it first (e.g. createdb NAME as a user allowed to) or fix the name in the URL"),
 )
 
 
