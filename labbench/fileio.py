@@ -14,7 +14,6 @@
 from __future__ import annotations
 
 import contextlib
-import math
 import os
 import re
 import tempfile
@@ -136,7 +135,7 @@ def csv_safe_cell(value: Any) -> Any:
     if not isinstance(value, str) or not value.startswith(_FORMULA_START):
         return value
     try:
-        number = float(value)
+        float(value)
     except ValueError:
         return "'" + value
-    return value if math.isfinite(number) and value.strip() == value else "'" + value
+    return value
