@@ -20,6 +20,7 @@ from typing import Any, Iterable
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
 from labbench.export import report_plots as plots
+from labbench.search.commands import param_label
 
 log = logging.getLogger("labbench.export.report")
 
@@ -151,7 +152,7 @@ def space_section(data: ReportData) -> str:
                  f"budget {esc(se.get('trials', '?'))} trial(s)"
                  f"{esc(', ' + str(se['minutes']) + ' minutes' if se.get('minutes') else '')}.</p>")
     if searched:
-        parts.append(f"<p>Searched parameters (as stored): {esc(', '.join(sorted(searched)))}.</p>")
+        parts.append(f"<p>Searched parameters: {esc(', '.join(sorted(map(param_label, searched))))}.</p>")
     return "".join(parts)
 
 
@@ -175,12 +176,14 @@ def trials_section(data: ReportData) -> str:
     if importance and importance.get("message"):
         parts.append(note(importance["message"]))
     for name in plots.searched_names(data):
-        parts.append(figure(plots.setting_chart(data, name), f"{name} against the score",
-                            f"Score of each complete trial against {name}."))
+        label = param_label(name)
+        parts.append(figure(plots.setting_chart(data, name), f"{label} against the score",
+                            f"Score of each complete trial against {label}."))
     best = plots.best_number(data)
     rows = []
     for t in data.trials[-300:]:
-        params = ", ".join(f"{k}={num(v, 3) if isinstance(v, float) else v}" for k, v in t.params.items())
+        params = ", ".join(f"{param_label(k)}={num(v, 3) if isinstance(v, float) else v}"
+                           for k, v in t.params.items())
         rows.append((t.number, t.state + (" (winner)" if t.number == best else ""), t.value,
                      t.cv_std, t.epochs_run, t.duration_s, params, t.end_reason))
     parts.append("<h3>All trials</h3>" + ("<p>The last 300 are listed.</p>" if len(data.trials) > 300 else ""))

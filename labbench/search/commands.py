@@ -433,6 +433,14 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
+def param_label(name: str) -> str:
+    """A searched parameter as the user knows it: the units of hidden layer i are stored as the
+    parameter ``units_i`` and shown as ``layer_i_units``; ``l2_on`` is the l2 penalty's switch."""
+    if name.startswith("units_") and name[6:].isdigit():
+        return f"layer_{name[6:]}_units"
+    return {"l2_on": "l2_used"}.get(name, name)
+
+
 def trials_table(study) -> str:
     """The text ``labbench show`` prints for a study (also handy in tests)."""
     from labbench.search.progress import duration, number
@@ -443,7 +451,7 @@ def trials_table(study) -> str:
     metric = attrs.get("metric", "value")
     direction = attrs.get("direction", study.direction.name.lower())
     params = list(attrs.get("searched") or sorted({p for t in trials for p in t.params}))
-    header = ["trial", "state", metric, "±", "ran", "time"] + params
+    header = ["trial", "state", metric, "±", "ran", "time"] + [param_label(p) for p in params]
     rows = []
     for t in trials:
         ua = t.user_attrs
@@ -468,7 +476,7 @@ def trials_table(study) -> str:
         std = best.user_attrs.get("cv_std")
         spread = f" ± {number(std)}" if std is not None else ""
         lines.append(f"best: trial {best.number}, {metric} {number(best.value)}{spread} over "
-                     f"{len(folds)} folds; " + ", ".join(f"{k}={_cell(v)}" for k, v in
+                     f"{len(folds)} folds; " + ", ".join(f"{param_label(k)}={_cell(v)}" for k, v in
                                                       best.params.items()))
     else:
         lines.append("best: none yet (no complete trial)")

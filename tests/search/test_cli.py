@@ -283,3 +283,14 @@ def test_a_password_never_reaches_the_output(tmp_path, capsys):
     assert "s3cret-pw" not in out + err
     lines = err.strip().splitlines()
     assert len(lines) == 1 and "does not answer" in lines[0] and "bob:***@127.0.0.1" in lines[0]
+
+
+def test_show_names_layer_units_plainly(tmp_path, capsys):
+    """Standing rule: Optuna's internal parameter names (units_1) do not reach the user."""
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=1)
+    assert main(["run", str(spec), "--quiet", "--out", str(tmp_path / "o")]) == 0
+    capsys.readouterr()
+    assert main(["show", str(spec)]) == 0
+    table = capsys.readouterr().out
+    assert "layer_1_units" in table and "units_1" not in table
