@@ -35,16 +35,30 @@ def atomic_path(target: str | os.PathLike, suffix: str | None = None) -> Iterato
     KeyboardInterrupt, the temporary file is removed and ``target`` is left as it was.
     """
     target = Path(target)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=suffix or ".part",
-                               dir=target.parent)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=suffix or ".part",
+                                   dir=target.parent)
+    except OSError as exc:
+        raise _cannot_write(target, exc) from None
     os.close(fd)
     try:
         yield Path(tmp)
+        if target.is_dir():
+            raise OutputError(f"{target}: is a folder; choose another file name")
         os.replace(tmp, target)
+    except OSError as exc:         # disk full, permissions, a folder in the way ...
+        Path(tmp).unlink(missing_ok=True)
+        raise _cannot_write(target, exc) from None
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def _cannot_write(target: Path, exc: OSError) -> OutputError:
+    reason = exc.strerror or type(exc).__name__
+    return OutputError(f"{target}: cannot write it ({reason}); nothing was changed there; "
+                       "choose another place (or free some disk space)")
 
 
 def write_bytes(target: str | os.PathLike, data: bytes) -> Path:
@@ -82,7 +96,21 @@ def check_output(path: str | os.PathLike, *, inputs: Iterable[tuple[str, str | o
         if given is not None and _same_file(out, Path(given)):
             raise OutputError(f"{out}: is the {role} itself; labbench never overwrites an input, "
                               f"choose another {what} with {option}")
+    _check_parent(out.parent, out, option)
     return out
+
+
+def _check_parent(folder: Path, out: Path, option: str) -> None:
+    """The nearest existing folder above ``out`` must be a writable folder, not a file."""
+    probe = folder
+    while not probe.exists() and probe.parent != probe:
+        probe = probe.parent
+    if probe.exists() and not probe.is_dir():
+        raise OutputError(f"{out}: {probe} is a file, so nothing can be written below it; "
+                          f"choose another place with {option}")
+    if probe.exists() and not os.access(probe, os.W_OK | os.X_OK):
+        raise OutputError(f"{out}: the folder {probe} is not writable; choose another place "
+                          f"with {option}")
 
 
 def check_out_dir(path: str | os.PathLike, *, inputs: Iterable[tuple[str, str | os.PathLike]] = (),
@@ -95,14 +123,7 @@ def check_out_dir(path: str | os.PathLike, *, inputs: Iterable[tuple[str, str | 
     for role, given in inputs:
         if given is not None and _same_file(out, Path(given)):
             raise OutputError(f"{out}: is the {role} itself; choose another folder with {option}")
-    probe = out
-    while not probe.exists() and probe.parent != probe:
-        probe = probe.parent
-    if probe.exists() and not probe.is_dir():
-        raise OutputError(f"{out}: {probe} is a file, so the folder cannot be made there; "
-                          f"choose another folder with {option}")
-    if probe.exists() and not os.access(probe, os.W_OK | os.X_OK):
-        raise OutputError(f"{out}: {probe} is not writable; choose another folder with {option}")
+    _check_parent(out, out, option)
     return out
 
 

@@ -153,3 +153,11 @@ def test_formula_cells_are_neutralised_and_numbers_kept(trained, tmp_path, capsy
     assert out["row_id"].tolist() == ["'=1+2", "'+cmd", "-1.5", "'@SUM(A1)", "'\tx", "plain"]
     assert np.isfinite(out["predicted_outcome"].to_numpy(dtype=float)).all()
     assert (out["predicted_outcome"] < 0).any()          # negative predictions written as numbers
+
+
+def test_an_output_below_a_file_is_one_line(setup, capsys):
+    _, bundle, rows, tmp = setup
+    data = _csv(tmp, rows)
+    assert main(["predict", str(bundle), str(data), "-o", str(data / "x.csv")]) == 2
+    lines = _stderr_lines(capsys)
+    assert len(lines) == 1 and "is a file, so nothing can be written below it" in lines[0]
