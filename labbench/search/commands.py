@@ -23,6 +23,8 @@ from labbench.errors import SpecError
 log = logging.getLogger("labbench.search.commands")
 
 EXIT_OK, EXIT_NO_WINNER, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+# the files `labbench run` writes into its output folder
+OUTPUT_NAMES = ("winner.json", "winner.toml", "model.npz", "predict_with_numpy.py", "model.onnx")
 
 
 def add_parser(subparsers) -> None:
@@ -113,7 +115,7 @@ def out_dir(spec, given: str | None) -> Path:
 
 
 def run_command(args) -> int:
-    from labbench.fileio import check_out_dir
+    from labbench.fileio import check_out_dir, check_output
     from labbench.search import events
     from labbench.search.progress import ProgressLine
     from labbench.search.runner import SearchRunner
@@ -126,7 +128,10 @@ def run_command(args) -> int:
         _check_workers(spec, args.workers)
     target = out_dir(spec, args.out)
     # checked before the search starts, not after it ran for hours
-    check_out_dir(target, inputs=(("spec file", args.spec), ("data file", spec.data.path)))
+    inputs = (("spec file", args.spec), ("data file", spec.data.path))
+    check_out_dir(target, inputs=inputs)
+    for name in OUTPUT_NAMES:        # e.g. `labbench run winner.toml --out .`
+        check_output(target / name, inputs=inputs, what="output folder", option="--out")
     if args.trials == 0:
         return _winner_only(args, spec, target)
     progress = ProgressLine(sys.stderr, quiet=args.quiet)

@@ -294,3 +294,42 @@ def test_show_names_layer_units_plainly(tmp_path, capsys):
     assert main(["show", str(spec)]) == 0
     table = capsys.readouterr().out
     assert "layer_1_units" in table and "units_1" not in table
+
+
+def test_running_winner_toml_into_its_own_folder_never_overwrites_it(tmp_path, capsys):
+    iris_csv(tmp_path)
+    spec = write_spec(tmp_path, trials=1, name="winner.toml")
+    before = spec.read_bytes()
+    assert main(["run", str(spec), "--out", str(tmp_path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "is the spec file itself" in err[0] and "--out" in err[0]
+    assert spec.read_bytes() == before
+
+
+def test_a_locked_database_is_named_with_the_fix(tmp_path):
+    """A real lock: another connection holds an exclusive transaction; the driver's error, as
+    SQLAlchemy wraps it, becomes one line naming the storage and what to do."""
+    import sqlite3
+
+    import sqlalchemy
+
+    from labbench.search.commands import storage_error
+
+    db = tmp_path / "locked.db"
+    holder = sqlite3.connect(db)
+    holder.execute("CREATE TABLE t (x)")
+    holder.commit()
+    holder.execute("BEGIN EXCLUSIVE")
+    engine = sqlalchemy.create_engine(f"sqlite:///{db}", connect_args={"timeout": 0.1})
+    try:
+        with pytest.raises(sqlalchemy.exc.OperationalError) as info:
+            with engine.connect() as conn:
+                conn.exec_driver_sql("INSERT INTO t VALUES (1)")
+        error = storage_error(info.value, f"sqlite:///{db}")
+    finally:
+        holder.rollback()
+        holder.close()
+        engine.dispose()
+    assert str(error) == (f"storage sqlite:///{db}: is locked by another program (an open "
+                          "database browser, or a process writing to it); close that program or "
+                          "wait for it, then run the command again")
