@@ -133,6 +133,9 @@ def run_command(args) -> int:
     for name in OUTPUT_NAMES:        # e.g. `labbench run winner.toml --out .`
         check_output(target / name, inputs=inputs, what="output folder", option="--out")
     if args.trials == 0:
+        if args.fresh:
+            raise SpecError("--trials 0 with --fresh: that would delete the stored search and run "
+                            "no trial; drop one of them")
         return _winner_only(args, spec, target)
     progress = ProgressLine(sys.stderr, quiet=args.quiet)
     ended: dict[str, int] = {}          # this run's trials by how they ended
