@@ -313,7 +313,7 @@ def test_a_locked_database_is_named_with_the_fix(tmp_path):
 
     import sqlalchemy
 
-    from labbench.search.commands import storage_error
+    from labbench.search.storage_problems import storage_error
 
     db = tmp_path / "locked.db"
     holder = sqlite3.connect(db)

@@ -170,7 +170,8 @@ def test_limits_stop_specs_that_would_hang_before_anything_runs():
 
 
 def test_memory_estimate_names_the_key_to_lower():
-    from labbench.search.spec import check_memory, loads_spec, memory_estimate
+    from labbench.search.limits import check_memory, memory_estimate
+    from labbench.search.spec import loads_spec
 
     text = ('[data]\npath = "x.csv"\ntarget = "y"\n[evaluation]\nfolds = 5\nseed_spread = {s}\n'
             "[search]\nworkers = {w}\n[space]\nhidden_layers = 3\n"
