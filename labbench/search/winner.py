@@ -96,8 +96,8 @@ def refit_error(diverged: list[tuple[Any, str]], n_candidates: int) -> Divergenc
         f" (labbench tries the best {MAX_REFITS} with different settings)"
     return DivergenceError(
         f"the refit on all training rows diverged for trial(s) {numbers}{more}, so there is no "
-        f"winner model (last: {last}); lower the learning rate range in [space] or choose "
-        f"data.scaling, then run the search again")
+        f"winner model (last: {last}); lower the learning_rate range in [space] (and check that "
+        f"the inputs are scaled, [data] scaling), then run the search again")
 
 
 def _settings_key(trial: Any) -> str:

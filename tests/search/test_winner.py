@@ -283,7 +283,7 @@ def test_when_every_refit_diverges_the_error_is_one_line_and_names_the_trials(tm
     with pytest.raises(DivergenceError) as info:
         finalize(spec, study, prepared, out_dir=tmp_path / "o", seed_spread=0)
     text = str(info.value)
-    assert "\n" not in text and "trial(s) 3, 2, 1" in text and "learning rate" in text
+    assert "\n" not in text and "trial(s) 3, 2, 1" in text and "learning_rate range" in text
     assert not (tmp_path / "o" / "winner.json").exists()
 
 
