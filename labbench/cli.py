@@ -81,7 +81,27 @@ def _gui_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _terminate(signum, frame) -> None:
+    raise KeyboardInterrupt          # SIGTERM ends like Ctrl-C: temporary files are cleaned up
+
+
 def main(argv: list[str] | None = None) -> int:
+    import signal
+    import threading
+
+    saved = None                     # the window keeps the default SIGTERM behaviour
+    argv = list(sys.argv[1:] if argv is None else argv)
+    subcommand = next((a for a in argv if not a.startswith("-")), None) in _SUBCOMMANDS
+    if subcommand and threading.current_thread() is threading.main_thread():
+        saved = signal.signal(signal.SIGTERM, _terminate)
+    try:
+        return _main(argv)
+    finally:
+        if saved is not None:
+            signal.signal(signal.SIGTERM, saved)
+
+
+def _main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
     first = next((a for a in argv if not a.startswith("-")), None)
     wants_help_or_version = any(a in ("-h", "--help", "--version") for a in argv) and first is None

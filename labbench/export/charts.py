@@ -77,9 +77,14 @@ def fit_text(text: str, room: float) -> tuple[str, int]:
     return text[:keep] + "..", 1
 
 
+# Axes span at most ±LIMIT: a diverging trial can end with a finite score near the float limit
+# (r2 of -1.7e308), and the padded span of such a range overflows to infinity.
+LIMIT = 1e300
+
+
 def _finite(values: Sequence[float]) -> np.ndarray:
     arr = np.asarray(values, dtype=float).ravel()
-    return arr[np.isfinite(arr)]
+    return np.clip(arr[np.isfinite(arr)], -LIMIT, LIMIT)
 
 
 def _make_axis(values: np.ndarray, log: bool, categories: Sequence[str] | None,
@@ -94,6 +99,7 @@ def _make_axis(values: np.ndarray, log: bool, categories: Sequence[str] | None,
         values = np.array([1.0, 10.0]) if log else np.array([0.0, 1.0])
     if include_zero and not log:
         values = np.append(values, 0.0)
+    values = np.clip(values, -LIMIT, LIMIT)
     lo, hi = float(values.min()), float(values.max())
     if log:
         a, b = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
@@ -139,7 +145,7 @@ def xy_chart(series: Sequence[Series], *, x_label: str, y_label: str, x_log: boo
     clip = (px0, py0, px1, py1)
 
     def to_px(v, axis: _Axis, a: float, b: float, flip: bool) -> np.ndarray:
-        v = np.asarray(v, dtype=float)
+        v = np.clip(np.asarray(v, dtype=float), -LIMIT, LIMIT)
         if axis.log:
             with np.errstate(divide="ignore", invalid="ignore"):
                 v = np.where(v > 0, np.log10(np.where(v > 0, v, 1.0)), np.nan)

@@ -192,6 +192,8 @@ def export_onnx(model: TrainedModel, path: str | os.PathLike) -> Path:
     target = Path(path)
     if not target.suffix:
         target = target.with_suffix(".onnx")
-    target.parent.mkdir(parents=True, exist_ok=True)
-    onnx.save_model(proto, str(target))
+    from labbench.fileio import atomic_path
+
+    with atomic_path(target) as tmp:      # temporary file beside it, then os.replace
+        onnx.save_model(proto, str(tmp))
     return target

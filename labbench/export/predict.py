@@ -95,12 +95,37 @@ def predict_file(bundle_path: str | os.PathLike, data_path: str | os.PathLike,
     from labbench.data.reading import read_file
     from labbench.export.bundle import load_bundle
 
+    out = output_path(bundle_path, data_path, out_path)      # checked before any work
     model = load_bundle(bundle_path)
     read = read_file(data_path)
-    out = Path(out_path) if out_path is not None else default_output(data_path)
-    if out.resolve() == Path(data_path).resolve():
-        raise DataError(f"{out}: is the data file itself; choose another output file with -o")
     table = predict_frame(model, read.frame, str(data_path), read.lines)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    table.to_csv(out, index=False)
+    write_csv(table, out)
     return out, len(table)
+
+
+def output_path(bundle_path: str | os.PathLike, data_path: str | os.PathLike,
+                out_path: str | os.PathLike | None = None) -> Path:
+    """Where ``predict`` writes: ``-o`` (a folder gets the default file name inside it), else
+    ``<data name>_predictions.csv`` beside the data; never the bundle or the data file."""
+    from labbench.fileio import check_output
+
+    out = Path(out_path) if out_path is not None else default_output(data_path)
+    if out.is_dir():
+        out = out / default_output(data_path).name
+    return check_output(out, inputs=(("model bundle", bundle_path), ("data file", data_path)),
+                        what="predictions file")
+
+
+def write_csv(table: pd.DataFrame, out: str | os.PathLike) -> Path:
+    """The table as CSV, written atomically; text cells a spreadsheet would run as a formula get a
+    leading ``'`` (labbench.fileio.csv_safe_cell)."""
+    from labbench.fileio import atomic_path, csv_safe_cell
+
+    safe = table.copy()
+    for col in safe.columns:
+        if not pd.api.types.is_numeric_dtype(safe[col]):
+            safe[col] = safe[col].map(csv_safe_cell)
+    safe.columns = [csv_safe_cell(str(c)) for c in safe.columns]
+    with atomic_path(out) as tmp:
+        safe.to_csv(tmp, index=False)
+    return Path(out)

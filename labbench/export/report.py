@@ -20,6 +20,7 @@ from typing import Any, Iterable
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
 from labbench.export import report_plots as plots
+from labbench.search.commands import param_label
 
 log = logging.getLogger("labbench.export.report")
 
@@ -151,7 +152,7 @@ def space_section(data: ReportData) -> str:
                  f"budget {esc(se.get('trials', '?'))} trial(s)"
                  f"{esc(', ' + str(se['minutes']) + ' minutes' if se.get('minutes') else '')}.</p>")
     if searched:
-        parts.append(f"<p>Searched parameters (as stored): {esc(', '.join(sorted(searched)))}.</p>")
+        parts.append(f"<p>Searched parameters: {esc(', '.join(sorted(map(param_label, searched))))}.</p>")
     return "".join(parts)
 
 
@@ -175,12 +176,14 @@ def trials_section(data: ReportData) -> str:
     if importance and importance.get("message"):
         parts.append(note(importance["message"]))
     for name in plots.searched_names(data):
-        parts.append(figure(plots.setting_chart(data, name), f"{name} against the score",
-                            f"Score of each complete trial against {name}."))
+        label = param_label(name)
+        parts.append(figure(plots.setting_chart(data, name), f"{label} against the score",
+                            f"Score of each complete trial against {label}."))
     best = plots.best_number(data)
     rows = []
     for t in data.trials[-300:]:
-        params = ", ".join(f"{k}={num(v, 3) if isinstance(v, float) else v}" for k, v in t.params.items())
+        params = ", ".join(f"{param_label(k)}={num(v, 3) if isinstance(v, float) else v}"
+                           for k, v in t.params.items())
         rows.append((t.number, t.state + (" (winner)" if t.number == best else ""), t.value,
                      t.cv_std, t.epochs_run, t.duration_s, params, t.end_reason))
     parts.append("<h3>All trials</h3>" + ("<p>The last 300 are listed.</p>" if len(data.trials) > 300 else ""))
@@ -273,9 +276,31 @@ def render_html(data: ReportData) -> str:
             f"<body><h1>labbench report: {esc(data.study_name)}</h1>{sections}</body></html>\n")
 
 
+def report_file_name(data: ReportData) -> str:
+    """``<search name>_report.html``, the name made safe for a file name (labbench.fileio)."""
+    from labbench.fileio import safe_file_name
+
+    return f"{safe_file_name(data.study_name)}_report.html"
+
+
 def default_report_path(data: ReportData) -> Path:
     folder = Path(data.out_dir) if data.out_dir else Path.cwd()
-    return folder / f"{data.study_name}_report.html"
+    return folder / report_file_name(data)
+
+
+def report_path(data: ReportData, out_path: str | os.PathLike | None) -> Path:
+    """``-o`` (a folder gets the default file name inside it), else the default place; never an
+    input of the search (its spec, its data file, its database)."""
+    from labbench.fileio import check_output
+
+    target = Path(out_path) if out_path is not None else default_report_path(data)
+    if target.is_dir():
+        target = target / report_file_name(data)
+    inputs = [("spec file", data.spec_path), ("data file", data.data.get("path"))]
+    url = data.storage or ""
+    if url.startswith("sqlite") and "///" in url:
+        inputs.append(("search's database", url.split("///", 1)[1]))
+    return check_output(target, inputs=inputs, what="report file")
 
 
 def write_report(source: Any, out_path: str | os.PathLike | None = None, *, study: str | None = None) -> Path:
@@ -284,10 +309,12 @@ def write_report(source: Any, out_path: str | os.PathLike | None = None, *, stud
     Default place: ``<search name>_report.html`` in the search's output folder (where
     ``labbench run`` writes winner.json). Returns the path written.
     """
+    from labbench.fileio import write_text
+    from labbench.search.storage import mask_password_text
+
     data = collect(source, study)
-    target = Path(out_path) if out_path is not None else default_report_path(data)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    target.write_text(render_html(data), encoding="utf-8")
+    target = report_path(data, out_path)
+    write_text(target, mask_password_text(render_html(data)))
     log.info("report written to %s", target)
     return target
 

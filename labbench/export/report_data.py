@@ -76,7 +76,9 @@ def _row(trial) -> TrialRow:
 def _output_folders(spec_path: str | None, study_name: str) -> list[Path]:
     """Where ``labbench run`` writes the winner files (its default output folder), then the spec's folder."""
     if not spec_path:
-        return [Path.cwd() / f"{study_name}_out", Path.cwd()]
+        from labbench.fileio import safe_file_name
+
+        return [Path.cwd() / f"{safe_file_name(study_name)}_out", Path.cwd()]
     src = Path(spec_path).resolve()
     return [src.parent / f"{src.stem}_out", src.parent]
 

@@ -119,5 +119,8 @@ def setting_chart(data: ReportData, name: str) -> bytes | None:
     if mark:
         series.append(Series([xs[i] for i in mark], [ys[i] for i in mark], BEST, "hollow", width=4,
                              label="winner"))
-    return xy_chart(series, x_label=name + (" (log scale)" if log else ""), y_label=metric_label(data),
+    from labbench.search.commands import param_label
+
+    return xy_chart(series, x_label=param_label(name) + (" (log scale)" if log else ""),
+                    y_label=metric_label(data),
                     x_log=log and not categorical, x_categories=cats, height=280)

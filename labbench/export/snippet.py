@@ -28,5 +28,7 @@ def write_snippet(bundle_path: str | os.PathLike, out_path: str | os.PathLike | 
     target = Path(out_path) if out_path is not None else bundle.with_name(SNIPPET_NAME)
     if target.resolve().parent != bundle.resolve().parent:
         raise ValueError("the script looks for the bundle in its own folder; write it beside the bundle")
-    target.write_text(snippet_text(bundle.name), encoding="utf-8")
+    from labbench.fileio import write_text
+
+    write_text(target, snippet_text(bundle.name))
     return target

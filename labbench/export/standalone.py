@@ -148,6 +148,15 @@ def predict(model, columns):
     return labels, proba
 
 
+def text_cell(value):
+    """A text starting with = + - @ tab or CR gets a leading ' (spreadsheet formula guard)."""
+    try:
+        float(value)
+        return value          # a plain number such as -1.5 stays a number
+    except (TypeError, ValueError):
+        return "'" + value if str(value).startswith(("=", "+", "-", "@", "\t", "\r")) else value
+
+
 def main(argv):
     if not argv or argv[0] in ("-h", "--help"):
         print(__doc__.strip().splitlines()[2])
@@ -166,7 +175,7 @@ def main(argv):
         row = [columns[meta["id_column"]][i]] if has_id else []
         row += [repr(float(label)) if proba is None else label]
         row += [repr(float(p)) for p in proba[i]] if proba is not None else []
-        writer.writerow(row)
+        writer.writerow([text_cell(c) for c in row])
     if handle is not sys.stdout:
         handle.close()
     return 0

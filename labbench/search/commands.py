@@ -23,6 +23,8 @@ from labbench.errors import SpecError
 log = logging.getLogger("labbench.search.commands")
 
 EXIT_OK, EXIT_NO_WINNER, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+# the files `labbench run` writes into its output folder
+OUTPUT_NAMES = ("winner.json", "winner.toml", "model.npz", "predict_with_numpy.py", "model.onnx")
 
 
 def add_parser(subparsers) -> None:
@@ -35,7 +37,8 @@ def add_parser(subparsers) -> None:
         "130 interrupted (Ctrl-C; run the same command again to continue).")
     run.add_argument("spec", metavar="SPEC.toml", help="the experiment's spec file")
     run.add_argument("--trials", type=int, metavar="N",
-                     help="trials to add in this run (default: [search] trials)")
+                     help="trials to add in this run (default: [search] trials); 0: no new "
+                     "trial, only check the winner of the stored trials and write its files")
     run.add_argument("--minutes", type=float, metavar="M",
                      help="stop starting trials after M minutes (default: [search] minutes)")
     run.add_argument("--workers", type=int, metavar="W",
@@ -71,11 +74,15 @@ def add_parser(subparsers) -> None:
 
 
 class _Interrupts:
-    """Ctrl-C / SIGTERM set the cancel event (first time) or raise KeyboardInterrupt (again)."""
+    """Ctrl-C / SIGTERM set the cancel event (first time) or raise KeyboardInterrupt (again).
+
+    Once the search is over (``immediate``), the first one raises KeyboardInterrupt at once: the
+    trials are all stored, and nobody waits for a refit after pressing Ctrl-C."""
 
     def __init__(self, cancel: threading.Event, say):
         self.cancel, self.say = cancel, say
         self.saved: dict[int, Any] = {}
+        self.immediate = False
 
     def __enter__(self):
         if threading.current_thread() is threading.main_thread():
@@ -84,7 +91,8 @@ class _Interrupts:
         return self
 
     def _handle(self, signum, frame) -> None:
-        if self.cancel.is_set():
+        if self.cancel.is_set() or self.immediate:
+            self.cancel.set()
             raise KeyboardInterrupt
         self.cancel.set()
         self.say("stopping: the trials in flight end after their current epoch "
@@ -101,10 +109,14 @@ def out_dir(spec, given: str | None) -> Path:
     if spec.source_path:
         src = Path(spec.source_path).resolve()
         return src.parent / f"{src.stem}_out"
-    return Path.cwd() / f"{spec.study_name()}_out"
+    from labbench.fileio import safe_file_name
+
+    return Path.cwd() / f"{safe_file_name(spec.study_name())}_out"
 
 
 def run_command(args) -> int:
+    from labbench.fileio import check_out_dir, check_output
+    from labbench.search import events
     from labbench.search.progress import ProgressLine
     from labbench.search.runner import SearchRunner
     from labbench.search.spec import load_spec
@@ -112,27 +124,84 @@ def run_command(args) -> int:
 
     spec = load_spec(args.spec)
     heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
+    if args.workers is not None:
+        _check_workers(spec, args.workers)
     target = out_dir(spec, args.out)
+    # checked before the search starts, not after it ran for hours
+    inputs = (("spec file", args.spec), ("data file", spec.data.path))
+    check_out_dir(target, inputs=inputs)
+    for name in OUTPUT_NAMES:        # e.g. `labbench run winner.toml --out .`
+        check_output(target / name, inputs=inputs, what="output folder", option="--out")
+    if args.trials == 0:
+        if args.fresh:
+            raise SpecError("--trials 0 with --fresh: that would delete the stored search and run "
+                            "no trial; drop one of them")
+        return _winner_only(args, spec, target)
     progress = ProgressLine(sys.stderr, quiet=args.quiet)
-    runner = SearchRunner(spec, progress, storage=args.storage, trials=args.trials,
+    ended: dict[str, int] = {}          # this run's trials by how they ended
+
+    def emit(event) -> None:
+        if isinstance(event, events.TrialEnded):
+            ended[event.state] = ended.get(event.state, 0) + 1
+        progress(event)
+
+    runner = SearchRunner(spec, emit, storage=args.storage, trials=args.trials,
                           minutes=args.minutes, workers=args.workers, fresh=args.fresh,
                           heartbeat=heartbeat)
     cancel = threading.Event()
 
     def say(text: str) -> None:
-        progress(__import__("labbench.search.events", fromlist=["Notice"]).Notice(text, "info"))
+        progress(events.Notice(text, "info"))
 
-    with _Interrupts(cancel, say):
-        outcome = runner.run(cancel)
-    if outcome.cancelled:
-        print(f"labbench: interrupted; {outcome.trials_run} trial(s) finished in this run are "
-              f"stored in {outcome.storage}; run the same command again to continue",
-              file=sys.stderr)
-        return EXIT_INTERRUPTED
-    if outcome.best_number is None:
-        print(f"labbench: no trial completed, so there is no winner; see `labbench show "
-              f"{args.spec}` for why the trials failed", file=sys.stderr)
-        return EXIT_NO_WINNER
+    with _Interrupts(cancel, say) as interrupts:
+        try:
+            outcome = runner.run(cancel)
+        except KeyboardInterrupt:          # a second Ctrl-C while the trials were stopping
+            progress.close()
+            print(interrupted_text(ended, None, args.spec, after_search=False), file=sys.stderr)
+            return EXIT_INTERRUPTED
+        except Exception as exc:
+            from labbench.search.storage_problems import storage_error
+
+            raise storage_error(exc, _shown_url(spec, args.storage)) from None
+        if outcome.cancelled or cancel.is_set():
+            # also a Ctrl-C that came after the last trial: stop now, nothing is refit or written
+            progress.close()
+            print(interrupted_text(ended, outcome.storage, args.spec,
+                                   after_search=not outcome.cancelled), file=sys.stderr)
+            return EXIT_INTERRUPTED
+        interrupts.immediate = True
+        if outcome.best_number is None:
+            print(f"labbench: no trial completed, so there is no winner; see `labbench show "
+                  f"{args.spec}` for why the trials failed", file=sys.stderr)
+            return EXIT_NO_WINNER
+        try:
+            return _finish(spec, runner.study, runner.prepared, target, progress)
+        except KeyboardInterrupt:
+            progress.close()
+            print(f"labbench: interrupted while checking the winner; the trials are stored in "
+                  f"{outcome.storage}, but the winner's files in {target} are not complete; "
+                  f"`labbench run {args.spec} --trials 0` writes them without new trials",
+                  file=sys.stderr)
+            return EXIT_INTERRUPTED
+
+
+def _check_workers(spec, workers: int) -> None:
+    import dataclasses
+
+    from labbench.search.limits import MAX_WORKERS, check_memory
+
+    if workers > MAX_WORKERS:
+        raise SpecError(f"--workers: {workers} is more than labbench allows ({MAX_WORKERS}; one "
+                        f"process per worker); give a whole number from 1 to {MAX_WORKERS}")
+    if workers >= 1:
+        check_memory(dataclasses.replace(spec, search=dataclasses.replace(spec.search,
+                                                                          workers=workers)))
+
+
+def _finish(spec, study, prepared, target: Path, progress) -> int:
+    """Refit, hold-out, seed spread, winner files, bundle/script/ONNX; prints the summary."""
+    from labbench.export import export_all
     from labbench.search import events
     from labbench.search.winner import finalize
 
@@ -143,14 +212,60 @@ def run_command(args) -> int:
             files.extend(event.files)
         progress(event)
 
-    summary, model = finalize(spec, runner.study, runner.prepared, emit=collect, out_dir=target)
-    from labbench.export import export_all
-
+    summary, model = finalize(spec, study, prepared, emit=collect, out_dir=target)
     progress(events.FinalStage("files", f"Saving the trained winner (bundle, script, ONNX) to {target}"))
     files.extend(str(p) for p in export_all(model, summary, target))
     progress.close()
     print(winner_text(summary, files))
     return EXIT_OK
+
+
+def _winner_only(args, spec, target: Path) -> int:
+    """``--trials 0``: no new trial; check the winner of the stored trials and write its files."""
+    from labbench.search.progress import ProgressLine
+
+    study, _ = open_for_reading(args.spec, None, args.storage)
+    progress = ProgressLine(sys.stderr, quiet=args.quiet)
+    cancel = threading.Event()
+    with _Interrupts(cancel, lambda text: None) as interrupts:
+        interrupts.immediate = True
+        try:
+            return _finish(spec, study, None, target, progress)
+        except KeyboardInterrupt:
+            progress.close()
+            print(f"labbench: interrupted; the winner's files in {target} are not complete",
+                  file=sys.stderr)
+            return EXIT_INTERRUPTED
+
+
+def interrupted_text(ended: dict[str, int], storage: str | None, spec_path: str, *,
+                     after_search: bool) -> str:
+    """The line ``labbench run`` prints on Ctrl-C: this run's trials by how they ended."""
+    cancelled = ended.get("cancelled", 0)
+    done = {k: n for k, n in ended.items() if k != "cancelled" and n}
+    finished = sum(done.values())
+    parts = ", ".join(f"{n} {k}" for k, n in done.items())
+    where = f" in {storage}" if storage else ""
+    text = f"labbench: interrupted; {finished} trial(s) of this run finished"
+    text += f" ({parts})" if parts else ""
+    if cancelled:
+        text += (f" and {cancelled} were cancelled (stored as failed, 'cancelled by the user', "
+                 "never counted as results)")
+    text += f"; they are stored{where}"
+    if after_search:
+        return (text + "; the interrupt came after the last trial, so the winner was not refit "
+                f"and no file was written: `labbench run {spec_path} --trials 0` does that "
+                "without new trials")
+    return text + "; run the same command again to continue"
+
+
+def _shown_url(spec, storage: str | None) -> str:
+    from labbench.search.storage import mask_url, resolve_url
+
+    try:
+        return mask_url(resolve_url(spec, storage))
+    except Exception:
+        return "the storage"
 
 
 def _fmt(value) -> str:
@@ -232,10 +347,13 @@ def open_for_reading(source: str, study: str | None, storage: str | None):
         names = [s.study_name for s in optuna.get_all_study_summaries(storage=rdb,
                                                                       include_best_trial=False)]
     except Exception as exc:
-        from labbench.search.storage import mask_password_text
+        from labbench.search.storage_problems import first_line, storage_error
 
-        raise SpecError(f"storage {shown}: cannot read it ({mask_password_text(str(exc).splitlines()[0])})"
-                        "; check the URL") from None
+        error = storage_error(exc, shown)
+        if isinstance(error, SpecError):
+            raise error from None
+        raise SpecError(f"storage {shown}: cannot read it ({first_line(exc)}); check the URL") \
+            from None
     if name is None:
         if len(names) != 1:
             raise SpecError(f"storage {shown}: holds {len(names)} searches "
@@ -257,6 +375,14 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
+def param_label(name: str) -> str:
+    """A searched parameter as the user knows it: the units of hidden layer i are stored as the
+    parameter ``units_i`` and shown as ``layer_i_units``; ``l2_on`` is the l2 penalty's switch."""
+    if name.startswith("units_") and name[6:].isdigit():
+        return f"layer_{name[6:]}_units"
+    return {"l2_on": "l2_used"}.get(name, name)
+
+
 def trials_table(study) -> str:
     """The text ``labbench show`` prints for a study (also handy in tests)."""
     from labbench.search.progress import duration, number
@@ -267,7 +393,7 @@ def trials_table(study) -> str:
     metric = attrs.get("metric", "value")
     direction = attrs.get("direction", study.direction.name.lower())
     params = list(attrs.get("searched") or sorted({p for t in trials for p in t.params}))
-    header = ["trial", "state", metric, "±", "ran", "time"] + params
+    header = ["trial", "state", metric, "±", "ran", "time"] + [param_label(p) for p in params]
     rows = []
     for t in trials:
         ua = t.user_attrs
@@ -292,7 +418,7 @@ def trials_table(study) -> str:
         std = best.user_attrs.get("cv_std")
         spread = f" ± {number(std)}" if std is not None else ""
         lines.append(f"best: trial {best.number}, {metric} {number(best.value)}{spread} over "
-                     f"{len(folds)} folds; " + ", ".join(f"{k}={_cell(v)}" for k, v in
+                     f"{len(folds)} folds; " + ", ".join(f"{param_label(k)}={_cell(v)}" for k, v in
                                                       best.params.items()))
     else:
         lines.append("best: none yet (no complete trial)")

@@ -26,6 +26,8 @@ import tomli_w
 
 from labbench.errors import SpecError
 from labbench.search.defaults import default_space_dict
+from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
+                                    MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
 
 TASKS = ("regression", "binary", "multiclass")
@@ -38,6 +40,7 @@ DECIMALS = (".", ",")
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
 PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
+
 
 _SECTIONS = ("data", "evaluation", "search", "space")
 
@@ -95,8 +98,14 @@ class Spec:
     def base_dir(self) -> str:
         return str(Path(self.source_path).resolve().parent) if self.source_path else os.getcwd()
 
-    def to_dict(self, base_dir: str | os.PathLike | None = None) -> dict[str, Any]:
-        """TOML-ready; the data path relative to ``base_dir`` (default: the spec's folder)."""
+    def to_dict(self, base_dir: str | os.PathLike | None = None, *,
+                keep_password: bool = False) -> dict[str, Any]:
+        """TOML-ready; the data path relative to ``base_dir`` (default: the spec's folder).
+
+        A password in ``[search] storage`` is left out unless ``keep_password`` (only the user's
+        own spec file keeps it, see ``save_spec``): the text goes into files labbench writes
+        (winner.toml, the spec stored with the search, the report). Without it in the URL,
+        PostgreSQL's client library takes it from PGPASSWORD or ~/.pgpass."""
         base = Path(base_dir if base_dir is not None else self.base_dir()).resolve()
         d, e, s = self.data, self.evaluation, self.search
         data: dict[str, Any] = {"path": _relative(d.path, base), "target": d.target}
@@ -129,19 +138,20 @@ class Spec:
             search["minutes"] = s.minutes
         search.update(sampler=s.sampler, pruner=s.pruner, workers=s.workers)
         if s.storage:
-            search["storage"] = s.storage
+            search["storage"] = s.storage if keep_password else without_password(s.storage)
         if s.name:
             search["name"] = s.name
         return {"data": data, "evaluation": evaluation, "search": search,
                 "space": self.space.to_dict()}
 
-    def to_toml(self, base_dir: str | os.PathLike | None = None) -> str:
-        return tomli_w.dumps(self.to_dict(base_dir))
+    def to_toml(self, base_dir: str | os.PathLike | None = None, *,
+                keep_password: bool = False) -> str:
+        return tomli_w.dumps(self.to_dict(base_dir, keep_password=keep_password))
 
     # ---- validated copies (command-line overrides, the window's edits)
 
     def _rebuilt(self, section: str, changes: Mapping[str, Any]) -> "Spec":
-        d = self.to_dict()
+        d = self.to_dict(keep_password=True)
         for key, value in changes.items():
             if value is None:
                 d[section].pop(key, None)
@@ -166,6 +176,21 @@ class Spec:
         spec = dataclasses.replace(self, space=space)
         _check_sampler_space(spec.search, space, self.source_path)
         return spec
+
+
+def without_password(url: str) -> str:
+    """The database URL with any password left out (``user:secret@host`` -> ``user@host``)."""
+    try:
+        from sqlalchemy.engine import make_url
+
+        parsed = make_url(url)
+        if parsed.password is None:
+            return url
+        return parsed._replace(password=None).render_as_string(hide_password=False)
+    except Exception:  # not parseable: drop anything that looks like :password@
+        import re
+
+        return re.sub(r"(://[^:/@\s]*):[^@\s]*@", r"\1@", url)
 
 
 def _relative(path: str, base: Path) -> str:
@@ -206,10 +231,14 @@ def loads_spec(text: str, base_dir: str | os.PathLike, source: str | None = None
 
 
 def save_spec(spec: Spec, path: str | os.PathLike) -> Spec:
-    """Write the spec to ``path`` (data path relative to its folder); returns it with that source."""
+    """Write the spec to ``path`` (data path relative to its folder, atomically); returns it with
+    that source. This is the user's spec file, so a password in its storage URL is kept."""
+    from labbench.fileio import write_text
+
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
-    p.write_text(spec.to_toml(p.resolve().parent), encoding="utf-8")
+    # the user's own spec file: it keeps a password written in its storage URL
+    write_text(p, spec.to_toml(p.resolve().parent, keep_password=True))
     return dataclasses.replace(spec, source_path=str(p))
 
 
@@ -247,12 +276,18 @@ class _Section:
             raise self.fail(key, f"{show(v)} is not allowed; write a non-empty text in quotes")
         return v
 
-    def integer(self, key: str, default: Any, *, least: int) -> Any:
+    def integer(self, key: str, default: Any, *, least: int, most: int | None = None,
+                why: str = "") -> Any:
         if key not in self.d:
             return default
         v = self.d[key]
         if isinstance(v, bool) or not isinstance(v, int) or v < least:
-            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}")
+            rule = f" (at most {most})" if most is not None else ""
+            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}{rule}")
+        if most is not None and v > most:
+            raise self.fail(key, f"{show(v)} is more than labbench allows ({most}"
+                            + (f"; {why}" if why else "") + f"); write a whole number from "
+                            f"{least} to {most}")
         return v
 
     def number(self, key: str, default: Any, *, above: float, below: float | None = None) -> Any:
@@ -321,12 +356,15 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
 
     es = _Section(d.get("evaluation", {}), "evaluation",
                   ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
-    spread = es.integer("seed_spread", 5, least=0)
+    spread = es.integer("seed_spread", 5, least=0, most=MAX_SEED_SPREAD,
+                        why="each seed retrains every fold of the winner")
     if spread == 1:
         raise es.fail("seed_spread", "1 is not allowed; write 0 to skip the check or 2 or more seeds")
     evaluation = EvaluationSpec(
-        folds=es.integer("folds", 5, least=2),
-        repeats=es.integer("repeats", 1, least=1),
+        folds=es.integer("folds", 5, least=2, most=MAX_FOLDS,
+                         why="5 or 10 folds is common practice"),
+        repeats=es.integer("repeats", 1, least=1, most=MAX_REPEATS,
+                           why="every repeat trains all folds again in every trial"),
         holdout=es.number("holdout", 0.2, above=0.0, below=0.9),
         seed=es.integer("seed", 0, least=0),
         metric=es.text("metric"),
@@ -334,6 +372,10 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
     )
     if evaluation.metric is not None:
         check_metric(evaluation.metric, data.task, source)
+    if evaluation.folds * evaluation.repeats > MAX_MODELS:
+        raise es.fail("repeats", f"{evaluation.folds} folds × {evaluation.repeats} repeats = "
+                      f"{evaluation.folds * evaluation.repeats} networks per trial, more than "
+                      f"{MAX_MODELS}; lower folds or repeats")
 
     ss = _Section(d.get("search", {}), "search",
                   ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
@@ -350,7 +392,8 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         minutes=minutes,
         sampler=ss.text("sampler", "tpe", choices=SAMPLERS),
         pruner=ss.text("pruner", "median", choices=PRUNERS),
-        workers=ss.integer("workers", 1, least=1),
+        workers=ss.integer("workers", 1, least=1, most=MAX_WORKERS,
+                           why="one process per worker; more workers than CPU cores only share them"),
         storage=storage,
         name=ss.text("name"),
     )
@@ -363,7 +406,9 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
                          "with one line per setting")
     space = SearchSpace.from_dict(space_raw, source)
     _check_sampler_space(search, space, source)
-    return Spec(data, evaluation, search, space, source)
+    spec = Spec(data, evaluation, search, space, source)
+    check_memory(spec)
+    return spec
 
 
 def _number_format(ds: _Section) -> dict[str, Any]:

@@ -25,13 +25,13 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from labbench.errors import LabbenchError
+from labbench.errors import DivergenceError, LabbenchError
 from labbench.search import events
 from labbench.search.insight import (compare_cv_holdout, counts_by_state, fmt,
                                      lead_inside_spread, param_importance, spread_stats)
 from labbench.search.prepare import Prepared, prepare
 from labbench.search.space import settings_to_config
-from labbench.search.spec import Spec, save_spec
+from labbench.search.spec import Spec, without_password
 
 log = logging.getLogger("labbench.search.winner")
 
@@ -64,6 +64,40 @@ def pick_winner(trials: list[Any], direction: str) -> tuple[Any, Any | None]:
     key = _settings_key(best)
     runner_up = next((t for t in ranked[1:] if _settings_key(t) != key), None)
     return best, runner_up
+
+
+MAX_REFITS = 3       # trials tried for the refit before giving up (the best, then two fallbacks)
+
+
+def ranked_candidates(trials: list[Any], direction: str) -> list[Any]:
+    """Complete trials best first (ties to the earlier), one per distinct settings."""
+    done = [t for t in trials if t.value is not None and math.isfinite(t.value)]
+    sign = -1.0 if direction == "maximize" else 1.0
+    seen: set[str] = set()
+    ranked = []
+    for t in sorted(done, key=lambda t: (sign * t.value, t.number)):
+        key = _settings_key(t)
+        if key not in seen:
+            seen.add(key)
+            ranked.append(t)
+    return ranked
+
+
+def fallback_text(failed: Any, nxt: Any, reason: str, metric: str) -> str:
+    return (f"The refit of trial {failed.number} (CV {metric} {fmt(failed.value)}) on all training "
+            f"rows diverged ({reason.rstrip('.')}); trial {nxt.number}, the next best with "
+            f"different settings (CV {metric} {fmt(nxt.value)}), is refit instead.")
+
+
+def refit_error(diverged: list[tuple[Any, str]], n_candidates: int) -> DivergenceError:
+    numbers = ", ".join(str(t.number) for t, _ in diverged)
+    last = diverged[-1][1].rstrip(".")
+    more = "" if n_candidates <= len(diverged) else \
+        f" (labbench tries the best {MAX_REFITS} with different settings)"
+    return DivergenceError(
+        f"the refit on all training rows diverged for trial(s) {numbers}{more}, so there is no "
+        f"winner model (last: {last}); lower the learning_rate range in [space] (and check that "
+        f"the inputs are scaled, [data] scaling), then run the search again")
 
 
 def _settings_key(trial: Any) -> str:
@@ -159,6 +193,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     direction, metric, seed = prepared.direction, prepared.metric, spec.evaluation.seed
     trials = study.get_trials(deepcopy=False)
     complete = [t for t in trials if t.state == TrialState.COMPLETE]
+    candidates = ranked_candidates(complete, direction)
     best, runner_up = pick_winner(complete, direction)
     if best is None:
         raise LabbenchError(f"study {study.study_name}: no complete trial yet, so there is no "
@@ -170,21 +205,42 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     if study.user_attrs.get("metric") not in (None, metric):
         warnings.append(f"The search ranked trials by {study.user_attrs['metric']}, but the spec "
                         f"now asks for {metric}; the hold-out is scored with {metric}.")
-    settings = dict(best.user_attrs.get("settings") or spec.space.settings_from_params(best.params))
+
+    def stage(name: str, text: str) -> None:
+        log.info("%s: %s", name, text)
+        emit(events.FinalStage(stage=name, text=text))
+
+    # The refit: the best trial first; when its refit diverges, the next best with different
+    # settings (at most MAX_REFITS tries), with a warning naming both trials.
+    diverged: list[tuple[Any, str]] = []
+    for attempt, best in enumerate(candidates[:MAX_REFITS]):
+        settings = dict(best.user_attrs.get("settings")
+                        or spec.space.settings_from_params(best.params))
+        stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
+        try:
+            pre, weights, target_scaler = refit(prepared, settings, seed=seed,
+                                                scaling=spec.data.scaling, dtype=dtype)
+        except DivergenceError as exc:
+            diverged.append((best, str(exc)))
+            if attempt + 1 < min(len(candidates), MAX_REFITS):
+                nxt = candidates[attempt + 1]
+                text = fallback_text(best, nxt, str(exc), metric)
+                warnings.append(text)
+                log.warning("%s", text)
+                emit(events.Notice(text, "warning"))
+            continue
+        break
+    else:
+        raise refit_error(diverged, len(candidates))
+    if diverged:
+        later = candidates[candidates.index(best) + 1:]
+        runner_up = later[0] if later else None
     fold_scores = [float(s) for s in best.user_attrs.get("fold_scores", [])]
     cv_mean = float(best.value)
     cv_std = best.user_attrs.get("cv_std")
     if cv_std is None:              # sample standard deviation across folds, as the trials store it
         cv_std = float(np.std(fold_scores, ddof=1)) if len(fold_scores) > 1 else 0.0
     cv_std = float(cv_std)
-
-    def stage(name: str, text: str) -> None:
-        log.info("%s: %s", name, text)
-        emit(events.FinalStage(stage=name, text=text))
-
-    stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
-    pre, weights, target_scaler = refit(prepared, settings, seed=seed, scaling=spec.data.scaling,
-                                        dtype=dtype)
     table = prepared.table
     model = TrainedModel(preprocessor=pre, weights=weights, task=prepared.task, target=table.target,
                          features=tuple(table.features), kinds=dict(table.kinds),
@@ -237,6 +293,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         "runner_up": None if runner_up is None else {
             "trial_number": int(runner_up.number), "value": float(runner_up.value),
             "lead": lead["lead"], "inside_spread": lead["inside"], "text": lead["text"]},
+        "refit_fallback": [{"trial_number": int(t.number), "reason": why} for t, why in diverged],
         "params": {k: _plain(v) for k, v in best.params.items()},
         "settings": settings,
         "trials": counts_by_state(trials),
@@ -271,14 +328,25 @@ def _plain(v: Any) -> Any:
 
 
 def write_winner_files(spec: Spec, summary: Mapping[str, Any], out_dir: Path) -> list[str]:
+    """winner.json and winner.toml in ``out_dir``, each written atomically (labbench.fileio).
+
+    winner.toml never holds a storage password (``Spec.to_toml`` leaves it out): the database
+    client takes it from PGPASSWORD or ~/.pgpass."""
+    from labbench.fileio import write_text
+    from labbench.search.storage import mask_password_text
+
+    out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     json_path, toml_path = out_dir / "winner.json", out_dir / "winner.toml"
-    json_path.write_text(json.dumps(_plain(summary), indent=2, allow_nan=False) + "\n",
-                         encoding="utf-8")
-    fixed = save_spec(winner_spec(spec, summary["settings"]), toml_path)
+    write_text(json_path, mask_password_text(
+        json.dumps(_plain(summary), indent=2, allow_nan=False)) + "\n")
+    fixed = dataclasses.replace(winner_spec(spec, summary["settings"]), source_path=str(toml_path))
     header = (f"# The winning settings of search {summary['study_name']!r} (trial "
               f"{summary['trial_number']}), every setting fixed.\n"
               f"# CV {summary['metric']} {fmt(summary['cv_mean'])} ± {fmt(summary['cv_std'])}, "
               f"hold-out {fmt(summary['holdout_score'])}. Run it as-is: labbench run winner.toml\n")
-    toml_path.write_text(header + fixed.to_toml(out_dir.resolve()), encoding="utf-8")
+    if spec.search.storage and without_password(spec.search.storage) != spec.search.storage:
+        header += ("# The storage password is not written here; the database client reads it "
+                   "from PGPASSWORD or ~/.pgpass.\n")
+    write_text(toml_path, mask_password_text(header + fixed.to_toml(out_dir.resolve())))
     return [str(json_path), str(toml_path)]

@@ -112,3 +112,52 @@ def test_bad_bundle_and_same_output_file(setup, capsys):
     assert "not a labbench model bundle" in _stderr_lines(capsys)[0]
     assert main(["predict", str(bundle), str(data), "-o", str(data)]) == 2
     assert "is the data file itself" in _stderr_lines(capsys)[0]
+
+
+def test_output_onto_the_bundle_is_refused_and_the_bundle_survives(setup, capsys):
+    """Issue 9, finding 6: ``predict model.npz x.csv -o model.npz`` overwrote the model."""
+    _, bundle, rows, tmp = setup
+    data = _csv(tmp, rows)
+    before = bundle.read_bytes()
+    assert main(["predict", str(bundle), str(data), "-o", str(bundle)]) == 2
+    lines = _stderr_lines(capsys)
+    assert len(lines) == 1 and "is the model bundle itself" in lines[0] and "-o" in lines[0]
+    assert bundle.read_bytes() == before
+    # the same file under another spelling (a relative path through a subfolder)
+    (tmp / "sub").mkdir()
+    assert main(["predict", str(bundle), str(data), "-o", str(tmp / "sub" / ".." / "model.npz")]) == 2
+    assert bundle.read_bytes() == before
+
+
+def test_output_folder_gets_the_default_name_inside(setup, capsys):
+    _, bundle, rows, tmp = setup
+    data = _csv(tmp, rows)
+    folder = tmp / "preds"
+    folder.mkdir()
+    assert main(["predict", str(bundle), str(data), "-o", str(folder)]) == 0
+    assert (folder / "rows_predictions.csv").is_file()
+    assert "Traceback" not in capsys.readouterr().err
+    assert [p.name for p in folder.iterdir()] == ["rows_predictions.csv"]   # no temporary left
+
+
+def test_formula_cells_are_neutralised_and_numbers_kept(trained, tmp_path, capsys):
+    """OWASP "CSV Injection": a cell starting with = + - @ tab or CR gets a leading quote, so a
+    spreadsheet shows it as text; plain numbers such as -1.5 stay numbers."""
+    t = trained["regression"]
+    bundle = save_bundle(t["model"], tmp_path / "model.npz")
+    rows = t["frame"].iloc[t["holdout"][:6]].reset_index(drop=True)
+    rows["row_id"] = ["=1+2", "+cmd", "-1.5", "@SUM(A1)", "\tx", "plain"]
+    data = _csv(tmp_path, rows)
+    assert main(["predict", str(bundle), str(data)]) == 0
+    out = pd.read_csv(tmp_path / "rows_predictions.csv", dtype={"row_id": str}, keep_default_na=False)
+    assert out["row_id"].tolist() == ["'=1+2", "'+cmd", "-1.5", "'@SUM(A1)", "'\tx", "plain"]
+    assert np.isfinite(out["predicted_outcome"].to_numpy(dtype=float)).all()
+    assert (out["predicted_outcome"] < 0).any()          # negative predictions written as numbers
+
+
+def test_an_output_below_a_file_is_one_line(setup, capsys):
+    _, bundle, rows, tmp = setup
+    data = _csv(tmp, rows)
+    assert main(["predict", str(bundle), str(data), "-o", str(data / "x.csv")]) == 2
+    lines = _stderr_lines(capsys)
+    assert len(lines) == 1 and "is a file, so nothing can be written below it" in lines[0]

@@ -138,3 +138,86 @@ def test_report_from_an_open_study(search, tmp_path):
     study = optuna.load_study(study_name="iris", storage=f"sqlite:///{(search / 'iris.db').as_posix()}")
     path = write_report(study, tmp_path / "open.html")
     assert _parse(path.read_text()).sections == list(SECTIONS)
+
+
+# -- issue 9: outputs never onto inputs, unsafe names, searches with failed and diverged trials --
+
+
+def test_report_into_a_folder_and_never_onto_an_input(search, tmp_path, capsys):
+    folder = tmp_path / "reports"
+    folder.mkdir()
+    assert main(["report", str(search / "iris.toml"), "-o", str(folder)]) == 0
+    assert (folder / "iris_report.html").is_file()
+    assert "Traceback" not in capsys.readouterr().err
+    for victim in (search / "iris.toml", search / "iris.csv", search / "iris.db"):
+        before = victim.read_bytes()
+        assert main(["report", str(search / "iris.toml"), "-o", str(victim)]) == 2
+        err = capsys.readouterr().err.strip().splitlines()
+        assert len(err) == 1 and "never overwrites an input" in err[0], err
+        assert victim.read_bytes() == before
+
+
+def _study(name: str, direction: str, metric: str, spec_path=None):
+    import optuna
+
+    optuna.logging.set_verbosity(optuna.logging.WARNING)
+    study = optuna.create_study(direction=direction, study_name=name)
+    study.set_user_attr("metric", metric)
+    study.set_user_attr("direction", direction)
+    study.set_user_attr("searched", ["learning_rate", "activation"])
+    study.set_user_attr("log_scaled", ["learning_rate"])
+    if spec_path is not None:
+        study.set_user_attr("spec_path", str(spec_path))
+    return study
+
+
+def _add(study, state, value=None, lr=0.01, act="relu", **attrs):
+    from optuna.distributions import CategoricalDistribution, FloatDistribution
+    from optuna.trial import create_trial
+
+    dist = {"learning_rate": FloatDistribution(1e-4, 10.0, log=True),
+            "activation": CategoricalDistribution(["relu", "tanh"])}
+    study.add_trial(create_trial(state=state, value=value, distributions=dist, user_attrs=attrs,
+                                 params={"learning_rate": lr, "activation": act}))
+
+
+def test_a_search_name_with_dot_dot_stays_inside_the_output_folder(tmp_path):
+    from optuna.trial import TrialState
+
+    study = _study("../../escape/x", "minimize", "rmse", spec_path=tmp_path / "exp.toml")
+    _add(study, TrialState.COMPLETE, 1.0, fold_scores=[1.0, 1.0], cv_std=0.0)
+    path = write_report(study)
+    assert path.parent == tmp_path / "exp_out" and path.is_file()
+    assert path.name == "escape_x_report.html"
+    assert "../../escape/x" in path.read_text()      # the name inside the report is unchanged
+
+
+def test_report_draws_a_search_with_failed_and_diverged_trials(tmp_path):
+    """Issue 9, finding 4: the report crashed on a search whose trials diverged. A diverging
+    network can end with a finite but enormous score (r2 near -1.8e308) or loss; the charts must
+    still draw, and failed trials without any curve or score are listed, not drawn."""
+    from optuna.trial import TrialState
+
+    study = _study("mixed", "maximize", "r2")
+    curve = {"epoch": [1, 2, 3], "train_loss": [3.0, 2.0, 1.0], "val_loss": [3.0, 2.0, 1.5],
+             "val_metric": [0.1, 0.3, 0.5]}
+    _add(study, TrialState.COMPLETE, 0.5, curve=curve, fold_scores=[0.49, 0.51], cv_std=0.014)
+    _add(study, TrialState.COMPLETE, -1.75e308, lr=5.0, act="tanh", fold_scores=[-1.75e308] * 2,
+         curve={"epoch": [1, 2], "train_loss": [1e30, 1.7e308], "val_loss": [1e300, 1.75e308],
+                "val_metric": [-1e300, -1.75e308]})
+    _add(study, TrialState.FAIL, lr=9.0, end_reason="training diverged at epoch 2: the training "
+         "loss of model 1 of 3 became nan", fold_scores=[], epochs_run=2,
+         curve={"epoch": [1, 2], "train_loss": [1e38, None], "val_loss": [None, None],
+                "val_metric": [None, None]})
+    _add(study, TrialState.FAIL, lr=3.0, fold_scores=[float("nan"), 0.2], cv_std=float("nan"),
+         end_reason="the metric is not a finite number on every fold")
+    _add(study, TrialState.FAIL, lr=2.0)                       # a worker died: no attrs at all
+    _add(study, TrialState.PRUNED, 0.1, lr=0.5, curve=curve)
+    path = write_report(study, tmp_path / "mixed.html")
+    text = path.read_text()
+    parsed = _parse(text)
+    assert parsed.sections == list(SECTIONS) and parsed.bad == []
+    assert len(parsed.images) >= 2
+    for src in parsed.images:
+        decode(base64.b64decode(src.split(",", 1)[1], validate=True))
+    assert "training diverged at epoch 2" in text and text.count("failed") >= 3

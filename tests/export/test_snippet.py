@@ -70,3 +70,22 @@ def test_script_to_screen_and_help(trained, tmp_path):
     assert lines[0] == ["predicted_outcome", "proba_class_0", "proba_class_1", "proba_class_2"]
     assert [r[0] for r in lines[1:]] == list(model.predict(rows))
     assert _run(script, "--help", cwd=tmp_path).stdout.startswith("Usage:")
+
+
+def test_script_guards_formula_cells_like_labbench_predict(trained, tmp_path):
+    """OWASP "CSV Injection": the same leading-quote rule as ``labbench predict``."""
+    from labbench.cli import main
+
+    t = trained["binary"]
+    rows = t["frame"].iloc[t["holdout"][:4]].reset_index(drop=True)
+    rows["row_id"] = ["=HYPERLINK(1)", "-2.5", "@x", "ok"]
+    data = tmp_path / "rows.csv"
+    rows.to_csv(data, index=False)
+    script = write_snippet(save_bundle(t["model"], tmp_path / "model.npz"))
+    done = _run(script, data, tmp_path / "script.csv", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    assert main(["predict", str(tmp_path / "model.npz"), str(data), "-o",
+                 str(tmp_path / "labbench.csv")]) == 0
+    script_ids = [r[0] for r in csv.reader(open(tmp_path / "script.csv", newline=""))][1:]
+    labbench_ids = [r[0] for r in csv.reader(open(tmp_path / "labbench.csv", newline=""))][1:]
+    assert script_ids == labbench_ids == ["'=HYPERLINK(1)", "-2.5", "'@x", "ok"]

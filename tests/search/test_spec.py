@@ -164,3 +164,43 @@ def test_target_scaling_defaults_to_standard_and_round_trips(tmp_path):
         spec = old.with_data(target_scaling=method)
         assert tomllib.loads(spec.to_toml())["data"]["target_scaling"] == method
         assert loads_spec(spec.to_toml(tmp_path), tmp_path) == spec
+# -- issue 9: limits, with a memory estimate ------------------------------------------------------
+
+
+def test_limits_stop_specs_that_would_hang_before_anything_runs():
+    """``repeats = 100000`` and ``seed_spread = 1000000`` were accepted and then hung."""
+    import time
+
+    from labbench.search.spec import loads_spec
+
+    for key, value in (("repeats", 100_000), ("seed_spread", 1_000_000), ("folds", 10_000)):
+        text = f'[data]\npath = "x.csv"\ntarget = "y"\n[evaluation]\n{key} = {value}\n'
+        started = time.perf_counter()
+        with pytest.raises(SpecError, match=rf"evaluation\.{key}: {value} is more than"):
+            loads_spec(text, ".", "s.toml")
+        assert time.perf_counter() - started < 5
+
+
+def test_memory_estimate_names_the_key_to_lower():
+    from labbench.search.limits import check_memory, memory_estimate
+    from labbench.search.spec import loads_spec
+
+    text = ('[data]\npath = "x.csv"\ntarget = "y"\n[evaluation]\nfolds = 5\nseed_spread = {s}\n'
+            "[search]\nworkers = {w}\n[space]\nhidden_layers = 3\n"
+            "hidden_units = {{ low = 8, high = 2048, log = true }}\n")
+    spec = loads_spec(text.format(s=0, w=1), ".", "s.toml")
+    est = memory_estimate(spec)
+    # 2 hidden-to-hidden blocks of 2048 × 2049 float32 weights, 4 arrays each (weights, gradient,
+    # Adam's two moments), 5 fold networks: arithmetic done by hand
+    assert est["per_net"] == 4 * 4 * 2 * 2048 * 2049
+    assert est["trial"] == est["per_net"] * 5
+    gb = 1024 ** 3
+    check_memory(spec, available=64 * gb)                       # fits
+    with pytest.raises(SpecError, match=r"space\.hidden_units: 5 networks of 3 hidden layers of "
+                                        r"2048 units need at least 0\.6 GB, more than 80% of the "
+                                        r"0\.5 GB"):
+        check_memory(spec, available=gb // 2)
+    with pytest.raises(SpecError, match=r"search\.workers: 8 workers"):
+        check_memory(loads_spec(text.format(s=0, w=8), ".", "s.toml"), available=4 * gb)
+    with pytest.raises(SpecError, match=r"evaluation\.seed_spread: 20 seeds × 5 folds"):
+        check_memory(loads_spec(text.format(s=20, w=1), ".", "s.toml"), available=4 * gb)
