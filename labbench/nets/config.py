@@ -47,8 +47,9 @@ class NetConfig:
     momentum: float = 0.9               # used by "momentum" only
     l2: float = 0.0                     # penalty alpha, scikit-learn's convention alpha/(2 n)·Σw²
     batch_size: int = 64
-    epochs: int = 30
-    init: str = "auto"                  # "auto" (He for relu, Glorot otherwise) | "glorot" | "he"
+    epochs: int = 30                    # the most epochs; fewer when patience stops training
+    patience: int = 0                   # epochs without a better validation loss before stopping; 0 = off
+    init: str = "auto"                  # "auto" (see INIT_FOR_ACTIVATION) | "glorot" | "he"
     dtype: str = "float32"              # or "float64"
 
     def __post_init__(self) -> None:
@@ -76,6 +77,7 @@ class NetConfig:
         _positive("l2", self.l2, allow_zero=True)
         _positive("batch_size", self.batch_size, integer=True)
         _positive("epochs", self.epochs, integer=True)
+        _positive("patience", self.patience, allow_zero=True, integer=True)
         _positive("momentum", self.momentum, allow_zero=True)
         if self.momentum >= 1:
             raise SpecError(f"momentum: {self.momentum!r} is out of range; it must be at least 0 and below 1")
@@ -98,6 +100,7 @@ class NetConfig:
             "l2": float(self.l2),
             "batch_size": int(self.batch_size),
             "epochs": int(self.epochs),
+            "patience": int(self.patience),
             "init": self.init,
             "dtype": self.dtype,
         }

@@ -81,9 +81,20 @@ def _versions() -> dict[str, str]:
             "optuna": optuna.__version__, "python": platform.python_version()}
 
 
+def refit_epochs(trial: Any, settings: Mapping[str, Any]) -> int:
+    """Epochs of the refit: the trial's shared best epoch (``best_epoch``); a trial stored before
+    early stopping existed has none and refits with the epochs it ran."""
+    attrs = trial.user_attrs
+    for key in ("best_epoch", "epochs_run"):
+        if attrs.get(key):
+            return int(attrs[key])
+    return int(settings["epochs"])
+
+
 def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling: str,
-          dtype: str = "float32"):
-    """Train the settings on all training rows; returns ``(Preprocessor, NetWeights)``."""
+          dtype: str = "float32", epochs: int | None = None):
+    """Train the settings on all training rows for ``epochs`` (default: the settings' epochs; no
+    validation rows, so no early stopping); returns ``(Preprocessor, NetWeights)``."""
     from labbench.data import Preprocessor
     from labbench.nets import StackTrainer
 
@@ -93,7 +104,10 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
     pre = Preprocessor(numeric, categorical, scaling=scaling)
     X = pre.fit_transform(table.frame.iloc[prepared.train_pos])
     y = table.y[prepared.train_pos]
-    trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
+    config = settings_to_config(settings, dtype=dtype)
+    if epochs is not None:
+        config = dataclasses.replace(config, epochs=int(epochs))
+    trainer = StackTrainer(config, prepared.task,
                            prepared.n_outputs, [X], [y], seeds=_member_seeds(seed, 1))
     trainer.run()
     return pre, trainer.weights(0)
@@ -101,7 +115,8 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
 
 def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: list[int],
                 dtype: str = "float32") -> dict[str, Any]:
-    """CV score of the settings for each seed; seeds × folds trained as one stack."""
+    """CV score of the settings for each seed; seeds × folds trained as one stack, each seed's folds
+    one group sharing its best epoch (the rule of the trials), scored at that epoch."""
     from labbench.nets import StackTrainer
 
     fa = prepared.fold_arrays
@@ -110,9 +125,10 @@ def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: 
     trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
                            prepared.n_outputs, list(fa.X_train) * len(seeds),
                            list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
-                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric)
-    history = trainer.run()
-    per_member = np.asarray(history[-1].val_metric, dtype=np.float64)
+                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric,
+                           groups=[i for i in range(len(seeds)) for _ in range(k)])
+    trainer.run()
+    per_member = np.asarray(trainer.best_val_metric, dtype=np.float64)
     scores = [float(per_member[i * k:(i + 1) * k].mean()) for i in range(len(seeds))]
     return spread_stats(scores, seeds)
 
@@ -174,8 +190,11 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         log.info("%s: %s", name, text)
         emit(events.FinalStage(stage=name, text=text))
 
-    stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
-    pre, weights = refit(prepared, settings, seed=seed, scaling=spec.data.scaling, dtype=dtype)
+    best_epoch = refit_epochs(best, settings)
+    stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows "
+          f"for {best_epoch} epochs")
+    pre, weights = refit(prepared, settings, seed=seed, scaling=spec.data.scaling, dtype=dtype,
+                         epochs=best_epoch)
     table = prepared.table
     model = TrainedModel(preprocessor=pre, weights=weights, task=prepared.task, target=table.target,
                          features=tuple(table.features), kinds=dict(table.kinds),
@@ -230,6 +249,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
             "lead": lead["lead"], "inside_spread": lead["inside"], "text": lead["text"]},
         "params": {k: _plain(v) for k, v in best.params.items()},
         "settings": settings,
+        "best_epoch": best_epoch,
         "trials": counts_by_state(trials),
         "importance": imp,
         "data_sha256": table.sha256,

@@ -89,7 +89,7 @@ def test_fixed_settings_and_defaults():
     assert params == {}
     assert settings == {"hidden": [16, 16], "activation": "relu", "optimizer": "adam",
                         "learning_rate": 1.0, "momentum": 0.9, "l2": 0.0, "batch_size": 64,
-                        "epochs": 30}
+                        "epochs": 30, "patience": 10, "init": "auto"}
     assert isinstance(settings["learning_rate"], float)
 
 
@@ -183,4 +183,7 @@ def test_fixed_at_a_linear_model():
     fixed = space.fixed_at(settings)
     assert fixed.to_dict()["hidden_layers"] == 0 and fixed.to_dict()["hidden_units"] == []
     assert SearchSpace.from_dict(fixed.to_dict()) == fixed
-    assert fixed.settings_from_params({}) == settings
+    # settings stored before patience and init existed read as the defaults
+    assert fixed.settings_from_params({}) == {**settings, "patience": 10, "init": "auto"}
+    newer = {**settings, "patience": 0, "init": "he"}
+    assert space.fixed_at(newer).settings_from_params({}) == newer

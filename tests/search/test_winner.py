@@ -100,7 +100,9 @@ def run_search(spec, prepared, n_trials):
                                fa.X_train, fa.y_train, fa.X_val, fa.y_val,
                                seeds=member_seeds(spec.evaluation.seed, len(fa.X_train)),
                                metric=prepared.metric)
-        scores = [float(v) for v in trainer.run()[-1].val_metric]
+        trainer.run()      # scored at the folds' shared best epoch, as run_trial does
+        scores = [float(v) for v in trainer.best_val_metric]
+        trial.set_user_attr("best_epoch", int(trainer.best_epoch[0]))
         trial.set_user_attr("settings", settings)
         trial.set_user_attr("fold_scores", scores)
         trial.set_user_attr("cv_std", float(np.std(scores, ddof=1)))
