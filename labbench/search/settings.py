@@ -97,8 +97,8 @@ SETTINGS: dict[str, SettingInfo] = {
                     "Weight-decay strength that pulls weights towards zero; 0 turns it off.",
                     low=0.0, high=1000.0, can_be_off=True),
         SettingInfo("init", "Initial weights", "choice", "auto",
-                    "How the starting weights are drawn: auto (Glorot uniform for every activation, "
-                    "chosen by measurement), glorot (uniform) or he (normal, made for relu).",
+                    "How the starting weights are drawn: auto (chosen by measurement: Glorot for relu "
+                    "and tanh, He for sigmoid), glorot (uniform) or he (normal).",
                     options=("auto", "glorot", "he")),
     )
 }
