@@ -278,6 +278,15 @@ class StackTrainer:
         return np.array([self._out.loss(self._val_out[i, :self._nv[i]], self._Yv[i])
                          for i in range(self.n_members)])
 
+    def _constant_loss(self) -> np.ndarray:
+        """Each member's validation loss when always predicting its training rows' mean target
+        (regression) or class shares: the best constant output."""
+        out = []
+        for i in range(self.n_members):
+            const = np.asarray(self._Y[i], np.float64).mean(axis=0)
+            out.append(self._out.loss(np.broadcast_to(const, self._Yv[i].shape), self._Yv[i]))
+        return np.array(out)
+
     def _score(self) -> EpochScores:
         m = self.n_members
         train = np.array([self._out.epoch_loss(self._q[i, :self._n[i]], self.dtype) for i in range(m)])
@@ -326,7 +335,7 @@ class StackTrainer:
             return history
         with one_thread(), np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
             if self._has_val and self._best.start_loss is None:
-                self._best.set_start(self._validation_loss())
+                self._best.set_start(self._validation_loss(), self._constant_loss())
             while self.epoch < self.config.epochs:
                 self.epoch += 1
                 self._shuffle()

@@ -9,10 +9,14 @@ divergence (the stack still trains it, since the members run as one computation)
 exactly as it would alone. One epoch per group, not per member, keeps a cross-validation estimate
 honest: a fold's kept epoch is not chosen on the very rows that then score that fold.
 
-Divergence: a group-mean validation loss above ``EXPLODE_FACTOR`` times the group's loss before
-training (epoch 0) raises ``DivergenceError``. A network whose loss ends a thousand times above its
-random start is not learning (common practice: treat an exploding loss as divergence rather than
-as a score); with standardised inputs no run that learns comes near that bound.
+Divergence: a group-mean validation loss above ``EXPLODE_FACTOR`` (1e3) times a reference raises
+``DivergenceError``. The reference is the lower of the group's validation loss before training
+(epoch 0) and the loss of the best constant prediction (the training rows' mean target, or class
+shares). A network whose loss ends a thousand times above both its random start and a constant
+is not learning — for squared error that is an RMSE over 30 times the target's spread (common
+practice: an exploding loss is divergence, not a score). The constant matters for a target in raw
+units far from zero, where the untrained network's loss is already huge. Classification losses are
+clipped (probabilities in [eps, 1 - eps]), so in practice this fires for regression only.
 """
 
 from __future__ import annotations
@@ -59,8 +63,10 @@ class BestEpoch:
             return np.arange(len(self.groups))
         return np.concatenate([self.members_of[g] for g in np.flatnonzero(self.active)])
 
-    def set_start(self, val_loss: np.ndarray) -> None:
-        self.start_loss = np.maximum(self.group_means(val_loss), np.finfo(np.float64).tiny)
+    def set_start(self, val_loss: np.ndarray, constant_loss: np.ndarray) -> None:
+        """Per member: the validation loss before training, and that of the best constant output."""
+        reference = np.minimum(self.group_means(val_loss), self.group_means(constant_loss))
+        self.start_loss = np.maximum(reference, np.finfo(np.float64).tiny)
 
     def check_explosion(self, scores: EpochScores, learning_rate: float) -> None:
         if self.start_loss is None or scores.val_loss is None:
@@ -72,9 +78,9 @@ class BestEpoch:
             what = "mean validation loss of the folds" if members.size > 1 else "validation loss"
             raise DivergenceError(
                 f"training diverged at epoch {scores.epoch}: the {what} rose to {means[g]:.4g}, "
-                f"more than {EXPLODE_FACTOR:g} times its {self.start_loss[g]:.4g} before training; "
-                f"lower the learning rate (now {learning_rate:g}) or check that the inputs and the "
-                "target are scaled",
+                f"more than {EXPLODE_FACTOR:g} times {self.start_loss[g]:.4g} (the lower of its "
+                "value before training and that of a constant prediction); lower the learning "
+                f"rate (now {learning_rate:g}) or check that the inputs and the target are scaled",
                 epoch=scores.epoch, member=member,
             )
 

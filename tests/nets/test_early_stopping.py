@@ -138,20 +138,24 @@ def test_an_exploding_validation_loss_is_divergence_not_a_score():
     with pytest.raises(DivergenceError) as info:
         StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[0], metric="rmse").run()
     text = str(info.value)
-    assert f"more than {EXPLODE_FACTOR:g} times" in text and "before training" in text
+    assert f"more than {EXPLODE_FACTOR:g} times" in text and "constant prediction" in text
     assert "lower the learning rate (now 100)" in text and "\n" not in text
     assert info.value.epoch is not None and f"epoch {info.value.epoch}" in text
 
 
-def test_the_explosion_bound_is_relative_to_the_loss_before_training(monkeypatch):
+def test_the_explosion_bound_is_relative_to_the_start_or_a_constant(monkeypatch):
     """Without the bound the same run finishes with finite, absurd scores (what the issue saw);
-    the bound fires at the first epoch whose mean validation loss passes 1e3 × the start."""
+    the bound fires at the first epoch whose validation loss passes 1e3 × the lower of the loss
+    before training and the loss of predicting the training mean (numpy reference below)."""
     import labbench.nets.stopping as stopping
 
     Xs, ys, Xv, yv = _diabetes()
     config = NetConfig(hidden=(64,), optimizer="adam", learning_rate=100.0, epochs=30)
     start = StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[0])
-    start_loss = start._validation_loss()[0]
+    before = start._validation_loss()[0]
+    constant = 0.5 * np.mean((yv[0] - np.mean(ys[0])) ** 2)     # half squared error of the mean
+    np.testing.assert_allclose(start._constant_loss()[0], constant, rtol=1e-6)
+    start_loss = min(before, constant)
     free = StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[0], metric="rmse")
     monkeypatch.setattr(stopping, "EXPLODE_FACTOR", np.inf)
     history = free.run()
@@ -168,6 +172,6 @@ def test_a_healthy_run_never_comes_near_the_bound():
     Xs, ys, Xv, yv = _diabetes()
     config = NetConfig(hidden=(64,), optimizer="adam", learning_rate=0.01, epochs=60)
     trainer = StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[0])
-    start = trainer._validation_loss()[0]
+    reference = min(trainer._validation_loss()[0], trainer._constant_loss()[0])
     worst = max(s.val_loss[0] for s in trainer.run())
-    assert worst < 2 * start
+    assert worst < 10 * reference < EXPLODE_FACTOR * reference
