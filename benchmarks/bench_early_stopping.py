@@ -21,6 +21,7 @@ Printed per set and way: the median over seeds of the CV estimate, the hold-out 
 seed (CV + refit). Accuracy for the classification sets, RMSE (target units) for diabetes.
 
     python benchmarks/bench_early_stopping.py [--seeds 3] [--sets breast_cancer,digits,diabetes]
+        [--ways shared,inner,per-fold,fixed] [--epochs 200] [--batch 32] [--patience 10]
 """
 
 from __future__ import annotations
@@ -44,7 +45,7 @@ def load(name):
     from sklearn import datasets
 
     loader = {"breast_cancer": datasets.load_breast_cancer, "digits": datasets.load_digits,
-              "diabetes": datasets.load_diabetes}[name]
+              "diabetes": datasets.load_diabetes, "wine": datasets.load_wine}[name]
     X, y = loader(return_X_y=True)
     if name == "diabetes":
         return X, y.astype(float), "regression", 1, "rmse"
@@ -140,11 +141,17 @@ def way(name, folds, full, task, k, metric, seed):
 
 
 def main(argv=None) -> int:
+    global CONFIG
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--seeds", type=int, default=3)
     parser.add_argument("--sets", default="breast_cancer,digits,diabetes")
     parser.add_argument("--ways", default="shared,inner,per-fold,fixed")
+    parser.add_argument("--epochs", type=int, default=MAX_EPOCHS, help="the most epochs (fixed: all of them)")
+    parser.add_argument("--batch", type=int, default=CONFIG.batch_size)
+    parser.add_argument("--patience", type=int, default=PATIENCE)
     args = parser.parse_args(argv)
+    CONFIG = replace(CONFIG, epochs=args.epochs, batch_size=args.batch, patience=args.patience)
+    print(f"at most {CONFIG.epochs} epochs, batch {CONFIG.batch_size}, patience {CONFIG.patience}")
     print(f"medians over {args.seeds} seeds (hold-out split, folds and initial weights change with the seed)")
     print(f"{'set':<14s}{'way':<10s}{'metric':<9s}{'CV':>8s}{'hold-out':>9s}{'gap':>8s}{'epochs':>7s}{'s/seed':>7s}")
     for name in args.sets.split(","):

@@ -73,7 +73,7 @@ SETTINGS: dict[str, SettingInfo] = {
         SettingInfo("hidden_units", "Units per layer", "int", 64,
                     "Neurons in each hidden layer; a range is sampled separately for every layer.",
                     low=1, high=4096),
-        SettingInfo("epochs", "Epochs", "int", 30,
+        SettingInfo("epochs", "Epochs", "int", 200,
                     "The most full passes over the training rows of each fold; patience may stop sooner.",
                     low=1, high=100_000),
         SettingInfo("patience", "Patience", "int", 10,

@@ -89,7 +89,7 @@ def test_fixed_settings_and_defaults():
     assert params == {}
     assert settings == {"hidden": [16, 16], "activation": "relu", "optimizer": "adam",
                         "learning_rate": 1.0, "momentum": 0.9, "l2": 0.0, "batch_size": 64,
-                        "epochs": 30, "patience": 10, "init": "auto"}
+                        "epochs": 200, "patience": 10, "init": "auto"}
     assert isinstance(settings["learning_rate"], float)
 
 
