@@ -3,10 +3,11 @@
 ``finalize(spec, study)`` does, in order (one ``FinalStage`` event per step):
 
 1. the winner = the best COMPLETE trial by its CV value (the study's metric direction);
-2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows);
+2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows) for the
+   trial's shared best epoch (``best_epoch``), no early stopping;
 3. score that model ONCE on the locked hold-out rows, beside the CV estimate;
 4. seed spread: the same settings retrained with several seeds on the same folds, all
-   seeds × folds stacked into one ``StackTrainer``;
+   seeds × folds stacked into one ``StackTrainer`` (each seed's folds share one best epoch);
 5. parameter importance (PED-ANOVA, or fANOVA with a fixed seed);
 6. ``winner.json`` (the summary) and ``winner.toml`` (a spec with every setting fixed).
 
