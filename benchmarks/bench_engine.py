@@ -133,8 +133,8 @@ def main(argv=None) -> int:
     if args.more:
         rows += [("scikit-learn MLPClassifier, one BLAS thread", lambda: _one_thread(run_sklearn, folds)),
                  ("labbench engine, stacked, float64", lambda: run_engine(folds, engine_config("float64"), True)),
-                 ("labbench engine, stacked, He start (init='auto')",
-                  lambda: run_engine(folds, engine_config(init="auto"), True))]
+                 ("labbench engine, stacked, He start (init='he')",
+                  lambda: run_engine(folds, engine_config(init="he"), True))]
     results = []
     for label, fn in rows:
         seconds, acc = timed(fn, args.repeats)

@@ -5,6 +5,11 @@ The constructor only stores its arguments (the ``NetConfig`` fields plus ``rando
 network with ``StackTrainer`` and sets the fitted attributes, all ending in ``_``: ``weights_``
 (``NetWeights``), ``n_features_in_``, ``loss_curve_`` (training loss per epoch), ``n_iter_``
 (epochs run), and ``classes_`` for the classifier. Bad settings raise ``ValueError`` at ``fit``.
+
+Early stopping (``patience > 0``, off by default like scikit-learn's ``early_stopping=False``):
+``validation_fraction`` of the rows (per class for the classifier) are held back, chosen with the
+estimator's random state; training stops after ``patience`` epochs without a better loss on them
+and keeps the weights of the best epoch (``best_epoch_``; ``validation_loss_`` per epoch).
 scikit-learn is not imported here; it stays an optional companion (its estimator checks are run
 in tests/nets/test_estimator_checks.py).
 """
@@ -30,8 +35,8 @@ class _NetEstimator:
     _estimator_type = ""
 
     def __init__(self, hidden=(64,), activation="relu", optimizer="adam", learning_rate=1e-3,
-                 momentum=0.9, l2=0.0, batch_size=64, epochs=30, init="auto", dtype="float32",
-                 random_state=None):
+                 momentum=0.9, l2=0.0, batch_size=64, epochs=30, patience=0,
+                 validation_fraction=0.1, init="auto", dtype="float32", random_state=None):
         self.hidden = hidden
         self.activation = activation
         self.optimizer = optimizer
@@ -40,6 +45,8 @@ class _NetEstimator:
         self.l2 = l2
         self.batch_size = batch_size
         self.epochs = epochs
+        self.patience = patience
+        self.validation_fraction = validation_fraction
         self.init = init
         self.dtype = dtype
         self.random_state = random_state
@@ -105,11 +112,39 @@ class _NetEstimator:
 
     def _train(self, X, codes, task: str, n_outputs: int) -> None:
         config = self._config()
-        trainer = StackTrainer(config, task, n_outputs, [X], [codes], seeds=[self._seed()])
+        seed = self._seed()
+        if not config.patience:
+            trainer = StackTrainer(config, task, n_outputs, [X], [codes], seeds=[seed])
+        else:
+            fit, val = self._split(codes, task, seed)
+            trainer = StackTrainer(config, task, n_outputs, [X[fit]], [codes[fit]], [X[val]],
+                                   [codes[val]], seeds=[seed])
         history = trainer.run()
         self.weights_ = trainer.weights(0)
         self.loss_curve_ = [float(s.train_loss[0]) for s in history]
         self.n_iter_ = len(history)
+        if config.patience:
+            self.validation_loss_ = [float(s.val_loss[0]) for s in history]
+            self.best_epoch_ = int(trainer.best_epoch[0])
+
+    def _split(self, codes, task: str, seed: int) -> tuple[np.ndarray, np.ndarray]:
+        """(training rows, validation rows): ``validation_fraction`` held back, per class when classifying."""
+        frac = self.validation_fraction
+        if isinstance(frac, bool) or not isinstance(frac, numbers.Real) or not 0 < frac < 1:
+            raise ValueError(f"{type(self).__name__}: validation_fraction {frac!r} must be between 0 and 1")
+        n = codes.shape[0]
+        if n < 2:
+            raise ValueError(f"{type(self).__name__}: patience needs at least 2 rows to hold some back")
+        rng = np.random.default_rng([seed, 1])
+        strata = [np.arange(n)] if task == "regression" else [np.flatnonzero(codes == c) for c in np.unique(codes)]
+        val = np.concatenate([rng.permutation(rows)[:int(round(frac * rows.size))] for rows in strata])
+        if val.size == 0:
+            val = rng.permutation(n)[:1]
+        elif val.size == n:
+            val = val[1:]
+        keep = np.ones(n, bool)
+        keep[val] = False
+        return np.flatnonzero(keep), np.sort(val)
 
     def _output(self, X) -> np.ndarray:
         if not hasattr(self, "weights_"):

@@ -3,6 +3,11 @@
 * Glorot & Bengio (2010): W ~ U(-r, r), r = sqrt(6 / (fan_in + fan_out)).
 * He et al. (2015): W ~ N(0, 2 / fan_in), made for relu layers.
 
+``NetConfig(init="auto")`` picks per activation by measurement (``config.INIT_FOR_ACTIVATION``,
+benchmarks/bench_init.py): Glorot for relu and tanh, He for sigmoid. On the reference workload
+(10,000 × 20, 64 units, Adam, 30 epochs, 5 folds) He cost relu 1.3 accuracy points against
+Glorot, while sigmoid learned faster from He's larger start.
+
 Biases are drawn like the weights of their layer (scikit-learn's MLP does this for its Glorot
 start); starting them at zero makes every relu unit's hyperplane pass through the origin, which on
 the reference benchmark costs about a point of accuracy after 30 epochs.

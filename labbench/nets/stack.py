@@ -15,6 +15,13 @@ are (an Adam member counts only the steps it took). A one-member stack is theref
 plain single-network computation, and a member of a stack follows the same path as the same
 member trained alone (see tests/nets/test_stack.py).
 
+Early stopping and divergence (``stopping.py``). With validation rows and ``config.patience > 0``
+each group of members (``groups=``; default one group) keeps ONE epoch, the best of its mean
+validation loss, and every member ends with that epoch's weights; without validation rows (the
+refit) or with ``patience = 0`` the stack trains ``epochs`` epochs. ``best_epoch``,
+``best_val_loss`` and ``best_val_metric`` (one entry per member) describe the weights it holds. A
+NaN/inf loss or an exploding validation loss raises ``DivergenceError``.
+
 Randomness: member i draws its initial weights and then one permutation per epoch from
 ``numpy.random.default_rng(seeds[i])``, nothing else, so results are bit-for-bit reproducible.
 """
@@ -38,6 +45,7 @@ from labbench.nets.layout import Layout
 from labbench.nets.losses import OUTPUT_FOR_TASK, TASKS, encode_targets, output_for
 from labbench.nets.metrics import check_metric, compute, default_metric
 from labbench.nets.optim import make_optimizer
+from labbench.nets.stopping import BestEpoch
 from labbench.nets.weights import NetWeights
 
 log = logging.getLogger("labbench.nets.stack")
@@ -70,7 +78,8 @@ class StackTrainer:
                  y_train: Sequence[np.ndarray], X_val: Sequence[np.ndarray] | None = None,
                  y_val: Sequence[np.ndarray] | None = None, *, seeds: Sequence[int],
                  metric: str | None = None,
-                 target_inverse: Sequence[Callable[[np.ndarray], np.ndarray]] | None = None):
+                 target_inverse: Sequence[Callable[[np.ndarray], np.ndarray]] | None = None,
+                 groups: Sequence[int] | None = None):
         if task not in TASKS:
             raise ValueError(f"task {task!r} is not one of {', '.join(TASKS)}")
         X_train, y_train = _as_list(X_train, "X_train"), _as_list(y_train, "y_train")
@@ -146,6 +155,12 @@ class StackTrainer:
         else:
             self.metric = metric
         self.epoch = 0
+
+        # groups sharing one kept epoch (early stopping) and one divergence reference
+        self._best = BestEpoch([0] * m if groups is None else groups,
+                               int(config.patience) if self._has_val else 0, self._params)
+        self.groups = self._best.groups
+        self.stopped_early = False
 
     # ---------------------------------------------------------------- set-up helpers
     def _augment(self, x) -> np.ndarray:
@@ -263,18 +278,31 @@ class StackTrainer:
     def _member_output(self, out: np.ndarray) -> np.ndarray:
         return out[:, 0] if self.task != "multiclass" else out
 
+    def _validation_loss(self) -> np.ndarray:
+        """Run the validation forward pass; the data loss of each member (outputs stay in _val_out)."""
+        run_steps(self._val_plan)
+        return np.array([self._out.loss(self._val_out[i, :self._nv[i]], self._Yv[i])
+                         for i in range(self.n_members)])
+
+    def _constant_loss(self) -> np.ndarray:
+        """Each member's validation loss when always predicting its training rows' mean target
+        (regression) or class shares: the best constant output."""
+        out = []
+        for i in range(self.n_members):
+            const = np.asarray(self._Y[i], np.float64).mean(axis=0)
+            out.append(self._out.loss(np.broadcast_to(const, self._Yv[i].shape), self._Yv[i]))
+        return np.array(out)
+
     def _score(self) -> EpochScores:
         m = self.n_members
         train = np.array([self._out.epoch_loss(self._q[i, :self._n[i]], self.dtype) for i in range(m)])
         val_loss = val_metric = None
         if self._has_val:
-            run_steps(self._val_plan)
+            val_loss = self._validation_loss()
             outs = self._val_out
-            val_loss = np.empty(m)
             val_metric = np.empty(m)
             for i in range(m):
                 out = outs[i, :self._nv[i]]
-                val_loss[i] = self._out.loss(out, self._Yv[i])
                 if np.all(np.isfinite(out)):
                     truth, pred = self._yv[i], self._member_output(out)
                     if self._target_inverse is not None:   # scores in the target's own units
@@ -286,10 +314,11 @@ class StackTrainer:
         return EpochScores(self.epoch, train, val_loss, val_metric)
 
     def _check_finite(self, scores: EpochScores) -> None:
+        watched = self._best.watched()
         for name, values in (("training loss", scores.train_loss), ("validation loss", scores.val_loss)):
             if values is None:
                 continue
-            bad = np.flatnonzero(~np.isfinite(values))
+            bad = watched[~np.isfinite(values[watched])]
             if bad.size:
                 member = int(bad[0])
                 raise DivergenceError(
@@ -303,22 +332,52 @@ class StackTrainer:
     def run(self, on_epoch: Callable[[EpochScores], object] | None = None) -> list[EpochScores]:
         """Train up to ``config.epochs`` epochs (continuing from where a previous run stopped).
 
-        ``on_epoch(scores)`` is called after every epoch; returning ``False`` stops training.
-        Raises ``DivergenceError`` when a loss becomes NaN or infinite.
+        ``on_epoch(scores)`` is called after every epoch; returning ``False`` stops training there
+        (the weights stay those of that epoch, and ``run`` may be called again). With validation
+        rows and ``patience``, training ends when every group has gone ``patience`` epochs without
+        a better mean validation loss, or at ``epochs``; then each member holds its group's
+        best-epoch weights. Raises ``DivergenceError`` when a loss becomes NaN or infinite, or a
+        group's validation loss explodes (see the module docstring).
         """
         history: list[EpochScores] = []
+        if self.stopped_early:
+            return history
         with one_thread(), np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+            if self._has_val and self._best.start_loss is None:
+                self._best.set_start(self._validation_loss(), self._constant_loss())
             while self.epoch < self.config.epochs:
                 self.epoch += 1
                 self._shuffle()
                 self._train_epoch()
                 scores = self._score()
                 self._check_finite(scores)
+                self._best.check_explosion(scores, self.config.learning_rate)
                 history.append(scores)
+                done = self._best.update(scores, self._params)
                 if on_epoch is not None and on_epoch(scores) is False:
                     log.debug("stopped by the caller after epoch %d", self.epoch)
+                    return history
+                if done:
+                    log.debug("no better validation loss for %d epochs; stopped after epoch %d",
+                              self._best.patience, self.epoch)
+                    self.stopped_early = True
                     break
+        self._best.restore(self._params)
         return history
+
+    @property
+    def best_epoch(self) -> np.ndarray:
+        """(m,) the epoch whose weights each member holds after ``run`` (shared within a group)."""
+        return self._best.epoch if self._has_val else np.full(self.n_members, self.epoch)
+
+    @property
+    def best_val_loss(self) -> np.ndarray | None:
+        return self._best.val_loss if self._has_val else None
+
+    @property
+    def best_val_metric(self) -> np.ndarray | None:
+        """(m,) each member's validation metric at its kept epoch."""
+        return self._best.val_metric if self._has_val else None
 
     def weights(self, member: int) -> NetWeights:
         return NetWeights(self._layout.unpack(self._params[member]), self.config.activation,

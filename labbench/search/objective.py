@@ -2,8 +2,10 @@
 
 This runs inside a worker process. It trains a ``labbench.nets.StackTrainer`` over the prepared
 folds (one stacked member per fold), hands the fold means of every epoch to a callback, and stops
-after an epoch when told to (pruned or cancelled). The fold scores are the metric of the *final*
-epoch's validation outputs; the trial value is their mean.
+after an epoch when told to (pruned or cancelled). With ``patience`` the folds share ONE kept
+epoch (``best_epoch``: the best of their mean validation loss, see ``labbench.nets.stopping``) and
+the fold scores are the metric at that epoch; with patience 0 it is the last epoch. The trial
+value is the mean of the fold scores; the refit trains ``best_epoch`` epochs.
 
 It also holds the small helpers the controller uses to turn those values into the trial user
 attrs of the storage contract (curve downsampled to at most 200 points, fold scores, spread).
@@ -51,8 +53,9 @@ def run_trial(
 ) -> dict[str, Any]:
     """Train one configuration on every fold; returns a plain dict (safe to send between processes).
 
-    ``end`` is "complete" (all epochs ran), "stopped" (``should_stop`` said so after an epoch) or
-    "diverged" (NaN/inf loss; ``reason`` says where). Other exceptions propagate (they are bugs).
+    ``end`` is "complete" (all epochs ran, or patience ended training), "stopped" (``should_stop``
+    said so after an epoch) or "diverged" (NaN/inf or exploding loss; ``reason`` says where). Other
+    exceptions propagate (they are bugs). ``best_epoch`` is the epoch whose fold scores are given.
     """
     from labbench.errors import DivergenceError
     from labbench.nets import StackTrainer
@@ -86,11 +89,11 @@ def run_trial(
         return {"end": "diverged", "reason": one_line(str(exc)), "fold_scores": [],
                 "epochs_run": int(getattr(exc, "epoch", None) or state["epochs"]),
                 "duration_s": time.perf_counter() - started}
-    last = state["last"]
-    fold_scores = [] if last is None or last.val_metric is None else \
-        [float(v) for v in last.val_metric]
+    best = trainer.best_val_metric
+    fold_scores = [] if state["last"] is None or best is None else [float(v) for v in best]
     return {"end": "stopped" if state["stopped"] else "complete", "reason": "",
             "fold_scores": fold_scores, "epochs_run": state["epochs"],
+            "best_epoch": int(trainer.best_epoch[0]) if state["last"] is not None else 0,
             "duration_s": time.perf_counter() - started}
 
 

@@ -385,13 +385,14 @@ class SearchRunner:
                              "fold", fold_scores=scores, epochs_run=result["epochs_run"])
             else:
                 self._finish(flight, "COMPLETE", value=mean, fold_scores=scores,
-                             epochs_run=result["epochs_run"])
+                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"))
 
     # ------------------------------------------------------------------------------------
     # ending trials
 
     def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
-                reason: str = "", fold_scores=(), epochs_run: int | None = None) -> None:
+                reason: str = "", fold_scores=(), epochs_run: int | None = None,
+                best_epoch: int | None = None) -> None:
         from optuna.exceptions import UpdateFinishedTrialError
         from optuna.trial import TrialState
 
@@ -403,6 +404,8 @@ class SearchRunner:
         attrs = {"curve": curve_attr(points), "fold_scores": [float(s) for s in fold_scores],
                  "cv_std": float(std) if math.isfinite(std) else None,
                  "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
+        if best_epoch is not None:             # the epoch the fold scores (and the refit) use
+            attrs["best_epoch"] = int(best_epoch)
         try:
             self._save_values(flight)
             write_user_attrs(trial, plain(attrs))

@@ -73,9 +73,14 @@ SETTINGS: dict[str, SettingInfo] = {
         SettingInfo("hidden_units", "Units per layer", "int", 64,
                     "Neurons in each hidden layer; a range is sampled separately for every layer.",
                     low=1, high=4096),
-        SettingInfo("epochs", "Epochs", "int", 30,
-                    "Full passes over the training rows of each fold.",
+        SettingInfo("epochs", "Epochs", "int", 200,
+                    "The most full passes over the training rows of each fold; patience may stop sooner.",
                     low=1, high=100_000),
+        SettingInfo("patience", "Patience", "int", 10,
+                    "Epochs without a better mean validation loss of the folds before training stops; "
+                    "the weights of the best epoch are kept and the refit trains that many epochs. "
+                    "0 turns early stopping off.",
+                    low=0, high=100_000),
         SettingInfo("batch_size", "Batch size", "int", 64,
                     "Rows per gradient step; smaller batches give noisier, more frequent steps.",
                     low=1, high=1_000_000),
@@ -91,11 +96,15 @@ SETTINGS: dict[str, SettingInfo] = {
         SettingInfo("l2", "L2 penalty", "float", 0.0,
                     "Weight-decay strength that pulls weights towards zero; 0 turns it off.",
                     low=0.0, high=1000.0, can_be_off=True),
+        SettingInfo("init", "Initial weights", "choice", "auto",
+                    "How the starting weights are drawn: auto (chosen by measurement: Glorot for relu "
+                    "and tanh, He for sigmoid), glorot (uniform) or he (normal).",
+                    options=("auto", "glorot", "he")),
     )
 }
 
 SETTINGS_KEYS = ("hidden", "activation", "optimizer", "learning_rate", "momentum", "l2",
-                 "batch_size", "epochs")
+                 "batch_size", "epochs", "patience", "init")
 
 
 def spec_error(source: str | None, key: str, message: str) -> SpecError:

@@ -4,7 +4,10 @@ Each known setting (``SETTINGS``) is either ``Fixed(value)`` or searched as ``Fl
 ``IntRange`` or ``Choices``. The space turns an Optuna trial into a resolved settings dict::
 
     {"hidden": [64, 32], "activation": "relu", "optimizer": "adam", "learning_rate": 0.001,
-     "momentum": 0.9, "l2": 0.0, "batch_size": 64, "epochs": 30}
+     "momentum": 0.9, "l2": 0.0, "batch_size": 64, "epochs": 30, "patience": 10, "init": "auto"}
+
+Settings dicts stored by older versions lack ``patience`` and ``init``; readers take the defaults
+(``SETTINGS[name].default``).
 
 Conditional Optuna parameters: the units of hidden layer i are the parameter ``units_i`` and exist
 only when that layer exists; ``momentum`` is sampled only when the optimizer is "momentum"; an L2
@@ -99,6 +102,8 @@ class SearchSpace:
             "optimizer": str(settings["optimizer"]),
             "momentum": float(settings["momentum"]),
             "l2": float(settings["l2"]),
+            "patience": int(settings.get("patience", SETTINGS["patience"].default)),
+            "init": str(settings.get("init", SETTINGS["init"].default)),
         }
         return SearchSpace.from_dict(d, self.source)
 
@@ -268,6 +273,8 @@ class SearchSpace:
             "l2": float(l2),
             "batch_size": int(val("batch_size")),
             "epochs": int(val("epochs")),
+            "patience": int(val("patience")),
+            "init": str(val("init")),
         }
 
 
@@ -290,5 +297,7 @@ def settings_to_config(settings: Mapping[str, Any], dtype: str = "float32"):
         l2=float(settings["l2"]),
         batch_size=int(settings["batch_size"]),
         epochs=int(settings["epochs"]),
+        patience=int(settings.get("patience", SETTINGS["patience"].default)),
+        init=str(settings.get("init", SETTINGS["init"].default)),
         dtype=dtype,
     )

@@ -3,10 +3,11 @@
 ``finalize(spec, study)`` does, in order (one ``FinalStage`` event per step):
 
 1. the winner = the best COMPLETE trial by its CV value (the study's metric direction);
-2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows);
+2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows) for the
+   trial's shared best epoch (``best_epoch``), no early stopping;
 3. score that model ONCE on the locked hold-out rows, beside the CV estimate;
 4. seed spread: the same settings retrained with several seeds on the same folds, all
-   seeds × folds stacked into one ``StackTrainer``;
+   seeds × folds stacked into one ``StackTrainer`` (each seed's folds share one best epoch);
 5. parameter importance (PED-ANOVA, or fANOVA with a fixed seed);
 6. ``winner.json`` (the summary) and ``winner.toml`` (a spec with every setting fixed).
 
@@ -115,11 +116,22 @@ def _versions() -> dict[str, str]:
             "optuna": optuna.__version__, "python": platform.python_version()}
 
 
+def refit_epochs(trial: Any, settings: Mapping[str, Any]) -> int:
+    """Epochs of the refit: the trial's shared best epoch (``best_epoch``); a trial stored before
+    early stopping existed has none and refits with the epochs it ran."""
+    attrs = trial.user_attrs
+    for key in ("best_epoch", "epochs_run"):
+        if attrs.get(key):
+            return int(attrs[key])
+    return int(settings["epochs"])
+
+
 def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling: str,
-          dtype: str = "float32", target_scaling: str | None = None):
-    """Train the settings on all training rows; returns ``(Preprocessor, NetWeights,
-    TargetScaler or None)``. Regression: the target scaler (``target_scaling``, default the
-    prepared spec's) is fitted on the same rows and the network trains in its units."""
+          dtype: str = "float32", target_scaling: str | None = None, epochs: int | None = None):
+    """Train the settings on all training rows for ``epochs`` (default: the settings' epochs; no
+    validation rows, so no early stopping); returns ``(Preprocessor, NetWeights, TargetScaler or
+    None)``. Regression: the target scaler (``target_scaling``, default the prepared spec's) is
+    fitted on the same rows and the network trains in its units."""
     from labbench.data import Preprocessor, TargetScaler
     from labbench.nets import StackTrainer
 
@@ -133,7 +145,10 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
     if prepared.task == "regression":
         target = TargetScaler(target_scaling or prepared.target_scaling, table.target)
         y = target.fit_transform(y, f"{table.path}: ")
-    trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
+    config = settings_to_config(settings, dtype=dtype)
+    if epochs is not None:
+        config = dataclasses.replace(config, epochs=int(epochs))
+    trainer = StackTrainer(config, prepared.task,
                            prepared.n_outputs, [X], [y], seeds=_member_seeds(seed, 1))
     trainer.run()
     return pre, trainer.weights(0), target
@@ -141,7 +156,8 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
 
 def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: list[int],
                 dtype: str = "float32") -> dict[str, Any]:
-    """CV score of the settings for each seed; seeds × folds trained as one stack."""
+    """CV score of the settings for each seed; seeds × folds trained as one stack, each seed's folds
+    one group sharing its best epoch (the rule of the trials), scored at that epoch."""
     from labbench.nets import StackTrainer
 
     fa = prepared.fold_arrays
@@ -152,9 +168,10 @@ def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: 
                            list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
                            list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric,
                            target_inverse=None if fa.target_inverse is None
-                           else list(fa.target_inverse) * len(seeds))
-    history = trainer.run()
-    per_member = np.asarray(history[-1].val_metric, dtype=np.float64)
+                           else list(fa.target_inverse) * len(seeds),
+                           groups=[i for i in range(len(seeds)) for _ in range(k)])
+    trainer.run()
+    per_member = np.asarray(trainer.best_val_metric, dtype=np.float64)
     scores = [float(per_member[i * k:(i + 1) * k].mean()) for i in range(len(seeds))]
     return spread_stats(scores, seeds)
 
@@ -216,10 +233,13 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     for attempt, best in enumerate(candidates[:MAX_REFITS]):
         settings = dict(best.user_attrs.get("settings")
                         or spec.space.settings_from_params(best.params))
-        stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training rows")
+        best_epoch = refit_epochs(best, settings)
+        stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training "
+              f"rows for {best_epoch} epochs")
         try:
             pre, weights, target_scaler = refit(prepared, settings, seed=seed,
-                                                scaling=spec.data.scaling, dtype=dtype)
+                                                scaling=spec.data.scaling, dtype=dtype,
+                                                epochs=best_epoch)
         except DivergenceError as exc:
             diverged.append((best, str(exc)))
             if attempt + 1 < min(len(candidates), MAX_REFITS):
@@ -296,6 +316,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         "refit_fallback": [{"trial_number": int(t.number), "reason": why} for t, why in diverged],
         "params": {k: _plain(v) for k, v in best.params.items()},
         "settings": settings,
+        "best_epoch": best_epoch,
         "trials": counts_by_state(trials),
         "importance": imp,
         "data_sha256": table.sha256,

@@ -25,7 +25,7 @@ def test_top_level_package_exports_the_estimators():
 
 def test_params_match_netconfig_fields_plus_random_state():
     names = set(NetClassifier().get_params())
-    assert names == set(NetConfig.__dataclass_fields__) | {"random_state"}
+    assert names == set(NetConfig.__dataclass_fields__) | {"random_state", "validation_fraction"}
     assert NetRegressor().get_params()["hidden"] == NetConfig().hidden
     est = NetClassifier().set_params(epochs=3, hidden=(4,))
     assert est.epochs == 3 and clone(est).get_params() == est.get_params()
@@ -76,6 +76,30 @@ def test_same_random_state_same_model_and_pickle_round_trip():
     np.testing.assert_array_equal(a.predict_proba(X), b.predict_proba(X))
     c = pickle.loads(pickle.dumps(a))
     np.testing.assert_array_equal(a.predict_proba(X), c.predict_proba(X))
+
+
+def test_patience_holds_back_rows_and_keeps_the_best_epoch():
+    X, y = make_regression(n_samples=120, n_features=5, noise=30.0, random_state=1)
+    y = y / y.std()
+    reg = NetRegressor(hidden=(64,), learning_rate=0.01, batch_size=8, epochs=300, patience=5,
+                       dtype="float64", random_state=0).fit(X, y)
+    best = reg.best_epoch_
+    # stopped `patience` epochs after its lowest held-back loss, before the maximum
+    assert reg.n_iter_ == best + 5 < 300 and len(reg.validation_loss_) == reg.n_iter_
+    assert int(np.argmin(reg.validation_loss_)) + 1 == best
+    # same rows held back, trained exactly `best` epochs without early stopping: same weights
+    # (so the kept weights are the best epoch's, not the last one's)
+    fit, val = reg._split(y, "regression", 0)
+    assert len(val) == 12 and not set(fit) & set(val)
+    plain = NetRegressor(hidden=(64,), learning_rate=0.01, batch_size=8, epochs=best,
+                         dtype="float64", random_state=0).fit(X[fit], y[fit])
+    np.testing.assert_array_equal(reg.predict(X), plain.predict(X))
+    # the classifier holds back rows of every class (scikit-learn stratifies its split too)
+    Xi, yi = load_iris(return_X_y=True)
+    _, val = NetClassifier(patience=3)._split(yi, "multiclass", 0)
+    assert np.bincount(yi[val]).tolist() == [5, 5, 5]
+    with pytest.raises(ValueError, match="validation_fraction"):
+        NetClassifier(patience=3, validation_fraction=1.5).fit(Xi, yi)
 
 
 def test_bad_setting_is_a_value_error_at_fit():

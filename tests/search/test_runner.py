@@ -137,6 +137,41 @@ epochs = 5
     assert any("grid" in n.text for n in events.of(ev.Notice))
 
 
+def test_an_exploding_validation_loss_fails_the_trial_and_never_becomes_the_winner(tmp_path):
+    """Adam at learning rate 10 with two layers of 64: every loss stays finite, but the validation
+    loss ends thousands of times above both its start and a constant prediction. Before this was
+    caught, such a trial was stored COMPLETE with an RMSE in the thousands (on a target whose
+    spread is ~77) and fed to the sampler."""
+    from labbench.search.prepare import prepare
+    from labbench.search.winner import finalize, pick_winner
+
+    diabetes_csv(tmp_path)
+    space = """
+learning_rate = { choices = [1e-3, 10.0] }
+hidden_layers = 2
+hidden_units = 64
+epochs = 6
+"""
+    spec = write_spec(tmp_path, data="diabetes.csv", target="target", trials=2, sampler="grid",
+                      space=space)
+    db = tmp_path / "s.db"
+    outcome, events = run(spec, db)
+    study = load(db)
+    by_lr = {t.params["learning_rate"]: t for t in study.trials}
+    bad, good = by_lr[10.0], by_lr[1e-3]
+    assert bad.state.name == "FAIL" and bad.value is None
+    assert "diverged" in bad.user_attrs["end_reason"] and "more than 1000 times" in bad.user_attrs["end_reason"]
+    assert "best_epoch" not in bad.user_attrs
+    assert good.state.name == "COMPLETE" and 1 <= good.user_attrs["best_epoch"] <= 6
+    assert {e.number: e.state for e in events.of(ev.TrialEnded)}[bad.number] == "failed"
+    assert all(e.number == good.number for e in events.of(ev.NewBest))
+    assert outcome.counts["complete"] == 1
+    assert pick_winner(study.trials, "minimize")[0].number == good.number
+    summary, _ = finalize(load_spec(spec), study, prepare(load_spec(spec)), out_dir=tmp_path / "out",
+                          seed_spread=0)
+    assert summary["trial_number"] == good.number and summary["best_epoch"] == good.user_attrs["best_epoch"]
+
+
 def test_holdout_rows_never_reach_any_trial(tmp_path):
     """Poison the target of every hold-out row with 1e7 (diabetes targets are 25–346): a hold-out
     row in any fold's training or validation rows would push that fold's RMSE far above 1e3 (or

@@ -89,7 +89,7 @@ def test_fixed_settings_and_defaults():
     assert params == {}
     assert settings == {"hidden": [16, 16], "activation": "relu", "optimizer": "adam",
                         "learning_rate": 1.0, "momentum": 0.9, "l2": 0.0, "batch_size": 64,
-                        "epochs": 30}
+                        "epochs": 200, "patience": 10, "init": "auto"}
     assert isinstance(settings["learning_rate"], float)
 
 
@@ -174,6 +174,23 @@ def test_settings_to_config():
                                  "batch_size": 16, "epochs": 3}, dtype="float64")
     assert config.hidden == (8, 4) and config.activation == "tanh" and config.dtype == "float64"
     assert (config.momentum, config.l2, config.batch_size, config.epochs) == (0.8, 1e-4, 16, 3)
+    # settings stored before patience and init existed: the defaults
+    assert (config.patience, config.init) == (10, "auto")
+    config = settings_to_config({"hidden": [8], "activation": "relu", "optimizer": "adam",
+                                 "learning_rate": 0.01, "momentum": 0.9, "l2": 0.0,
+                                 "batch_size": 16, "epochs": 3, "patience": 0, "init": "he"})
+    assert (config.patience, config.init, config.init_scheme) == (0, "he", "he")
+
+
+def test_patience_and_init_are_searchable_settings():
+    space = SearchSpace.from_dict({"patience": {"low": 0, "high": 20}, "init": {"choices": ["glorot", "he"]}})
+    assert set(space.searched_params()) == {"patience", "init"}
+    settings = space.settings_from_params({"patience": 7, "init": "he"})
+    assert (settings["patience"], settings["init"]) == (7, "he")
+    with pytest.raises(SpecError, match="space.patience"):
+        SearchSpace.from_dict({"patience": -1})
+    with pytest.raises(SpecError, match="space.init"):
+        SearchSpace.from_dict({"init": "zeros"})
 
 
 def test_fixed_at_a_linear_model():
@@ -183,4 +200,7 @@ def test_fixed_at_a_linear_model():
     fixed = space.fixed_at(settings)
     assert fixed.to_dict()["hidden_layers"] == 0 and fixed.to_dict()["hidden_units"] == []
     assert SearchSpace.from_dict(fixed.to_dict()) == fixed
-    assert fixed.settings_from_params({}) == settings
+    # settings stored before patience and init existed read as the defaults
+    assert fixed.settings_from_params({}) == {**settings, "patience": 10, "init": "auto"}
+    newer = {**settings, "patience": 0, "init": "he"}
+    assert space.fixed_at(newer).settings_from_params({}) == newer

@@ -100,7 +100,9 @@ def run_search(spec, prepared, n_trials):
                                fa.X_train, fa.y_train, fa.X_val, fa.y_val,
                                seeds=member_seeds(spec.evaluation.seed, len(fa.X_train)),
                                metric=prepared.metric, target_inverse=fa.target_inverse)
-        scores = [float(v) for v in trainer.run()[-1].val_metric]
+        trainer.run()      # scored at the folds' shared best epoch, as run_trial does
+        scores = [float(v) for v in trainer.best_val_metric]
+        trial.set_user_attr("best_epoch", int(trainer.best_epoch[0]))
         trial.set_user_attr("settings", settings)
         trial.set_user_attr("fold_scores", scores)
         trial.set_user_attr("cv_std", float(np.std(scores, ddof=1)))
@@ -318,3 +320,49 @@ def test_a_storage_password_reaches_no_file_labbench_writes(tmp_path):
     # the user's own spec file, saved from the window, keeps what the user wrote
     saved = save_spec(spec, tmp_path / "mine.toml")
     assert load_spec(saved.source_path).search.storage == url
+
+
+# --------------------------------------------------------------------------------------------
+# the refit trains the trial's shared best epoch
+
+
+def test_the_refit_trains_exactly_the_trials_best_epoch(tmp_path):
+    from types import SimpleNamespace
+
+    from labbench.data import Preprocessor
+    from labbench.nets import StackTrainer
+    from labbench.search.objective import member_seeds
+    from labbench.search.space import settings_to_config
+    from labbench.search.winner import refit, refit_epochs
+
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    prepared = prepare(spec)
+    settings = spec.space.settings_from_params({"learning_rate": 0.03, "units_1": 8})
+    settings = {**settings, "epochs": 40, "patience": 3}
+    fa = prepared.fold_arrays
+    trial = StackTrainer(settings_to_config(settings), prepared.task, prepared.n_outputs,
+                         fa.X_train, fa.y_train, fa.X_val, fa.y_val,
+                         seeds=member_seeds(spec.evaluation.seed, len(fa.X_train)))
+    trial.run()
+    best = int(trial.best_epoch[0])
+    assert best < trial.epoch <= 40          # patience stopped it; the shared epoch came earlier
+    stored = SimpleNamespace(user_attrs={"best_epoch": best, "epochs_run": trial.epoch})
+    assert refit_epochs(stored, settings) == best
+    # searches stored before early stopping: the epochs the trial ran, else its setting
+    assert refit_epochs(SimpleNamespace(user_attrs={"epochs_run": 12}), settings) == 12
+    assert refit_epochs(SimpleNamespace(user_attrs={}), settings) == 40
+    _, weights, _ = refit(prepared, settings, seed=spec.evaluation.seed, scaling=spec.data.scaling,
+                          epochs=best)
+    # reference: the same network trained by hand on all training rows for `best` epochs
+    table = prepared.table
+    numeric = [c for c in table.features if table.kinds[c] == "numeric"]
+    categorical = [c for c in table.features if table.kinds[c] == "categorical"]
+    X = Preprocessor(numeric, categorical, scaling=spec.data.scaling).fit_transform(
+        table.frame.iloc[prepared.train_pos])
+    for epochs, same in ((best, True), (40, False)):
+        config = settings_to_config({**settings, "epochs": epochs})
+        by_hand = StackTrainer(config, prepared.task, prepared.n_outputs, [X],
+                               [table.y[prepared.train_pos]], seeds=member_seeds(spec.evaluation.seed, 1))
+        assert len(by_hand.run()) == epochs
+        equal = all(np.array_equal(a, b) for (a, _), (b, _) in zip(weights.layers, by_hand.weights(0).layers))
+        assert equal == same
