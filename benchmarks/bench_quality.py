@@ -116,7 +116,7 @@ def pipeline(model, numeric, categorical):
     parts = [("num", make_pipeline(SimpleImputer(strategy="median"), StandardScaler()), list(numeric))]
     if categorical:
         parts.append(("cat", make_pipeline(SimpleImputer(strategy="most_frequent"),
-                                           OneHotEncoder(handle_unknown="ignore")), list(categorical)))
+                                           OneHotEncoder(handle_unknown="ignore", sparse_output=False)), list(categorical)))
     return make_pipeline(ColumnTransformer(parts), model)
 
 
