@@ -171,11 +171,11 @@ def _row(data, name, done, top, best):
     entry = _space_entry(data, name)
     choices = entry.get("choices") if isinstance(entry, dict) else None
     if choices is not None or any(isinstance(v, (str, bool)) for v in values):
-        cats = [str(c) for c in (choices or sorted({str(v) for v in values}))]
-        for v in values:
-            if str(v) not in cats:
-                cats.append(str(v))
-        return {"kind": "choice", "cats": cats, "pos": lambda v: (cats.index(str(v)) + 0.5) / len(cats)}
+        raw = list(choices or sorted({v for v in values}, key=str))
+        raw += [v for v in dict.fromkeys(values) if str(v) not in {str(c) for c in raw}]
+        cats = [str(c) for c in raw]
+        return {"kind": "choice", "cats": cats, "words": [value_words(name, c) for c in raw],
+                "pos": lambda v: (cats.index(str(v)) + 0.5) / len(cats)}
     log = name in (data.attrs.get("log_scaled") or []) or (name.startswith("units_") and
                                                             "hidden_units" in (data.attrs.get("log_scaled") or []))
     nums = [float(v) for v in values]
@@ -230,7 +230,7 @@ def good_ranges(data: ReportData) -> str | None:
                     ax.plot([i / n + 0.01, (i + 1) / n - 0.01], [y, y], color=C["good_span"],
                             alpha=0.25 + 0.75 * share, linewidth=7, solid_capstyle="butt", zorder=2,
                             label=once("where the best quarter of the trials sit"))
-                ax.text((i + 0.5) / n, y + 0.3, cat, ha="center", va="center", fontsize=8,
+                ax.text((i + 0.5) / n, y + 0.3, row["words"][i], ha="center", va="center", fontsize=8,
                         color=C["muted"])
         else:
             ax.plot([0, 1], [y, y], color=C["range"], linewidth=7, solid_capstyle="butt", zorder=1,

@@ -98,7 +98,7 @@ def settings_in_words(settings: Mapping[str, Any]) -> str:
 
 
 def params_in_words(params: Mapping[str, Any]) -> str:
-    return ", ".join(f"{setting_label(k)} {value_words(k, v)}" for k, v in params.items())
+    return "; ".join(f"{setting_label(k)}: {value_words(k, v)}" for k, v in params.items())
 
 
 def state_of(row) -> str:
