@@ -115,6 +115,9 @@ def summary_section(data: ReportData) -> str:
         pairs.append(("winning trial", f"#{w.get('trial_number')} of {len(data.trials)}"))
         parts.append(_headline(pairs))
         parts.append(f"<p><b>Settings:</b> {esc(settings_in_words(w.get('settings') or {}))}.</p>")
+        if w.get("best_epoch"):
+            parts.append(f"<p>The trial did best at epoch {esc(w['best_epoch'])}; the refitted model "
+                         f"was trained for that many epochs.</p>")
         verdict = (w.get("cv_vs_holdout") or {}).get("text")
         if verdict:
             parts.append(f"<p>{esc(verdict)}</p>")

@@ -90,10 +90,18 @@ def settings_in_words(settings: Mapping[str, Any]) -> str:
                  if optimizer == "momentum" and settings.get("momentum") is not None else "")
         parts.append(f"{optimizer} optimizer{extra}")
     for key, words in (("learning_rate", "learning rate"), ("batch_size", "batch size"),
-                       ("epochs", "epochs"), ("l2", "L2 penalty")):
-        if key in settings and settings[key] is not None:
-            value = value_words(key, settings[key])
-            parts.append(f"{value} epochs" if key == "epochs" else f"{words} {value}")
+                       ("l2", "L2 penalty")):
+        if settings.get(key) is not None:
+            parts.append(f"{words} {value_words(key, settings[key])}")
+    epochs, patience = settings.get("epochs"), settings.get("patience")
+    if epochs is not None:
+        if isinstance(patience, int) and not isinstance(patience, bool) and patience > 0:
+            parts.append(f"up to {epochs} epochs, stopping after {patience} without a better "
+                         f"validation loss")
+        else:
+            parts.append(f"{epochs} epochs")
+    if settings.get("init") not in (None, "auto"):
+        parts.append(f"{settings['init']} initial weights")
     return ", ".join(parts)
 
 

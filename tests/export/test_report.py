@@ -334,11 +334,12 @@ def test_report_of_a_single_trial(tmp_path):
     study = _study("single", "minimize", "rmse")
     _add(study, TrialState.COMPLETE, 2.5, fold_scores=[2.4, 2.6], cv_std=0.14,
          settings={"hidden": [8], "activation": "relu", "optimizer": "adam", "learning_rate": 0.01,
-                   "batch_size": 32, "epochs": 5, "l2": 0.0})
+                   "batch_size": 32, "epochs": 50, "patience": 10, "init": "he", "l2": 0.0})
     text = write_report(study, tmp_path / "one.html").read_text()
     parsed = _check_page(text)
     visible = " ".join(parsed.text)
     assert "1 trial in this search: 1 finished + 0 stopped early + 0 failed." in visible
     assert "1 hidden layer of 8 units, relu activation, adam optimizer, learning rate 0.01" in visible
-    assert "L2 penalty off" in visible
+    assert "L2 penalty off" in visible and "he initial weights" in visible
+    assert "up to 50 epochs, stopping after 10 without a better validation loss" in visible
     assert len(_svgs(text)) == 2               # the climb and the ranges; no curve was stored
