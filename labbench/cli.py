@@ -7,6 +7,7 @@
 ``labbench show SPEC|URL``   lists the trials of a search
 ``labbench predict ...``     predictions from a saved model bundle
 ``labbench report SPEC|URL`` writes the HTML report of a search
+``labbench demo [FOLDER]``   copies the bundled demo sets into a folder (``--where``: where they are)
 
 Exit codes: 0 done, 2 bad input (one line, no traceback), 130 interrupted (Ctrl-C).
 Each subcommand lives next to the code it drives and registers itself through
@@ -31,8 +32,9 @@ EXIT_INTERRUPTED = 130
 _COMMAND_MODULES = (
     "labbench.search.commands",   # run, show
     "labbench.export.commands",   # predict, report
+    "labbench.assets",            # demo
 )
-_SUBCOMMANDS = ("run", "show", "predict", "report")
+_SUBCOMMANDS = ("run", "show", "predict", "report", "demo")
 
 log = logging.getLogger("labbench")
 
@@ -118,6 +120,10 @@ def _main(argv: list[str] | None = None) -> int:
         _setup_logging(args.verbose, False)
         from labbench.gui.app import run_app  # Qt is loaded only here
 
+        if args.demo:      # found through labbench.assets: also from an installed wheel
+            from labbench.assets import demo_to_open
+
+            return int(run_app(spec=str(demo_to_open()), demo=False))
         return int(run_app(spec=args.spec, demo=args.demo))
     except LabbenchError as exc:
         print(f"labbench: {exc}", file=sys.stderr)

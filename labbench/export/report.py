@@ -1,18 +1,17 @@
-"""The HTML report of a search: one self-contained file (inline CSS, images as base64 PNG data
-URLs, no script, nothing fetched from a network).
+"""The HTML report of a search: one self-contained page (inline CSS and inline SVG pictures, no
+script, nothing fetched from a network), in the window's palette.
 
-Sections (each an ``<section id=...>``): job, data, space, trials, winner, environment, cautions.
-Pictures are PNG files drawn by labbench itself (``labbench.export.charts``: numpy + zlib, no
-plotting library and no Qt), so the report looks the same wherever it is opened, can be mailed
-or archived as one file, and the core stays free of GUI dependencies.
+It reads top-down like a bench sheet: first the winner and how sure we are, with the caution (one
+screen), then the data, the search space, the trials, the checks of the winner and the machine.
+Each part is a ``<section id=...>`` in the order of ``SECTIONS``. The pictures are matplotlib
+figures saved as SVG with real text (``labbench.export.report_plots``); matplotlib is imported
+only when a report is written.
 """
 
 from __future__ import annotations
 
-import base64
 import html
 import logging
-import math
 import os
 from pathlib import Path
 from typing import Any, Iterable
@@ -20,33 +19,28 @@ from typing import Any, Iterable
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
 from labbench.export import report_plots as plots
-from labbench.search.commands import param_label
+from labbench.export.report_style import CSS
+from labbench.export.report_words import (STATE_ORDER, STATE_WORDS, better_words, counts,
+                                          counts_sentence, metric_label, num, params_in_words,
+                                          setting_label, settings_in_words, state_of)
 
 log = logging.getLogger("labbench.export.report")
 
-SECTIONS = ("job", "data", "space", "trials", "winner", "environment", "cautions")
-_CSS = """
-body{font-family:system-ui,-apple-system,"Segoe UI",sans-serif;max-width:960px;margin:2em auto;
-padding:0 1em;color:#222;line-height:1.45}
-h1{font-size:1.5em;margin-bottom:.2em}h2{border-bottom:1px solid #ccc;padding-bottom:.2em;margin-top:2em}
-table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #ddd;padding:.25em .6em;text-align:left;
-vertical-align:top}th{background:#f3f3f3}td.num{text-align:right;font-variant-numeric:tabular-nums}
-figure{margin:1em 0}figure img{max-width:100%;border:1px solid #eee}figcaption{color:#555;font-size:.9em}
-.note{background:#fff6e0;border-left:4px solid #d99a1e;padding:.4em .8em;margin:.5em 0}
-.job{font-size:1.1em}code{background:#f4f4f4;padding:0 .2em}
-"""
+SECTIONS = ("summary", "data", "space", "trials", "checks", "environment")
+TITLES = {"summary": "The winner and how sure we are", "data": "The data",
+          "space": "The search space", "trials": "The trials",
+          "checks": "The winner under test", "environment": "Machine and versions"}
+MORE_CAUTIONS = (
+    "The hold-out score is one draw of a limited number of rows; its own uncertainty can be as "
+    "large as the differences between trials.",
+    "The more trials a search runs on a small data set, the more its best cross-validated score "
+    "flatters the winner (it was picked because it did well on these folds).",
+)
+MAX_ROWS = 300
 
 
 def esc(value: Any) -> str:
     return html.escape("" if value is None else str(value), quote=True)
-
-
-def num(value: Any, digits: int = 4) -> str:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        return esc(value if value is not None else "n/a")
-    if isinstance(value, int):
-        return str(value)
-    return "n/a" if not math.isfinite(value) else f"{value:.{digits}g}"
 
 
 def table(header: Iterable[str], rows: Iterable[Iterable[Any]], numeric: Iterable[int] = ()) -> str:
@@ -54,189 +48,263 @@ def table(header: Iterable[str], rows: Iterable[Iterable[Any]], numeric: Iterabl
     head = "".join(f"<th>{esc(h)}</th>" for h in header)
     body = []
     for row in rows:
-        cells = [f'<td class="num">{num(c)}</td>' if i in numeric else f"<td>{esc(c)}</td>"
+        cells = [f'<td class="num">{esc(num(c))}</td>' if i in numeric else f"<td>{esc(c)}</td>"
                  for i, c in enumerate(row)]
         body.append("<tr>" + "".join(cells) + "</tr>")
     return f"<table><tr>{head}</tr>{''.join(body)}</table>"
 
 
-def figure(png: bytes | None, alt: str, caption: str) -> str:
-    if png is None:
-        return f'<p class="note">{esc(caption)}: nothing to draw yet.</p>'
-    src = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
-    return f'<figure><img src="{src}" alt="{esc(alt)}"><figcaption>{esc(caption)}</figcaption></figure>'
+def figure(svg: str | None, caption: str, missing: str = "nothing to draw yet") -> str:
+    if svg is None:
+        return f'<p class="note">{esc(caption)}: {esc(missing)}.</p>'
+    return f"<figure>{svg}<figcaption>{esc(caption)}</figcaption></figure>"
 
 
 def note(text: str) -> str:
     return f'<p class="note">{esc(text)}</p>'
 
 
-# -- sections -----------------------------------------------------------------------------------
-
 def _target(data: ReportData) -> str:
     return (data.spec.get("data") or {}).get("target") or (data.winner or {}).get("target") or "?"
 
 
-def job_line(data: ReportData) -> str:
-    counts = _counts(data)
+def _metric(data: ReportData) -> str:
+    return metric_label(data.attrs.get("metric") or (data.winner or {}).get("metric"))
+
+
+def _task_words(data: ReportData) -> str:
+    task = data.data.get("task") or (data.winner or {}).get("task")
+    classes = data.data.get("classes") or (data.winner or {}).get("classes")
+    if task == "regression":
+        return "a quantity (regression)"
+    if classes:
+        return f"one of {len(classes)} classes ({task})"
+    return task or "?"
+
+
+def _best_trial(data: ReportData):
+    best = plots.best_number(data)
+    return next((t for t in data.trials if t.number == best), None)
+
+
+# -- summary ------------------------------------------------------------------------------------
+
+def _headline(pairs: list[tuple[str, str]]) -> str:
+    cells = "".join(f"<div><span>{esc(k)}</span><b>{esc(v)}</b></div>" for k, v in pairs)
+    return f'<div class="headline">{cells}</div>'
+
+
+def summary_section(data: ReportData) -> str:
+    metric, w, c = _metric(data), data.winner, counts(data.trials)
     path = data.data.get("path") or (data.spec.get("data") or {}).get("path") or "the data"
-    metric = data.attrs.get("metric") or "its metric"
-    return (f"Search '{data.study_name}': predict {_target(data)} ({data.data.get('task') or '?'}) "
-            f"from {Path(str(path)).name} with a small neural network; {len(data.trials)} trial(s), "
-            f"{counts['complete']} complete, ranked by cross-validated {metric} ({data.direction}).")
+    parts = [f"<p>Predict <b>{esc(_target(data))}</b>, {esc(_task_words(data))}, from "
+             f"{esc(Path(str(path)).name)} with a small neural network; trials ranked by "
+             f"cross-validated {esc(metric)} ({better_words(data.direction)}).</p>"]
+    best = _best_trial(data)
+    if w:
+        folds = len(w.get("fold_scores") or [])
+        spread = w.get("seed_spread") or {}
+        pairs = [(f"cross-validated {metric}, {folds} folds",
+                  f"{num(w.get('cv_mean'))} ± {num(w.get('cv_std'))}"),
+                 (f"hold-out, {w.get('holdout_rows', '?')} unseen rows", num(w.get("holdout_score")))]
+        if spread.get("scores"):
+            pairs.append((f"seed spread, {len(spread['scores'])} seeds",
+                          f"± {num(spread.get('std'), 3)}"))
+        else:
+            pairs.append(("seed spread", "not measured"))
+        pairs.append(("winning trial", f"#{w.get('trial_number')} of {len(data.trials)}"))
+        parts.append(_headline(pairs))
+        parts.append(f"<p><b>Settings:</b> {esc(settings_in_words(w.get('settings') or {}))}.</p>")
+        if w.get("best_epoch"):
+            parts.append(f"<p>The trial did best at epoch {esc(w['best_epoch'])}; the refitted model "
+                         f"was trained for that many epochs.</p>")
+        verdict = (w.get("cv_vs_holdout") or {}).get("text")
+        if verdict:
+            parts.append(f"<p>{esc(verdict)}</p>")
+        for warning in w.get("warnings") or []:
+            parts.append(note(warning))
+    elif best is not None:
+        parts.append(_headline([(f"cross-validated {metric}", f"{num(best.value)} ± {num(best.cv_std)}"),
+                                ("hold-out", "not computed"), ("seed spread", "not computed"),
+                                ("best trial so far", f"#{best.number} of {len(data.trials)}")]))
+        words = settings_in_words(best.settings) if best.settings else params_in_words(best.params)
+        parts.append(f"<p><b>Settings:</b> {esc(words)}.</p>")
+        parts.append(note("No winner.json was found in the output folder, so the refit, the hold-out "
+                          "score and the seed spread are not known yet; labbench run writes them "
+                          "when the search ends."))
+    else:
+        parts.append(note("No trial has finished with a score yet, so there is no winner."))
+    parts.append(f"<p>{esc(counts_sentence(c))}</p>")
+    parts.append(f'<div class="caution"><b>Caution.</b> {esc(CAUTION)}</div>')
+    return '<div class="sheet">' + "".join(parts) + "</div>"
 
 
-def _counts(data: ReportData) -> dict[str, int]:
-    counts = {"complete": 0, "pruned": 0, "failed": 0, "running": 0, "waiting": 0}
-    for t in data.trials:
-        counts[t.state] = counts.get(t.state, 0) + 1
-    return counts
-
+# -- data, space --------------------------------------------------------------------------------
 
 def data_section(data: ReportData) -> str:
     d = data.data
     train, hold = d.get("train_rows"), d.get("holdout_rows")
     total = train + hold if isinstance(train, int) and isinstance(hold, int) else None
-    rows = [("file", d.get("path") or "unknown"), ("target", _target(data)), ("task", d.get("task")),
-            ("rows used", f"{num(total)} ({num(train)} for the search's folds, {num(hold)} locked hold-out)"),
+    rows = [("file", d.get("path") or "unknown"), ("target", _target(data)), ("task", _task_words(data)),
+            ("rows used", f"{num(total)}: {num(train)} for the cross-validation folds, "
+                          f"{num(hold)} locked away as the hold-out"),
             ("classes", ", ".join(map(str, d["classes"])) if d.get("classes") else "-"),
             ("fingerprint (SHA-256 of the file)", d.get("sha256") or "unknown")]
     parts = [table(("", ""), rows)]
     if d.get("changed"):
         parts.append(note("The data file has changed since the search ran (its fingerprint differs): "
-                          "the numbers below describe the file as it was then."))
+                          "the numbers here describe the file as it was then."))
     columns = d.get("columns")
     if columns:
-        parts.append(f"<p>{len(columns)} column(s) in the file as it is now ({num(d.get('file_rows'))} rows):</p>")
         spec_data = data.spec.get("data") or {}
         ignored = set(spec_data.get("ignore") or [])
 
         def role(col: str) -> str:
             if col == spec_data.get("target"):
                 return "target"
-            return "ignored" if col in ignored else "input"
+            return "left out" if col in ignored else "input"
 
-        parts.append(table(("column", "kind as read", "role"),
-                           [(col, kind, role(col)) for col, kind in columns.items()]))
+        parts.append(f"<p>{len(columns)} columns in the file as it is now "
+                     f"({esc(num(d.get('file_rows')))} rows):</p>")
+        parts.append(table(("column", "read as", "role"), [(col, kind, role(col)) for col, kind in columns.items()]))
     elif d.get("path"):
         parts.append(note("The data file is not reachable from here, so its columns are not listed."))
     return "".join(parts)
 
 
-def _describe_setting(value: Any) -> str:
+def _describe_setting(name: str, value: Any) -> str:
     if isinstance(value, dict):
         if "choices" in value:
-            return "one of " + ", ".join(str(c) for c in value["choices"])
+            return "searched: one of " + ", ".join(str(c) for c in value["choices"])
         if "low" in value and "high" in value:
             scale = " on a log scale" if value.get("log") else ""
-            step = f", step {value['step']}" if "step" in value else ""
-            return f"from {value['low']} to {value['high']}{scale}{step}"
-        return ", ".join(f"{k} = {v}" for k, v in value.items())
+            step = f", in steps of {value['step']}" if "step" in value else ""
+            off = ", or off" if value.get("off") else ""
+            return f"searched: from {value['low']} to {value['high']}{scale}{step}{off}"
+        return ", ".join(f"{k} {v}" for k, v in value.items())
     return f"fixed at {value}"
+
+
+SAMPLER_WORDS = {"tpe": "tree-structured Parzen estimator (TPE)", "random": "random sampling",
+                 "grid": "a grid of every combination", "qmc": "quasi-Monte Carlo sequence",
+                 "cmaes": "CMA-ES"}
+PRUNER_WORDS = {"median": "a trial behind the median of earlier trials at the same epoch stops early",
+                "none": "no trial is stopped early"}
 
 
 def space_section(data: ReportData) -> str:
     spec = data.spec
     if not spec:
-        return note("The study holds no spec text, so its search space cannot be shown.")
-    searched = set(data.attrs.get("searched") or [])
-    space_rows = [(k, _describe_setting(v)) for k, v in (spec.get("space") or {}).items()]
-    parts = [table(("setting", "values tried"), space_rows) if space_rows
-             else "<p>No [space] entries: every setting had its default.</p>"]
+        return note("The search holds no spec text, so its search space cannot be shown.")
+    rows = [(setting_label(k), _describe_setting(k, v)) for k, v in (spec.get("space") or {}).items()]
+    parts = [table(("setting", "how it was set"), rows) if rows
+             else "<p>No setting was listed: every setting had its default.</p>"]
     ev, se = spec.get("evaluation") or {}, spec.get("search") or {}
-    parts.append(f"<p>Evaluation: {esc(ev.get('folds', 5))}-fold cross-validation"
-                 f"{esc(' × ' + str(ev['repeats']) + ' repeats' if ev.get('repeats', 1) != 1 else '')}, "
-                 f"hold-out fraction {esc(ev.get('holdout', 0.2))}, seed {esc(ev.get('seed', 0))}, "
-                 f"metric {esc(data.attrs.get('metric'))}. Search: sampler {esc(se.get('sampler', 'tpe'))}, "
-                 f"pruner {esc(se.get('pruner', 'median'))}, {esc(se.get('workers', 1))} worker(s), "
-                 f"budget {esc(se.get('trials', '?'))} trial(s)"
-                 f"{esc(', ' + str(se['minutes']) + ' minutes' if se.get('minutes') else '')}.</p>")
-    if searched:
-        parts.append(f"<p>Searched parameters: {esc(', '.join(sorted(map(param_label, searched))))}.</p>")
+    repeats = ev.get("repeats", 1)
+    parts.append(f"<p><b>Evaluation:</b> {esc(ev.get('folds', 5))}-fold cross-validation"
+                 f"{esc(f' repeated {repeats} times' if repeats != 1 else '')} on the training rows, "
+                 f"after {esc(num(100 * float(ev.get('holdout', 0.2)), 3))} % of the rows were locked "
+                 f"away as the hold-out (seed {esc(ev.get('seed', 0))}); score: {esc(_metric(data))}.</p>")
+    sampler = se.get("sampler", "tpe")
+    pruner = se.get("pruner", "median")
+    parts.append(f"<p><b>Search:</b> new settings drawn by {esc(SAMPLER_WORDS.get(sampler, sampler))}; "
+                 f"{esc(PRUNER_WORDS.get(pruner, pruner + ' pruning'))}; "
+                 f"{esc(se.get('workers', 1))} trial(s) at a time.</p>")
+    parts.append(f"<p><b>Budget:</b> {esc(budget_sentence(data))}</p>")
     return "".join(parts)
 
+
+def budget_sentence(data: ReportData) -> str:
+    se = (data.spec or {}).get("search") or {}
+    asked, ran = se.get("trials"), len(data.trials)
+    minutes = f" (or {se['minutes']} minutes)" if se.get("minutes") else ""
+    if not isinstance(asked, int):
+        return f"{ran} trials ran{minutes}."
+    if ran == asked:
+        return f"{asked} trials{minutes}; all {ran} ran."
+    if ran > asked:
+        return (f"{ran} trials ran: the spec asks for {asked} per run{minutes}, and the search was "
+                f"resumed or given more trials on the command line.")
+    return (f"{ran} of the {asked} trials the spec asks for{minutes} ran (the search was stopped, "
+            f"ran out of time, or is still going).")
+
+
+# -- trials -------------------------------------------------------------------------------------
 
 def trials_section(data: ReportData) -> str:
-    counts = _counts(data)
-    parts = [table(("state", "trials"), [(k, v) for k, v in counts.items()], numeric=(1,))]
-    parts.append(figure(plots.score_by_trial(data), "score by trial",
-                        f"Cross-validated {plots.metric_label(data, long=True)} of each complete trial, and the best so far."))
-    parts.append(figure(plots.learning_curves(data), "learning curves",
-                        "Validation loss by epoch (mean over the folds) of each trial; the winner in bold."))
-    importance = (data.winner or {}).get("importance")
-    if importance is None:
-        from labbench.search.insight import param_importance
-
-        importance = _importance_from_trials(data, param_importance)
-    chart = plots.importance_chart(importance)
-    if chart is not None:
-        parts.append(figure(chart, "parameter importance",
-                            f"How much of the score's variation each searched setting explains "
-                            f"({importance.get('method')}, {importance.get('n_complete')} complete trials)."))
-    if importance and importance.get("message"):
+    c = counts(data.trials)
+    metric = _metric(data)
+    rows = [(STATE_WORDS[k], c[k]) for k in STATE_ORDER if c[k] or k in ("complete", "pruned", "failed")]
+    parts = [f"<p>{esc(counts_sentence(c))}</p>",
+             table(("state", "trials"), rows + [("total", sum(c.values()))], numeric=(1,))]
+    parts.append(figure(plots.climb(data),
+                        f"How far the best cross-validated {metric} climbed: each dot a finished trial, "
+                        "the line the best so far, the milestones named by trial number; ticks at the "
+                        "bottom mark the trials that stopped early or failed."))
+    parts.append(figure(plots.good_ranges(data),
+                        "Where good scores live: each searched setting's range as a grey bar, every "
+                        "tried value as a tick, the span of the best quarter of the finished trials in "
+                        "green, and the winner as a diamond."))
+    parts.append(figure(plots.learning_band(data),
+                        "Validation loss by epoch: the band holds 10-90 % of the trials at each epoch, "
+                        "the thin line their median, the green line the winner."))
+    importance = (data.winner or {}).get("importance") or {}
+    values = importance.get("values") or {}
+    if values:
+        top = sorted(values.items(), key=lambda kv: -kv[1])[:3]
+        parts.append(f"<p>The settings that moved the score most: "
+                     f"{esc(', '.join(f'{setting_label(k)} ({100 * v:.0f} %)' for k, v in top))}"
+                     f" of the explained variation.</p>")
+    if importance.get("message"):
         parts.append(note(importance["message"]))
-    for name in plots.searched_names(data):
-        label = param_label(name)
-        parts.append(figure(plots.setting_chart(data, name), f"{label} against the score",
-                            f"Score of each complete trial against {label}."))
     best = plots.best_number(data)
-    rows = []
-    for t in data.trials[-300:]:
-        params = ", ".join(f"{param_label(k)}={num(v, 3) if isinstance(v, float) else v}"
-                           for k, v in t.params.items())
-        rows.append((t.number, t.state + (" (winner)" if t.number == best else ""), t.value,
-                     t.cv_std, t.epochs_run, t.duration_s, params, t.end_reason))
-    parts.append("<h3>All trials</h3>" + ("<p>The last 300 are listed.</p>" if len(data.trials) > 300 else ""))
-    parts.append(table(("trial", "state", "CV mean", "CV std", "epochs", "seconds", "parameters", "why it ended"),
-                       rows, numeric=(0, 2, 3, 4, 5)))
+    listed = data.trials[-MAX_ROWS:]
+    table_rows = []
+    for t in listed:
+        state = STATE_WORDS.get(state_of(t), state_of(t)) + (" (winner)" if t.number == best else "")
+        table_rows.append((t.number, state, t.value, t.cv_std, t.epochs_run, t.duration_s,
+                           params_in_words(t.params), t.end_reason))
+    parts.append("<h3>Every trial</h3>")
+    if len(data.trials) > MAX_ROWS:
+        parts.append(f"<p>The last {MAX_ROWS} of {len(data.trials)} are listed.</p>")
+    parts.append(table(("trial", "state", f"CV {metric}", "spread over folds", "epochs", "seconds",
+                        "settings tried", "why it ended"), table_rows, numeric=(0, 2, 3, 4, 5)))
     return "".join(parts)
 
 
-def _importance_from_trials(data: ReportData, param_importance) -> dict[str, Any] | None:
-    if data.study is None:
-        return {"values": {}, "message": "Parameter importance is computed when the winner is "
-                "checked (labbench run); no winner.json was found for this search."}
-    return param_importance(data.study)
+# -- the winner under test ----------------------------------------------------------------------
 
-
-def winner_section(data: ReportData) -> str:
+def checks_section(data: ReportData) -> str:
     w = data.winner
+    extra = "<ul>" + "".join(f"<li>{esc(t)}</li>" for t in MORE_CAUTIONS) + "</ul>"
     if not w:
-        best = plots.best_number(data)
-        text = ("No winner.json was found in the output folder, so the refit, the hold-out score and "
-                "its seed spread are not known yet; `labbench run` writes them when the search ends.")
-        if best is not None:
-            t = next(t for t in data.trials if t.number == best)
-            text += f" The best complete trial so far is trial {best} with CV {num(t.value)} ± {num(t.cv_std)}."
-        return note(text)
-    metric = w.get("metric")
-    parts = [f"<p>Trial {esc(w.get('trial_number'))} won: cross-validated {esc(metric)} "
-             f"<b>{num(w.get('cv_mean'))} ± {num(w.get('cv_std'))}</b> (mean ± sample standard "
-             f"deviation over the folds); hold-out {esc(metric)} <b>{num(w.get('holdout_score'))}</b> "
-             f"on {esc(w.get('holdout_rows'))} rows never seen by any trial.</p>"]
-    settings = w.get("settings") or {}
-    parts.append(table(("setting", "value"), [(k, v) for k, v in settings.items()]))
-    folds = w.get("fold_scores") or []
-    parts.append(table(["fold"] + [str(i + 1) for i in range(len(folds))], [[metric] + list(folds)],
-                       numeric=range(1, len(folds) + 1)))
-    cmp_ = w.get("cv_vs_holdout") or {}
-    if cmp_.get("text"):
-        parts.append(f"<p>{esc(cmp_['text'])}</p>")
-    spread = w.get("seed_spread")
-    if spread and spread.get("scores"):
-        parts.append(f"<p>Seed spread: retrained with {len(spread['scores'])} seeds, CV {esc(metric)} "
-                     f"{num(spread.get('mean'))} ± {num(spread.get('std'))} (range {num(spread.get('range'))}).</p>")
-        parts.append(table(("seed", "CV score"), zip(spread.get("seeds") or range(len(spread["scores"])),
-                                                     spread["scores"]), numeric=(0, 1)))
+        return note("The winner has not been refitted and checked yet (no winner.json).") + extra
+    metric = metric_label(w.get("metric"))
+    parts = [f"<p>Trial {esc(w.get('trial_number'))} won with cross-validated {esc(metric)} "
+             f"{esc(num(w.get('cv_mean')))} ± {esc(num(w.get('cv_std')))} (mean ± sample standard "
+             f"deviation over the folds). Refitted on all {esc(w.get('train_rows', '?'))} training rows, "
+             f"it scored {esc(num(w.get('holdout_score')))} once on the {esc(w.get('holdout_rows', '?'))} "
+             f"hold-out rows that no trial saw.</p>"]
+    parts.append(figure(plots.fold_bars(data), f"The winner's {metric} on each fold, bars from zero; "
+                        "the dashed line is their mean."))
+    spread = w.get("seed_spread") or {}
+    if spread.get("scores"):
+        parts.append(figure(plots.seed_spread(data),
+                            f"The winner's settings retrained with {len(spread['scores'])} seeds on the same "
+                            f"folds: cross-validated {metric} {num(spread.get('mean'))} ± "
+                            f"{num(spread.get('std'))}, range {num(spread.get('range'))}; the open "
+                            "diamond is the hold-out score.", "fewer than two seeds"))
     else:
         parts.append("<p>Seed spread: not measured.</p>")
-    runner = w.get("runner_up")
-    if runner and runner.get("text") and runner["text"] not in (w.get("warnings") or []):
+    runner = w.get("runner_up") or {}
+    if runner.get("text") and runner["text"] not in (w.get("warnings") or []):
         parts.append(f"<p>{esc(runner['text'])}</p>")
-    for warning in w.get("warnings") or []:
-        parts.append(note(warning))
-    parts.append(f"<p>Read from <code>{esc(data.winner_path)}</code>.</p>")
-    return "".join(parts)
+    for fallback in w.get("refit_fallback") or []:
+        parts.append(note(f"Trial {fallback.get('trial_number')} could not be refitted "
+                          f"({fallback.get('reason')}); the next best was taken."))
+    parts.append(f"<p>Settings of the winner: {esc(settings_in_words(w.get('settings') or {}))}.</p>")
+    parts.append(f'<p class="muted">Read from <code>{esc(data.winner_path)}</code>.</p>')
+    return "".join(parts) + extra
 
 
 def environment_section(data: ReportData) -> str:
@@ -248,31 +316,19 @@ def environment_section(data: ReportData) -> str:
     if winner_versions and winner_versions != search_versions:
         parts.append("<p>The winner was checked with:</p>" + table(("package", "version"), winner_versions.items()))
     parts.append("<p>This report was written on:</p>" + table(("", ""), data.machine.items()))
-    parts.append(f"<p>Storage: <code>{esc(data.storage)}</code>, study <code>{esc(data.study_name)}</code>.</p>")
+    parts.append(f"<p>Storage: <code>{esc(data.storage)}</code>, search name "
+                 f"<code>{esc(data.study_name)}</code>.</p>")
     return "".join(parts)
 
 
-def cautions_section(data: ReportData) -> str:
-    items = [CAUTION,
-             "The hold-out score is one draw of a limited number of rows; its own uncertainty can be "
-             "as large as the differences between trials.",
-             "The more trials a search runs on a small data set, the more its best CV score flatters "
-             "the winner (it was picked because it did well on these folds)."]
-    return "<ul>" + "".join(f"<li>{esc(t)}</li>" for t in items) + "</ul>"
-
-
 def render_html(data: ReportData) -> str:
-    body = {"job": f'<p class="job">{esc(job_line(data))}</p>', "data": data_section(data),
-            "space": space_section(data), "trials": trials_section(data),
-            "winner": winner_section(data), "environment": environment_section(data),
-            "cautions": cautions_section(data)}
-    titles = {"job": "The job", "data": "The data", "space": "The search space", "trials": "The trials",
-              "winner": "The winner and how sure we are", "environment": "Environment",
-              "cautions": "Cautions"}
-    sections = "".join(f'<section id="{k}"><h2>{titles[k]}</h2>{body[k]}</section>' for k in SECTIONS)
+    build = {"summary": summary_section, "data": data_section, "space": space_section,
+             "trials": trials_section, "checks": checks_section, "environment": environment_section}
+    sections = "".join(f'<section id="{k}"><h2>{TITLES[k]}</h2>{build[k](data)}</section>'
+                       for k in SECTIONS)
     return (f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
             f'<meta name="viewport" content="width=device-width, initial-scale=1">'
-            f"<title>labbench report: {esc(data.study_name)}</title><style>{_CSS}</style></head>"
+            f"<title>labbench report: {esc(data.study_name)}</title><style>{CSS}</style></head>"
             f"<body><h1>labbench report: {esc(data.study_name)}</h1>{sections}</body></html>\n")
 
 

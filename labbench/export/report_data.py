@@ -139,7 +139,7 @@ def collect(source: Any, study: str | None = None) -> ReportData:
     from labbench.search.storage import mask_url
 
     if hasattr(source, "get_trials") and hasattr(source, "study_name"):
-        opened, shown = source, "(an open study)"
+        opened, shown = source, "(a search opened in Python)"
     else:
         from labbench.search.commands import open_for_reading
 
