@@ -232,8 +232,9 @@ def study_exists(storage, name: str) -> bool:
         return False
 
 
-#: How long a process joining a just-created search waits for its creator's attrs.
-JOIN_WAIT_S = 30.0
+#: How long a process joining a just-created search waits for its creator's attrs (written
+#: milliseconds after the study; generous for a loaded machine or a distant database).
+JOIN_WAIT_S = 10.0
 
 
 def _running(study) -> int:
