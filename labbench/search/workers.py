@@ -315,6 +315,8 @@ class WorkerPool:
                                                                 slot.state == "starting"):
                 continue
             limit = max(self.silent_s, 10.0 * slot.longest_gap)
+            if slot.state == "starting":       # importing and preparing the data: allow more
+                limit = max(10.0 * self.silent_s, 120.0)
             if now - slot.heard > limit and slot.process.is_alive():
                 slot.why = f"it sent nothing for {now - slot.heard:.0f} s (watchdog)"
                 log.warning("worker %d: %s; stopping it", slot.index + 1, slot.why)
