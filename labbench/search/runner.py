@@ -156,6 +156,7 @@ class SearchRunner:
             finally:
                 self.beats.stop()
                 self.pool.shutdown()
+        reclaim_orphans(self.study)       # what a process killed meanwhile left, for the next run
         outcome = self._outcome()
         self.emit(ev.SearchEnded(reason=outcome.reason, counts=outcome.counts,
                                  best_number=outcome.best_number, best_value=outcome.best_value,

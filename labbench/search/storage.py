@@ -169,13 +169,13 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
             "create it or choose another path"
         )
     try:
-        storage = claiming_storage_class()(
+        storage = _first_open(lambda: claiming_storage_class()(
             url,
             heartbeat_interval=int(heartbeat.interval),
             grace_period=int(heartbeat.grace),
             heartbeat_stale_trial_callback=RetryHeartbeatStaleTrialCallback(
                 max_retry=RETRIES if max_retry is None else max_retry),
-        )
+        ))
         if url.startswith("sqlite"):
             _sqlite_write_ahead(storage)
         return storage
@@ -190,6 +190,23 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
             f"storage {shown}: cannot open it ({reason}); check the URL in [search] storage or "
             "--storage"
         ) from None
+
+
+def _first_open(make, attempts: int = 4):
+    """Several processes opening a new database at once race to create Optuna's tables (seen on
+    PostgreSQL as a duplicate key in pg_type): the losers try again once the tables are there."""
+    import random
+
+    import sqlalchemy.exc
+
+    for attempt in range(attempts):
+        try:
+            return make()
+        except sqlalchemy.exc.IntegrityError:
+            if attempt == attempts - 1:
+                raise
+            time.sleep(0.2 + random.random() * 0.5)
+    raise AssertionError("unreachable")
 
 
 def _sqlite_write_ahead(storage) -> None:
