@@ -196,8 +196,10 @@ def one_count(n: int, trials: int, spec: Path, base: str, folder: Path) -> dict:
             continue
         first = min(t.datetime_start for t in mine).timestamp()   # naive local time, as Optuna
         last = max(t.datetime_complete for t in mine).timestamp()  # stores it
-        wait = sum(d for w, d in json.loads(wait_file.read_text())["waits"] if first <= w <= last)
-        per_proc.append((wait, wait / (last - first) if last > first else float("nan")))
+        inside = [d for w, d in json.loads(wait_file.read_text())["waits"] if first <= w <= last]
+        wait = sum(inside)
+        per_proc.append((wait, wait / (last - first) if last > first else float("nan"),
+                         len(inside) / len(mine)))
     return {"n": n, "trials": len(done), "per_min": 60.0 * len(done) / span.total_seconds(),
             "waits": per_proc}
 
@@ -219,13 +221,15 @@ def main() -> None:
             for n in (int(c) for c in args.counts.split(",")):
                 rows.append(one_count(n, args.trials, spec, base, folder))
                 r = rows[-1]
-                waits = [w for w, _ in r["waits"]]
-                shares = [s for _, s in r["waits"]]
+                waits = [w[0] for w in r["waits"]]
+                shares = [w[1] for w in r["waits"]]
+                calls = [w[2] for w in r["waits"]]
                 print(f"{n} process(es): {r['trials']} trials, {r['per_min']:.0f} trials/min "
                       f"(× {r['per_min'] / rows[0]['per_min']:.2f} of {rows[0]['n']}); "
                       f"database wait per process: median {statistics.median(waits):.2f} s "
                       f"(range {min(waits):.2f}–{max(waits):.2f}), "
-                      f"{100 * statistics.median(shares):.1f} % of its search time", flush=True)
+                      f"{100 * statistics.median(shares):.1f} % of its search time, "
+                      f"{statistics.median(calls):.0f} statements + commits per trial", flush=True)
     finally:
         if server is not None:
             server.stop()

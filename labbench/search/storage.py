@@ -194,7 +194,8 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
 
 def _first_open(make, attempts: int = 4):
     """Several processes opening a new database at once race to create Optuna's tables (seen on
-    PostgreSQL as a duplicate key in pg_type): the losers try again once the tables are there."""
+    PostgreSQL as a duplicate key in pg_type, or "relation ... already exists"): the losers try
+    again once the tables are there."""
     import random
 
     import sqlalchemy.exc
@@ -202,7 +203,7 @@ def _first_open(make, attempts: int = 4):
     for attempt in range(attempts):
         try:
             return make()
-        except sqlalchemy.exc.IntegrityError:
+        except (sqlalchemy.exc.IntegrityError, sqlalchemy.exc.ProgrammingError):
             if attempt == attempts - 1:
                 raise
             time.sleep(0.2 + random.random() * 0.5)
