@@ -146,7 +146,7 @@ def test_trials_of_a_killed_process_are_reclaimed_as_soon_as_the_next_one_starts
 @pytest.mark.slow
 def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_path):
     iris_csv(tmp_path)
-    spec = write_spec(tmp_path, trials=4, space=SPACE, workers=2, sampler="random")
+    spec = write_spec(tmp_path, trials=3, space=SPACE, workers=2, sampler="random")
     db = tmp_path / "exp.db"
     env = _inject(tmp_path, MID_MESSAGE)
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")), env=env,
@@ -169,7 +169,7 @@ def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_pa
     assert "Traceback" not in err and "stopped unexpectedly" in err
     trials = load(db).get_trials()
     assert "RUNNING" not in [t.state.name for t in trials]
-    assert sum(t.state.name == "COMPLETE" for t in trials) >= 3
+    assert sum(t.state.name == "COMPLETE" for t in trials) >= 2
 
 
 @pytest.mark.slow
