@@ -7,6 +7,7 @@ Small and fast on purpose: Fisher's iris (scikit-learn's copy), 2 folds, a few e
 from __future__ import annotations
 
 import json
+import signal
 import subprocess
 import time
 
@@ -28,7 +29,7 @@ LONGER = """
 learning_rate = { low = 0.001, high = 0.01, log = true }
 hidden_layers = 1
 hidden_units = 8
-epochs = 800
+epochs = 400
 batch_size = 8
 """
 
@@ -80,13 +81,13 @@ def test_a_killed_process_leaves_the_others_finishing_and_its_trial_reclaimed(tm
     from labbench.search.commands import open_for_reading
 
     iris_csv(tmp_path)
-    spec = write_spec(tmp_path, trials=4, space=LONGER, sampler="random", folds=2)
+    spec = write_spec(tmp_path, trials=3, space=LONGER, sampler="random", folds=2)
     procs = [_start(spec, pg_url, tmp_path / f"out{i}", "--heartbeat", "2,10") for i in range(3)]
     victim = procs[0]
 
     def running_of(pid=None):
         try:
-            return [t for t in _trials(pg_url) if t.state.name == "RUNNING" and t.intermediate_values
+            return [t for t in _trials(pg_url) if t.state.name == "RUNNING"
                     and pid in (None, t.system_attrs.get(OWNER_KEY, {}).get("pid"))]
         except Exception:                        # tables not created yet
             return []
@@ -94,10 +95,11 @@ def test_a_killed_process_leaves_the_others_finishing_and_its_trial_reclaimed(tm
     end = time.monotonic() + 180
     while not running_of(victim.pid) and time.monotonic() < end:
         time.sleep(0.05)
-    victim.kill()                                 # kill -9; its worker stops on its own
-    victim.communicate(timeout=30)
+    victim.send_signal(signal.SIGSTOP)            # frozen: it can no longer end its trials
     orphans = [t for t in _trials(pg_url) if t.state.name == "RUNNING"
                and t.system_attrs.get(OWNER_KEY, {}).get("pid") == victim.pid]
+    victim.kill()                                 # kill -9; its worker stops on its own
+    victim.communicate(timeout=30)
     assert orphans, "the victim had no trial in flight when it was killed"
 
     # the running search, read as `labbench show` and the window read it
