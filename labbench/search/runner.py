@@ -326,8 +326,11 @@ class SearchRunner:
         for queued in mine[1:]:                     # not begun: hand them over again
             if restarted and queued.stopping is None:
                 self.pool.assign(slot, queued.number, plain(queued.settings))
-            else:
-                self._finish(queued, "FAIL", reason=CANCELLED if queued.stopping else why)
+            elif queued.stopping:
+                self._finish(queued, "FAIL", reason=CANCELLED)
+            else:                                   # never trained: queue it for whoever is left
+                self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
+                retry_later(self.study, queued.trial._trial_id, queue=True)
         number = slot.index + 1
         if restarted:
             text = (f"worker process {number} stopped unexpectedly (exit code {exitcode}"
@@ -342,7 +345,6 @@ class SearchRunner:
         self.stop_reason = "error"
         self.message = (f"every worker process stopped unexpectedly, each {self.pool.max_restarts + 1}"
                         " times; the search ends here (see the log with labbench -v run ...)")
-        self.emit(ev.Notice(self.message))
 
     def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
