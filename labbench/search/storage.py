@@ -1,4 +1,4 @@
-"""Where a search lives: storage URL resolution, the Optuna storage, create-or-resume of the study.
+"""Where a search lives: the Optuna storage and create-or-join/resume of the study (URLs: ``urls``).
 
 One search is one Optuna study in an RDB storage. The default is a SQLite file beside the spec
 (``sqlite:///<spec dir>/<spec stem>.db``); any SQLAlchemy URL Optuna's ``RDBStorage`` accepts works
