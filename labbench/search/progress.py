@@ -152,7 +152,8 @@ class ProgressLine:
             self._draw(force=True)
             self.close()
             self._write_line(f"search ended ({event.reason}): "
-                             + ", ".join(f"{n} {k}" for k, n in event.counts.items() if n)
+                             + (", ".join(f"{n} {k}" for k, n in event.counts.items() if n)
+                                or "no trials")
                              + (f"; {event.message}" if event.message else ""))
         elif isinstance(event, ev.FinalStage):
             self.close()

@@ -5,8 +5,9 @@ thread, or the window's worker QThread) and never trains anything itself: trials
 ``spawn``-started worker processes (``labbench.search.workers``) that receive only plain settings
 and send back one message per epoch. The controller
 
-* asks Optuna for a trial when a worker has room (after ``fail_stale_trials``, which turns trials
-  of a killed process into FAIL + a WAITING retry once their heartbeat is stale),
+* reclaims orphaned trials at its start and every heartbeat interval (``orphans``: trials of a
+  dead process on this machine at once, others once their heartbeat is stale; FAIL with a reason
+  + a WAITING retry with the same settings), and asks Optuna for a trial when a worker has room,
 * records heartbeats for its trials in flight from a small thread,
 * reports every epoch's fold-mean validation loss (step = epoch; sign-flipped for a maximised
   metric, see ``strategy``), asks ``should_prune`` and tells the worker to stop a pruned trial,
@@ -40,6 +41,7 @@ from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
                                          best_of, count_states, eta, positive, study_attrs)
 from labbench.search.objective import curve_attr, cv_summary, one_line
+from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
                                      open_study, plain, resolve_url, write_intermediate_values,
                                      write_user_attrs)
@@ -101,6 +103,10 @@ class SearchRunner:
             storage, name, url=self.url, direction=prepared.direction,
             attrs=study_attrs(self.spec, prepared), sampler=self.sampler, pruner=self.pruner,
             fresh=self.fresh)
+        reclaimed = reclaim_orphans(self.study)
+        if reclaimed:
+            log.info("reclaimed %d trial(s) of stopped processes: %s", len(reclaimed),
+                     ", ".join(map(str, reclaimed)))
         existing = self.study.get_trials(deepcopy=False)
         self.best = best_of(existing, self.direction)
         fixed_only = self._nothing_searched(existing)
@@ -153,6 +159,7 @@ class SearchRunner:
             finally:
                 self.beats.stop()
                 self.pool.shutdown()
+        reclaim_orphans(self.study)       # what a process killed meanwhile left, for the next run
         outcome = self._outcome()
         self.emit(ev.SearchEnded(reason=outcome.reason, counts=outcome.counts,
                                  best_number=outcome.best_number, best_value=outcome.best_value,
@@ -223,7 +230,8 @@ class SearchRunner:
         if self.deadline is not None and time.monotonic() >= self.deadline:
             return True                      # the finally block tells what is left FAIL
         if not self.pool.alive():
-            raise RuntimeError("every worker process stopped; see the log for why")
+            self._no_workers_left()
+            return True
         message = self.pool.poll(self.poll_s)
         if message is not None:
             self._handle(message)
@@ -256,7 +264,7 @@ class SearchRunner:
         now = time.monotonic()
         if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
             self.beats.beat_now()
-            optuna.storages.fail_stale_trials(self.study)
+            reclaim_orphans(self.study)
             self.next_stale_check = now + self.heartbeat.interval
         trial = self.study.ask()
         self.asked += 1
@@ -306,22 +314,7 @@ class SearchRunner:
                 self.emit(ev.Notice(f"trial {number} failed by an internal error: {one_line(text)} "
                                     "— please report it with the log (labbench -v run ...)"))
         elif kind == "died":
-            exitcode = message[2]
-            why = f"its worker process stopped unexpectedly (exit code {exitcode})"
-            # The worker takes its trials in order, so the first one handed over was training
-            # (its "started" message may have died with the process); the others never began.
-            mine = [self.in_flight[n] for n in slot.numbers if n in self.in_flight]
-            if mine:
-                self._finish(mine[0], "FAIL", reason=why)
-            restarted = self.pool.restart(slot)
-            for queued in mine[1:]:                     # not begun: hand them over again
-                if restarted and queued.stopping is None:
-                    self.pool.assign(slot, queued.number, plain(queued.settings))
-                else:
-                    self._finish(queued, "FAIL", reason=CANCELLED if queued.stopping else why)
-            self.emit(ev.Notice(f"worker process {index + 1} stopped unexpectedly (exit code "
-                                f"{exitcode}); " + ("started a new one" if restarted
-                                                    else "not restarted: it failed too often")))
+            self._died(slot, exitcode=message[2], detail=message[3])
         elif kind == "fatal":
             _, _, cls_name, text = message
             cls = getattr(errors, cls_name, None)
@@ -329,6 +322,46 @@ class SearchRunner:
                 raise cls(text)
             log.error("a worker process could not start:\n%s", text)
             raise RuntimeError(f"a worker process could not start: {one_line(text)}")
+
+    def _died(self, slot, *, exitcode, detail: str) -> None:
+        """A worker process ended without being asked: fail its training trial and queue it again
+        with the same settings (``orphans.RETRIES`` times), hand its queued trials to the new
+        worker, or end them when it cannot be restarted."""
+        why = f"its worker process stopped unexpectedly (exit code {exitcode}"
+        why += f"; {detail})" if detail else ")"
+        # The worker takes its trials in order, so the first one handed over was training
+        # (its "started" message may have died with the process); the others never began.
+        mine = [self.in_flight[n] for n in slot.numbers if n in self.in_flight]
+        restarted = self.pool.restart(slot)
+        if mine:
+            first = mine[0]
+            again = first.stopping is None and retry_later(self.study, first.trial._trial_id)
+            self._finish(first, "FAIL", reason=why + ("; it is retried with the same settings"
+                                                      if again else ""))
+            if again:
+                retry_later(self.study, first.trial._trial_id, queue=True)
+        for queued in mine[1:]:                     # not begun: hand them over again
+            if restarted and queued.stopping is None:
+                self.pool.assign(slot, queued.number, plain(queued.settings))
+            elif queued.stopping:
+                self._finish(queued, "FAIL", reason=CANCELLED)
+            else:                                   # never trained: queue it for whoever is left
+                self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
+                retry_later(self.study, queued.trial._trial_id, queue=True)
+        number = slot.index + 1
+        if restarted:
+            text = (f"worker process {number} stopped unexpectedly (exit code {exitcode}"
+                    + (f"; {detail}" if detail else "") + "); started a new one")
+        else:
+            text = (f"worker process {number} stopped unexpectedly {slot.restarts + 1} times "
+                    f"(last exit code {exitcode}); it is not started again")
+        self.emit(ev.Notice(text))
+
+    def _no_workers_left(self) -> None:
+        """Every worker died too often: end the search here (what completed still counts)."""
+        self.stop_reason = "error"
+        self.message = (f"every worker process stopped unexpectedly, each {self.pool.max_restarts + 1}"
+                        " times; the search ends here (see the log with labbench -v run ...)")
 
     def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))

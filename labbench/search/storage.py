@@ -1,29 +1,36 @@
-"""Where a search lives: storage URL resolution, the Optuna storage, create-or-resume of the study.
+"""Where a search lives: the Optuna storage and create-or-join/resume of the study (URLs: ``urls``).
 
 One search is one Optuna study in an RDB storage. The default is a SQLite file beside the spec
 (``sqlite:///<spec dir>/<spec stem>.db``); any SQLAlchemy URL Optuna's ``RDBStorage`` accepts works
 (PostgreSQL for a search shared by several machines). Nothing here is SQLite-only.
 
-The storage always runs with a heartbeat: a process killed in the middle of a trial leaves that
-trial RUNNING until its heartbeat is older than the grace period; the next ``fail_stale_trials``
-call (the runner makes one before every ask) then marks it FAIL and queues a WAITING copy with the
-same parameters, which the next ask picks up.
+The storage always runs with a heartbeat and claims every trial it starts for its process
+(``labbench.search.orphans``): a trial of a process killed on this machine is reclaimed as soon as
+another labbench process looks (at its start and every heartbeat interval); one of a process on
+another machine once its heartbeat is older than the grace period. Reclaiming marks it FAIL with a
+reason and queues a WAITING copy with the same settings, which the next ask picks up.
+
+Several processes may start together on a new search name: creating the study and its attrs
+tolerates losing that race and joins the winner's search (``open_study``).
 """
 
 from __future__ import annotations
 
-import json
 import logging
 import os
 import platform
 import re
-import threading
+import time
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Mapping
 
 from labbench.errors import SpecError
+from labbench.search.trialstore import (HeartbeatThread, write_intermediate_values,  # noqa: F401
+                                        write_study_attrs, write_user_attrs)
+from labbench.search.urls import (_check_url, default_url, mask_password_text,  # noqa: F401
+                                  mask_url, resolve_url)
 
 log = logging.getLogger("labbench.search.storage")
 
@@ -68,72 +75,6 @@ class Heartbeat:
 
 
 # --------------------------------------------------------------------------------------------
-# URLs
-
-
-def mask_url(url: str) -> str:
-    """The URL with any password replaced by ``***`` (for messages, events and the window)."""
-    try:
-        from sqlalchemy.engine import make_url
-
-        parsed = make_url(url)
-        if parsed.password is None:
-            return url
-        return parsed.render_as_string(hide_password=True)
-    except Exception:  # not parseable: mask anything that looks like user:password@
-        return re.sub(r"(://[^:/@]*:)[^@]*@", r"\1***@", url)
-
-
-def default_url(spec_path: str | os.PathLike) -> str:
-    """``sqlite:///<spec dir>/<spec stem>.db`` (absolute path)."""
-    path = Path(spec_path).resolve()
-    return f"sqlite:///{path.with_suffix('.db').as_posix()}"
-
-
-def _anchor_sqlite(url: str, base_dir: Path) -> str:
-    """A relative SQLite path in a spec file is relative to the spec file's folder."""
-    prefix_match = re.match(r"^(sqlite(?:\+\w+)?:///)(.*)$", url)
-    if not prefix_match:
-        return url
-    prefix, rest = prefix_match.groups()
-    if not rest or rest.startswith("/") or rest.startswith(":memory:") or rest.startswith("file:"):
-        return url
-    if re.match(r"^[A-Za-z]:[\\/]", rest):  # a Windows drive path is absolute
-        return url
-    return prefix + (base_dir / rest).resolve().as_posix()
-
-
-def resolve_url(spec: Any, override: str | None = None) -> str:
-    """The storage URL of a spec: ``override`` (CLI/window), else ``[search] storage``, else default.
-
-    A relative SQLite path written in the spec is taken relative to the spec file; one given as an
-    override is taken as SQLite takes it (relative to the current folder).
-    """
-    if override:
-        return _check_url(str(override), "--storage")
-    spec_path = getattr(spec, "source_path", None)
-    configured = getattr(getattr(spec, "search", None), "storage", None)
-    if configured:
-        base = Path(spec_path).resolve().parent if spec_path else Path.cwd()
-        return _check_url(_anchor_sqlite(str(configured), base), "[search] storage")
-    if not spec_path:
-        raise SpecError(
-            "[search] storage: the spec has no file to put the default database beside; "
-            "save the spec first or give a storage URL (e.g. sqlite:///search.db)"
-        )
-    return default_url(spec_path)
-
-
-def _check_url(url: str, source: str) -> str:
-    if "://" not in url:
-        raise SpecError(
-            f"{source}: {mask_url(url)!r} is not a database URL; write e.g. "
-            "'sqlite:///search.db' or 'postgresql+psycopg://user@host/db'"
-        )
-    return url
-
-
-# --------------------------------------------------------------------------------------------
 # Storage and study
 
 
@@ -145,10 +86,14 @@ def quiet_optuna_warnings() -> None:
     warnings.filterwarnings("ignore", message="Heartbeat of storage is supposed to be used")
 
 
-def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int = 3):
-    """An ``optuna.storages.RDBStorage`` with heartbeat and retry of stale trials."""
+def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int | None = None):
+    """An ``optuna.storages.RDBStorage`` that claims its trials (``labbench.search.orphans``),
+    with heartbeat, and a retry with the same settings for a reclaimed trial (``max_retry``
+    times, default ``orphans.RETRIES``)."""
     import optuna
-    from optuna.storages import RDBStorage, RetryHeartbeatStaleTrialCallback
+    from optuna.storages import RetryHeartbeatStaleTrialCallback
+
+    from labbench.search.orphans import RETRIES, claiming_storage_class
 
     heartbeat = heartbeat or Heartbeat.from_env()
     quiet_optuna_warnings()
@@ -160,12 +105,13 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
             "create it or choose another path"
         )
     try:
-        storage = RDBStorage(
+        storage = _first_open(lambda: claiming_storage_class()(
             url,
             heartbeat_interval=int(heartbeat.interval),
             grace_period=int(heartbeat.grace),
-            heartbeat_stale_trial_callback=RetryHeartbeatStaleTrialCallback(max_retry=max_retry),
-        )
+            heartbeat_stale_trial_callback=RetryHeartbeatStaleTrialCallback(
+                max_retry=RETRIES if max_retry is None else max_retry),
+        ))
         if url.startswith("sqlite"):
             _sqlite_write_ahead(storage)
         return storage
@@ -180,6 +126,24 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
             f"storage {shown}: cannot open it ({reason}); check the URL in [search] storage or "
             "--storage"
         ) from None
+
+
+def _first_open(make, attempts: int = 4):
+    """Several processes opening a new database at once race to create Optuna's tables (seen on
+    PostgreSQL as a duplicate key in pg_type, or "relation ... already exists"): the losers try
+    again once the tables are there."""
+    import random
+
+    import sqlalchemy.exc
+
+    for attempt in range(attempts):
+        try:
+            return make()
+        except (sqlalchemy.exc.IntegrityError, sqlalchemy.exc.ProgrammingError):
+            if attempt == attempts - 1:
+                raise
+            time.sleep(0.2 + random.random() * 0.5)
+    raise AssertionError("unreachable")
 
 
 def _sqlite_write_ahead(storage) -> None:
@@ -210,10 +174,6 @@ def _one_line(exc: BaseException) -> str:
     return mask_password_text(first)[:200]
 
 
-def mask_password_text(text: str) -> str:
-    return re.sub(r"(://[^:/@\s]*:)[^@\s]*@", r"\1***@", text)
-
-
 def study_exists(storage, name: str) -> bool:
     try:
         storage.get_study_id_from_name(name)
@@ -222,15 +182,39 @@ def study_exists(storage, name: str) -> bool:
         return False
 
 
+#: How long a process joining a just-created search waits for its creator's attrs (written
+#: milliseconds after the study; generous for a loaded machine or a distant database).
+JOIN_WAIT_S = 10.0
+
+
+def _running(study) -> int:
+    from optuna.trial import TrialState
+
+    return len(study._storage.get_all_trials(study._study_id, deepcopy=False,
+                                             states=(TrialState.RUNNING,)))
+
+
+def _advice(study) -> str:
+    """How to get past a refusal, never advising ``--fresh`` while trials are running (another
+    process may be working on the search; --fresh would delete its work)."""
+    running = _running(study)
+    if running:
+        return (f"{running} of its trials are running, maybe in another process, so it must not "
+                "be deleted: give another [search] name or storage (--storage / [search] storage)")
+    return ("give another [search] name or storage (--storage / [search] storage), or run again "
+            "with --fresh to start a new search under this name (the old trials are deleted)")
+
+
 def check_resumable(study, expected: Mapping[str, Any], url: str) -> None:
     """Raise SpecError when the stored study was made for other data or another goal."""
     stored = study.user_attrs
     shown = mask_url(url)
-    how = (
-        "run again with --fresh to start a new search under this name (the old trials are "
-        "deleted), or give another storage (--storage / [search] storage)"
-    )
     if stored.get("labbench_format") is None:
+        if study._storage.get_all_trials(study._study_id, deepcopy=False):
+            how = "give another [search] name or storage (--storage / [search] storage)"
+        else:
+            how = ("give another [search] name or storage (--storage / [search] storage); if it "
+                   "is an empty leftover of an interrupted start, --fresh removes it")
         raise SpecError(
             f"storage {shown}: study '{study.study_name}' exists but was not made by labbench; {how}"
         )
@@ -252,8 +236,37 @@ def check_resumable(study, expected: Mapping[str, Any], url: str) -> None:
                 old, new = str(old)[:12] + "…", str(new)[:12] + "…"
             raise SpecError(
                 f"storage {shown}: study '{study.study_name}' cannot be resumed: {what[key]} "
-                f"(stored {old}, spec {new}); {how}"
+                f"(stored {old}, spec {new}); {_advice(study)}"
             )
+
+
+def _wait_for_creator(study) -> None:
+    """A study without labbench attrs and without trials may be one another process has just
+    created: wait (up to ``JOIN_WAIT_S``) for its attrs, which it writes in one transaction."""
+    end = time.monotonic() + JOIN_WAIT_S
+    storage = study._storage
+    while "labbench_format" not in storage.get_study_user_attrs(study._study_id):
+        if storage.get_all_trials(study._study_id, deepcopy=False) or time.monotonic() > end:
+            return
+        time.sleep(0.2)
+
+
+def _delete_unless_busy(storage, name: str, url: str) -> None:
+    import optuna
+
+    from labbench.search.orphans import reclaim_orphans
+
+    study = optuna.load_study(study_name=name, storage=storage)
+    reclaim_orphans(study)                   # trials of dead processes do not count as busy
+    running = _running(study)
+    if running:
+        raise SpecError(
+            f"storage {mask_url(url)}: --fresh would delete search '{name}' while {running} of "
+            "its trials are running (another process is working on it); stop it first, or give "
+            "another [search] name or storage"
+        )
+    log.info("deleting study %s in %s (--fresh)", name, mask_url(url))
+    optuna.delete_study(study_name=name, storage=storage)
 
 
 def open_study(
@@ -267,142 +280,49 @@ def open_study(
     pruner=None,
     fresh: bool = False,
 ):
-    """Create the study, or resume it after checking it fits; ``fresh`` deletes it first.
+    """Create the study, or join/resume it after checking it fits; ``fresh`` deletes it first
+    (refused while its trials are running).
 
-    Returns ``(study, resumed)``. The spec-describing attrs (spec text, path, versions, searched
-    settings) are rewritten on every run so they describe the latest run; the ones that must
-    match (data fingerprint, metric, direction, task) are checked first.
+    Returns ``(study, resumed)``. Any number of processes may call this together on a new name:
+    one creates the study and writes its attrs in one transaction, the others lose the race
+    (Optuna's DuplicatedStudyError, or the database's unique-key error), wait for those attrs and
+    join. The spec-describing attrs (spec text, path, versions, searched settings) are rewritten
+    on every run so they describe the latest run; the ones that must match (data fingerprint,
+    metric, direction, task) are checked first.
     """
     import optuna
 
-    exists = study_exists(storage, name)
-    if exists and fresh:
-        log.info("deleting study %s in %s (--fresh)", name, mask_url(url))
-        optuna.delete_study(study_name=name, storage=storage)
-        exists = False
-    if exists:
+    if fresh and study_exists(storage, name):
+        _delete_unless_busy(storage, name, url)
+    created = False
+    if not study_exists(storage, name):
+        try:
+            study = optuna.create_study(study_name=name, storage=storage, direction=direction,
+                                        sampler=sampler, pruner=pruner)
+            created = True
+        except Exception as exc:            # lost the race (the error's kind varies by database)
+            if not study_exists(storage, name):
+                raise
+            log.debug("study %s was created by another process meanwhile (%s)", name, exc)
+    if not created:
         study = optuna.load_study(study_name=name, storage=storage, sampler=sampler, pruner=pruner)
+        _wait_for_creator(study)
         check_resumable(study, {**attrs, "direction": direction}, url)
         if study.direction.name.lower() != direction:
             raise SpecError(
                 f"storage {mask_url(url)}: study '{name}' optimises in another direction; "
-                "run with --fresh to start afresh"
+                f"{_advice(study)}"
             )
-    else:
-        study = optuna.create_study(
-            study_name=name, storage=storage, direction=direction, sampler=sampler, pruner=pruner,
-            load_if_exists=True,
-        )
-    for key, value in attrs.items():
-        study.set_user_attr(key, value)
-    return study, exists
-
-
-def write_intermediate_values(study, trial_id: int, values: list[tuple[int, float]]) -> None:
-    """Store a trial's new per-epoch values (step, value) in one transaction.
-
-    Optuna's ``trial.report`` opens a transaction and looks the trial and the step up for every
-    value (≈0.9 ms each with SQLite); a search reports every epoch, so that was the largest part of
-    the controller's work. On an RDB storage this inserts the rows in one go (≈0.05 ms each) through
-    Optuna 5.0's storage models; anything unexpected falls back to the public per-step call.
-    """
-    if not values:
-        return
-    backend = getattr(study._storage, "_backend", study._storage)
-    try:
-        from optuna.storages import RDBStorage
-        from optuna.storages._rdb import models
-        from optuna.storages._rdb.storage import _create_scoped_session
-
-        if not isinstance(backend, RDBStorage):
-            raise TypeError("not an RDB storage")
-        with _create_scoped_session(backend.scoped_session, True) as session:
-            trial = models.TrialModel.find_or_raise_by_id(trial_id, session)
-            backend.check_trial_is_updatable(trial_id, trial.state)
-            rows = []
-            for step, value in values:
-                stored, kind = models.TrialIntermediateValueModel.intermediate_value_to_stored_repr(
-                    float(value))
-                rows.append(models.TrialIntermediateValueModel(
-                    trial_id=trial_id, step=int(step), intermediate_value=stored,
-                    intermediate_value_type=kind))
-            session.add_all(rows)
-    except (ImportError, AttributeError, TypeError) as exc:
-        log.debug("per-step intermediate values (%s)", exc)
-        for step, value in values:
-            study._storage.set_trial_intermediate_value(trial_id, int(step), float(value))
-
-
-def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
-    """``trial.set_user_attr`` for several keys in one transaction (same fallback as above)."""
-    study = trial.study
-    backend = getattr(study._storage, "_backend", study._storage)
-    try:
-        from optuna.storages import RDBStorage
-        from optuna.storages._rdb import models
-        from optuna.storages._rdb.storage import _create_scoped_session
-
-        if not isinstance(backend, RDBStorage):
-            raise TypeError("not an RDB storage")
-        model = models.TrialUserAttributeModel
-        with _create_scoped_session(backend.scoped_session, True) as session:
-            row = models.TrialModel.find_or_raise_by_id(trial._trial_id, session)
-            backend.check_trial_is_updatable(trial._trial_id, row.state)
-            existing = {a.key: a for a in model.where_trial_id(trial._trial_id, session)}
-            for key, value in attrs.items():
-                text = json.dumps(value)
-                if key in existing:
-                    existing[key].value_json = text
-                else:
-                    session.add(model(trial_id=trial._trial_id, key=key, value_json=text))
-        trial._cached_frozen_trial.user_attrs.update(attrs)
-    except (ImportError, AttributeError, TypeError) as exc:
-        log.debug("per-key user attrs (%s)", exc)
-        for key, value in attrs.items():
-            trial.set_user_attr(key, value)
-
-
-class HeartbeatThread:
-    """Records a heartbeat for every trial in flight every ``interval`` seconds."""
-
-    def __init__(self, storage, interval: float):
-        self._storage, self._interval = storage, interval
-        self._ids: set[int] = set()
-        self._lock = threading.Lock()
-        self._stop = threading.Event()
-        self._thread = threading.Thread(target=self._beat, name="labbench-heartbeat", daemon=True)
-
-    def start(self) -> None:
-        self._thread.start()
-
-    def add(self, trial_id: int) -> None:
-        self._storage.record_heartbeat(trial_id)
-        with self._lock:
-            self._ids.add(trial_id)
-
-    def discard(self, trial_id: int) -> None:
-        with self._lock:
-            self._ids.discard(trial_id)
-
-    def beat_now(self) -> None:
-        """Record every heartbeat now (the controller does this before it fails stale trials,
-        so a starved heartbeat thread on a busy machine never makes its own trials look stale)."""
-        with self._lock:
-            ids = list(self._ids)
-        for trial_id in ids:
-            try:
-                self._storage.record_heartbeat(trial_id)
-            except Exception as exc:  # a busy database must not kill the search
-                log.warning("heartbeat of trial id %s not recorded: %s", trial_id, exc)
-
-    def _beat(self) -> None:
-        while not self._stop.wait(self._interval):
-            self.beat_now()
-
-    def stop(self) -> None:
-        self._stop.set()
-        if self._thread.is_alive():
-            self._thread.join(5.0)
+    for attempt in range(5):                # joiners may write the same keys at the same moment
+        try:
+            write_study_attrs(study, attrs)
+            break
+        except Exception as exc:
+            if attempt == 4:
+                raise
+            log.debug("study attrs not written (%s); again", exc)
+            time.sleep(0.1 * (attempt + 1))
+    return study, not created
 
 
 def versions() -> dict[str, str]:

@@ -1,23 +1,32 @@
 """Worker processes that train trials for the controller.
 
 Each worker is a ``spawn``-started process that prepares the spec's folds once, then trains the
-trials it is handed. Messages are plain tuples:
+trials it is handed. Each worker has its own two-way pipe to the controller, and nothing else is
+shared but two lock-free numbers (``stop``, ``halt``): a worker killed at any moment can break
+only its own pipe, never block the controller or another worker. Messages are plain tuples:
 
-controller → worker (its own inbox):  ("trial", number, settings) | None (quit)
-worker → controller (one shared queue):
+controller → worker:  ("trial", number, settings) | None (quit)
+worker → controller:
     ("ready", index, pid)
     ("fatal", index, error_class_name, message)      preparing failed (bad data / spec / a bug)
     ("started", index, number)                       the worker began training that trial
     ("epoch", index, number, epoch, train_loss, val_loss, val_metric)
     ("done", index, number, result_dict)             see ``objective.run_trial``
     ("error", index, number, message, traceback)     a bug while training (not the user's fault)
-    ("died", index, exitcode)                        synthesised by ``poll`` when a process is gone
+    ("died", index, exitcode, why)                   synthesised by ``poll``: the process is gone
 
-A worker's inbox may hold one trial more than the one it trains (the controller asks the next
-trial while the current one trains, so sampling and storage work overlap with training).
+``poll`` waits on every worker's pipe and process sentinel at once
+(``multiprocessing.connection.wait``), reads what a dead worker sent before it died, then reports
+its death. A watchdog kills a worker that holds a trial and has sent nothing for
+``max(silent_s, 10 × its longest gap so far)`` seconds (``LABBENCH_WATCHDOG`` sets ``silent_s``,
+default 300 s); it is then reported as died. ``restart`` replaces a dead worker at most
+``max_restarts`` times.
 
-Stopping: the controller writes a trial number into the worker's shared ``stop`` value (that trial
-stops after its current epoch), or sets its ``halt`` flag (cancel: the running trial stops after its
+A worker may hold one trial more than the one it trains (the controller asks the next trial
+while the current one trains, so sampling and storage work overlap with training).
+
+Stopping: the controller writes a trial number into the worker's ``stop`` value (that trial stops
+after its current epoch), or sets its ``halt`` flag (cancel: the running trial stops after its
 epoch and queued ones are handed back untrained, ``epochs_run`` 0). A worker whose controller has
 gone (killed) stops after the current epoch, or within a second when idle. Workers ignore SIGINT:
 a Ctrl-C in a terminal reaches the whole process group, and only the controller decides.
@@ -25,11 +34,12 @@ a Ctrl-C in a terminal reaches the whole process group, and only the controller 
 
 from __future__ import annotations
 
+import collections
 import logging
 import multiprocessing
+import multiprocessing.connection
 import os
 import pickle
-import queue
 import signal
 import socket
 import time
@@ -40,15 +50,36 @@ from typing import Any
 log = logging.getLogger("labbench.search.workers")
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+WATCHDOG_ENV = "LABBENCH_WATCHDOG"
 
 
-def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, stop, halt,
+class _ControllerGone(Exception):
+    pass
+
+
+def worker_main(index: int, spec_blob: bytes, data_sha256: str, conn, stop, halt,
                 threads: int, log_level: int) -> None:
     """Entry point of a worker process (module-level so ``spawn`` can import it)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     for var in _THREAD_VARS:                 # before numpy is imported in this process
         os.environ.setdefault(var, str(threads))
     logging.basicConfig(level=log_level, format="%(levelname)s %(name)s[worker]: %(message)s")
+
+    def put(message) -> None:
+        try:
+            conn.send(message)
+        except (OSError, EOFError, ValueError):   # the controller's end is closed: it has gone
+            raise _ControllerGone from None
+
+    try:
+        _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level)
+    except _ControllerGone:
+        return
+    finally:
+        conn.close()
+
+
+def _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level) -> None:
     try:
         from labbench.errors import DataError, LabbenchError
         from labbench.search.objective import run_trial
@@ -63,33 +94,35 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
             raise DataError(f"{spec.data.path}: the file changed while the search was starting; "
                             "run the search again")
     except LabbenchError as exc:
-        outbox.put(("fatal", index, type(exc).__name__, str(exc)))
+        put(("fatal", index, type(exc).__name__, str(exc)))
         return
     except BaseException as exc:  # a bug: say what and where
-        outbox.put(("fatal", index, "bug", f"{type(exc).__name__}: {exc}\n{traceback.format_exc()}"))
+        put(("fatal", index, "bug", f"{type(exc).__name__}: {exc}\n{traceback.format_exc()}"))
         return
-    outbox.put(("ready", index, os.getpid()))
+    put(("ready", index, os.getpid()))
     seed = int(spec.evaluation.seed)
     parent = multiprocessing.parent_process()
     orphaned = (lambda: not parent.is_alive()) if parent is not None else (lambda: False)
     while True:
         try:
-            message = inbox.get(timeout=1.0)
-        except queue.Empty:
-            if orphaned():        # the controller was killed: nobody will ever read our results
-                return
-            continue
+            if not conn.poll(1.0):
+                if orphaned():    # the controller was killed: nobody will ever read our results
+                    return
+                continue
+            message = conn.recv()
+        except (EOFError, OSError):
+            return
         if message is None:
             break
         _, number, settings = message
         if halt.value:
-            outbox.put(("done", index, number, {"end": "stopped", "reason": "", "fold_scores": [],
-                                                "epochs_run": 0, "duration_s": 0.0}))
+            put(("done", index, number, {"end": "stopped", "reason": "", "fold_scores": [],
+                                         "epochs_run": 0, "duration_s": 0.0}))
             continue
-        outbox.put(("started", index, number))
+        put(("started", index, number))
 
         def send(values, number=number):
-            outbox.put(("epoch", index, number, *values))
+            put(("epoch", index, number, *values))
 
         def should_stop(number=number) -> bool:
             return stop.value == number or bool(halt.value) or orphaned()
@@ -98,24 +131,28 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, inbox, outbox, s
         try:
             result = run_trial(prepared, settings, seed=seed, on_epoch=send, should_stop=should_stop)
             result["cpu_s"] = time.process_time() - cpu     # the worker's CPU for this trial
+        except _ControllerGone:
+            raise
         except Exception as exc:
-            outbox.put(("error", index, number, f"{type(exc).__name__}: {exc}",
-                        traceback.format_exc()))
+            put(("error", index, number, f"{type(exc).__name__}: {exc}", traceback.format_exc()))
             continue
-        outbox.put(("done", index, number, result))
+        put(("done", index, number, result))
 
 
 @dataclass
 class _Slot:
     index: int
     process: Any
-    inbox: Any
+    conn: Any
     stop: Any
     halt: Any
-    state: str = "starting"          # starting | ready | gone
+    state: str = "starting"          # starting | ready | dead (not reported yet) | gone
     numbers: list = field(default_factory=list)   # trials handed to it, oldest (training) first
     pid: int | None = None
     restarts: int = 0
+    heard: float = field(default_factory=time.monotonic)   # last message (or start)
+    longest_gap: float = 0.0
+    why: str = ""                    # set when the watchdog killed it
 
     @property
     def label(self) -> str:
@@ -123,10 +160,10 @@ class _Slot:
 
 
 class WorkerPool:
-    """``n`` worker processes, their inboxes, and the one queue they all answer on."""
+    """``n`` worker processes, each with its own pipe (see the module text)."""
 
     def __init__(self, spec: Any, n: int, *, data_sha256: str = "", threads: int | None = None,
-                 max_restarts: int = 2):
+                 max_restarts: int = 2, silent_s: float | None = None):
         self._ctx = multiprocessing.get_context("spawn")
         self._blob = pickle.dumps(spec)
         self._sha = data_sha256
@@ -135,25 +172,29 @@ class WorkerPool:
         # 2-core machine); parallelism comes from the workers. An explicit
         # OPENBLAS_NUM_THREADS / OMP_NUM_THREADS in the environment still wins.
         self._threads = threads or 1
-        self._max_restarts = max_restarts
-        self.outbox = self._ctx.Queue()
+        self.max_restarts = max_restarts
+        if silent_s is None:
+            silent_s = float(os.environ.get(WATCHDOG_ENV, "") or 300.0)
+        self.silent_s = silent_s
+        self._pending: collections.deque = collections.deque()
         self.slots: list[_Slot] = []
         self.n = n
 
     # ---- lifecycle
 
     def _new_process(self, index: int):
-        inbox = self._ctx.Queue()
-        stop = self._ctx.Value("q", -1)
-        halt = self._ctx.Value("b", 0)
+        mine, theirs = self._ctx.Pipe(duplex=True)
+        # No locks: a worker killed while touching these must not leave anything held.
+        stop = self._ctx.RawValue("q", -1)
+        halt = self._ctx.RawValue("b", 0)
         level = logging.getLogger("labbench").getEffectiveLevel()
         process = self._ctx.Process(
             target=worker_main, name=f"labbench-worker-{index}", daemon=True,
-            args=(index, self._blob, self._sha, inbox, self.outbox, stop, halt, self._threads,
-                  level),
+            args=(index, self._blob, self._sha, theirs, stop, halt, self._threads, level),
         )
         process.start()
-        return process, inbox, stop, halt
+        theirs.close()         # only the worker holds its end: its death closes the pipe
+        return process, mine, stop, halt
 
     def start(self) -> None:
         for index in range(self.n):
@@ -162,12 +203,13 @@ class WorkerPool:
     def restart(self, slot: _Slot) -> bool:
         """Replace a dead worker; False when it has died too often (then it stays gone)."""
         self._reap(slot)
-        if slot.restarts >= self._max_restarts:
+        if slot.restarts >= self.max_restarts:
             slot.state = "gone"
             return False
-        slot.process, slot.inbox, slot.stop, slot.halt = self._new_process(slot.index)
+        slot.process, slot.conn, slot.stop, slot.halt = self._new_process(slot.index)
         slot.restarts += 1
-        slot.state, slot.numbers, slot.pid = "starting", [], None
+        slot.state, slot.numbers, slot.pid, slot.why = "starting", [], None, ""
+        slot.heard, slot.longest_gap = time.monotonic(), 0.0
         return True
 
     def shutdown(self, timeout: float = 5.0) -> None:
@@ -175,15 +217,14 @@ class WorkerPool:
         for slot in self.slots:
             if slot.process.is_alive():
                 try:
-                    slot.inbox.put_nowait(None)
-                except Exception:
+                    slot.conn.send(None)
+                except (OSError, ValueError):
                     pass
+        end = time.monotonic() + timeout
         for slot in self.slots:
-            slot.process.join(timeout)
+            slot.process.join(max(0.0, end - time.monotonic()))
             self._reap(slot)
             slot.state = "gone"
-        self.outbox.cancel_join_thread()
-        self.outbox.close()
 
     def _reap(self, slot: _Slot) -> None:
         process = slot.process
@@ -193,8 +234,7 @@ class WorkerPool:
         if process.is_alive():
             process.kill()
             process.join(2.0)
-        slot.inbox.cancel_join_thread()
-        slot.inbox.close()
+        slot.conn.close()
 
     # ---- work
 
@@ -207,7 +247,12 @@ class WorkerPool:
 
     def assign(self, slot: _Slot, number: int, settings: dict) -> None:
         slot.numbers.append(number)
-        slot.inbox.put(("trial", number, settings))
+        if not slot.numbers[:-1]:
+            slot.heard = time.monotonic()      # the watchdog counts from the hand-over
+        try:
+            slot.conn.send(("trial", number, settings))
+        except (OSError, ValueError):          # it died meanwhile: poll reports it
+            log.debug("worker %d: pipe closed while handing over trial %d", slot.index, number)
 
     def release(self, slot: _Slot, number: int) -> None:
         """The worker is done with that trial (finished, stopped or failed)."""
@@ -223,12 +268,56 @@ class WorkerPool:
         slot.halt.value = 1
 
     def poll(self, timeout: float) -> tuple | None:
-        """The next message, a synthesised ("died", index, exitcode), or None after ``timeout``."""
+        """The next message, a synthesised ("died", index, exitcode, why), or None after
+        ``timeout``. Never blocks longer than ``timeout``, whatever the workers do."""
+        if not self._pending:
+            self._gather(timeout)
+        return self._pending.popleft() if self._pending else None
+
+    def _gather(self, timeout: float) -> None:
+        watched = [s for s in self.slots if s.state in ("starting", "ready")]
+        by_handle = {}
+        for slot in watched:
+            by_handle[slot.conn] = slot
+            by_handle[slot.process.sentinel] = slot
+        ready = multiprocessing.connection.wait(list(by_handle), timeout) if by_handle else []
+        if not by_handle:
+            time.sleep(timeout)
+        ended = []
+        for handle in ready:
+            slot = by_handle[handle]
+            self._drain(slot)
+            if handle is slot.process.sentinel and slot not in ended:
+                ended.append(slot)
+        for slot in ended:
+            self._drain(slot)                  # what it sent just before it ended
+            slot.process.join(1.0)
+            slot.state = "dead"
+            self._pending.append(("died", slot.index, slot.process.exitcode, slot.why))
+        self._watchdog()
+
+    def _drain(self, slot: _Slot) -> None:
         try:
-            return self.outbox.get(timeout=timeout)
-        except queue.Empty:
-            pass
+            while slot.conn.poll():
+                message = slot.conn.recv()
+                now = time.monotonic()
+                if slot.numbers:
+                    slot.longest_gap = max(slot.longest_gap, now - slot.heard)
+                slot.heard = now
+                self._pending.append(message)
+        except (EOFError, OSError, pickle.UnpicklingError):
+            pass                               # the worker died mid-message; its sentinel tells
+
+    def _watchdog(self) -> None:
+        now = time.monotonic()
         for slot in self.slots:
-            if slot.state in ("starting", "ready") and slot.process.exitcode is not None:
-                return ("died", slot.index, slot.process.exitcode)
-        return None
+            if slot.state not in ("starting", "ready") or not (slot.numbers or
+                                                                slot.state == "starting"):
+                continue
+            limit = max(self.silent_s, 10.0 * slot.longest_gap)
+            if slot.state == "starting":       # importing and preparing the data: allow more
+                limit = max(10.0 * self.silent_s, 120.0)
+            if now - slot.heard > limit and slot.process.is_alive():
+                slot.why = f"it sent nothing for {now - slot.heard:.0f} s (watchdog)"
+                log.warning("worker %d: %s; stopping it", slot.index + 1, slot.why)
+                slot.process.kill()

@@ -4,6 +4,7 @@ divergence, cancel from another thread."""
 from __future__ import annotations
 
 import math
+import os
 import threading
 
 import numpy as np
@@ -281,19 +282,26 @@ def test_worker_bugs_and_crashes_fail_the_trial_with_a_notice_and_the_search_goe
     inject = tmp_path / "inject"
     inject.mkdir()
     (inject / "sitecustomize.py").write_text(FAULTS)
-    monkeypatch.setenv("PYTHONPATH", str(inject))
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(                # keep a worktree's path
+        filter(None, [str(inject), os.environ.get("PYTHONPATH", "")])))
     iris_csv(tmp_path)
     space = "learning_rate = 0.01\nhidden_layers = 1\nhidden_units = { choices = [5, 6, 7] }\n" \
             "epochs = 2"
-    spec = write_spec(tmp_path, trials=3, sampler="grid", space=space)
+    spec = write_spec(tmp_path, trials=4, sampler="grid", space=space)
     db = tmp_path / "s.db"
     outcome, events = run(spec, db)
-    by_units = {t.params["units_1"]: t for t in load(db).trials}
+    trials = load(db).trials
+    by_units = {t.params["units_1"]: t for t in trials}
     assert by_units[5].state.name == "FAIL"
     assert "internal error" in by_units[5].user_attrs["end_reason"]
     assert "TypeError: an injected bug" in by_units[5].user_attrs["end_reason"]
-    assert by_units[6].state.name == "FAIL"
-    assert "exit code 3" in by_units[6].user_attrs["end_reason"]
+    # the killed worker's trial is tried once more with the same settings, then left failed
+    crashed = [t for t in trials if t.params["units_1"] == 6]
+    assert [t.state.name for t in crashed] == ["FAIL", "FAIL"]
+    assert crashed[0].params == crashed[1].params
+    assert all("exit code 3" in t.user_attrs["end_reason"] for t in crashed)
+    assert "retried with the same settings" in crashed[0].user_attrs["end_reason"]
+    assert "retried" not in crashed[1].user_attrs["end_reason"]
     assert by_units[7].state.name == "COMPLETE"          # on a fresh worker after the crash
     notices = " ".join(n.text for n in events.of(ev.Notice))
     assert "internal error" in notices and "stopped unexpectedly" in notices

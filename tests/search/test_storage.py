@@ -9,6 +9,7 @@ import optuna
 import pytest
 
 from labbench.errors import SpecError
+from labbench.search import storage as storage_module
 from labbench.search.spec import loads_spec
 from labbench.search.storage import (Heartbeat, default_url, mask_url, open_storage, open_study,
                                      plain, resolve_url)
@@ -105,7 +106,8 @@ def test_resume_is_refused_when_the_data_or_goal_changed(tmp_path, key, value, w
     assert "--fresh" in str(info.value) and "\n" not in str(info.value)
 
 
-def test_resume_is_refused_for_another_direction_and_foreign_studies(tmp_path):
+def test_resume_is_refused_for_another_direction_and_foreign_studies(tmp_path, monkeypatch):
+    monkeypatch.setattr(storage_module, "JOIN_WAIT_S", 0.5)   # no creator is coming
     url = f"sqlite:///{tmp_path}/s.db"
     _open(url)
     with pytest.raises(SpecError, match="direction differs"):
