@@ -118,7 +118,8 @@ def build_onnx(model: TrainedModel):
     h = node("Concat", blocks, "_lb.inputs", axis=1) if len(blocks) > 1 else blocks[0]
 
     # the family's part: scaled inputs -> value (training units) / P(second class) / probabilities
-    h = family.onnx_body(model.weights, h, node, const, net_type, model.task)
+    n_inputs = len(numeric) + sum(len(c) for c in state["categories"])
+    h = family.onnx_body(model.weights, h, n_inputs, node, const, net_type, model.task)
 
     outputs = []
     if model.task == "regression":

@@ -156,9 +156,9 @@ class Family:
         """The record rebuilt from a bundle, checked; ``BundleError`` (naming ``name``) else."""
         raise NotImplementedError
 
-    def onnx_body(self, record: Any, h: str, node: Callable, const: Callable, net_type: int,
-                  task: str) -> str:
-        """ONNX nodes from the scaled inputs ``h`` [N, d] to the record's output [N, outputs]
+    def onnx_body(self, record: Any, h: str, n_inputs: int, node: Callable, const: Callable,
+                  net_type: int, task: str) -> str:
+        """ONNX nodes from the scaled inputs ``h`` [N, n_inputs] to the record's output [N, outputs]
         (regression value in training units, P(second class), or class probabilities);
         returns the output's tensor name. ``node(op, inputs, output, **attrs)`` adds a node,
         ``const(name, array)`` an initializer."""

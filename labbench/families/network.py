@@ -196,7 +196,7 @@ class NetworkFamily(Family):
     def from_bundle(self, arrays, meta, name, n_inputs, n_outputs):
         return network_export.from_bundle(arrays, meta, name, n_inputs, n_outputs)
 
-    def onnx_body(self, record, h, node, const, net_type, task):
+    def onnx_body(self, record, h, n_inputs, node, const, net_type, task):
         return network_export.onnx_body(record, h, node, const, task)
 
     def onnx_dtype(self, record):
