@@ -14,7 +14,7 @@ file, the dotted key, the value and what is allowed.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Callable, Mapping
+from typing import Any, Mapping
 
 from labbench.families import DEFAULT, get_family
 from labbench.families.base import switch_param

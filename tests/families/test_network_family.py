@@ -97,3 +97,21 @@ def test_old_stored_settings_without_patience_and_init_still_train():
     fit = family.stack(old, "regression", 1, [X], [y], seeds=[1])
     fit.run()
     assert fit.record(0).forward(X).shape == (20,)
+
+
+def test_the_readme_settings_table_is_the_network_table():
+    """The README's [space] table lists the settings table's names, ranges and choices, in order."""
+    readme = (Path(__file__).resolve().parents[2] / "README.md").read_text(encoding="utf-8")
+    start = readme.index("| setting | default | allowed | meaning |")
+    rows = []
+    for line in readme[start:].splitlines()[2:]:
+        if not line.startswith("| `"):
+            break
+        rows.append([cell.strip() for cell in line.strip("|").split("|")])
+    assert [r[0].strip("`") for r in rows] == list(SETTINGS)
+    for (name, _default, allowed, _meaning), info in zip(rows, SETTINGS.values()):
+        if info.kind == "choice":
+            assert allowed == ", ".join(info.options), name
+        else:
+            low, high = (float(x) for x in allowed.split(" to "))
+            assert (low, high) == (info.low, info.high), name
