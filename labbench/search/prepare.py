@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from labbench.search.space import spec_error
 from labbench.search.spec import Spec, check_metric
 
 log = logging.getLogger("labbench.search.prepare")
@@ -74,6 +75,11 @@ def prepare(spec: Spec) -> Prepared:
     metric = e.metric or spec.space.model.default_metric(task)
     if e.metric:
         check_metric(metric, task, spec.source_path)
+    offered = spec.space.model.metrics(task)
+    if metric not in offered:           # the family scores itself with these objectives only
+        raise spec_error(spec.source_path, "evaluation.metric", f"{metric!r} cannot score the "
+                         f"{spec.space.family} family on a {task} task; use one of "
+                         + ", ".join(offered))
     check_folds(table, e.folds, e.holdout)
     stratify = task != "regression"
     train_pos, holdout_pos = holdout_split(table.y, e.holdout, seed=e.seed, stratify=stratify)
