@@ -14,10 +14,10 @@ import numpy as np
 
 from labbench.errors import BundleError
 from labbench.nets.activations import ACTIVATIONS
-from labbench.nets.losses import TASKS
+from labbench.nets.losses import OUTPUT_FOR_TASK
 
-#: The output non-linearity of each task.
-OUTPUTS = dict(zip(TASKS, ("identity", "sigmoid", "softmax")))
+#: The output non-linearity of each task (the engine's table).
+OUTPUTS = OUTPUT_FOR_TASK
 #: The ONNX operator of each hidden activation (a test checks the keys against ACTIVATIONS).
 ACTIVATION_OPS = {"relu": "Relu", "tanh": "Tanh", "sigmoid": "Sigmoid"}
 

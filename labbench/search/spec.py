@@ -28,9 +28,9 @@ import tomli_w
 from labbench.errors import SpecError
 from labbench.families import DEFAULT as DEFAULT_FAMILY
 from labbench.families import get_family
+from labbench.nets.losses import TASKS
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
                                     MAX_WORKERS, check_memory)
-from labbench.nets.losses import TASKS
 from labbench.search.space import SearchSpace, show, spec_error
 
 KINDS = ("numeric", "categorical")

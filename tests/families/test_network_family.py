@@ -26,9 +26,11 @@ def test_choices_come_from_the_registries():
     assert SETTINGS["optimizer"].options == tuple(OPTIMIZERS)
     assert SETTINGS["init"].options == INIT_NAMES == ("auto", *SCHEMES)
     assert tuple(OUTPUTS) == TASKS
+    from labbench.data import roles
     from labbench.search import spec
 
     assert spec.TASKS is TASKS
+    assert roles.TASKS == TASKS     # the data layer sits beside nets, so it keeps its own copy
 
 
 def test_every_registered_activation_can_be_exported():
