@@ -150,3 +150,37 @@ def test_run_bundle_predict_numpy_script_and_onnx_end_to_end(tmp_path):
              "site": new[["site"]].to_numpy().astype(str)}
     value = session.run(["value"], feeds)[0]
     np.testing.assert_allclose(value, expected, rtol=1e-6)
+
+
+@pytest.mark.parametrize("n_classes", [2, 3])
+def test_a_class_constant_through_bundle_and_onnx(tmp_path, n_classes):
+    """The shared ONNX head (labels, probabilities) around a family's body, for classes."""
+    ort = pytest.importorskip("onnxruntime")       # reference runtime: onnxruntime
+    from labbench.data import Preprocessor
+    from labbench.export import export_onnx, load_bundle, save_bundle
+    from labbench.model import TrainedModel
+
+    frame = _invented_rows(40, 5)
+    codes = np.arange(40) % n_classes
+    classes = tuple(f"grade_{c}" for c in "abc"[:n_classes])
+    pre = Preprocessor(["depth", "width"], ["site"]).fit(frame)
+    task = "binary" if n_classes == 2 else "multiclass"
+    fit = get_family("constant").stack({"shrink": 0.5}, task, 1 if task == "binary" else 3,
+                                       [pre.transform(frame)], [codes], seeds=[0])
+    fit.run()
+    model = TrainedModel(preprocessor=pre, weights=fit.record(0), task=task, target="grade",
+                         features=("depth", "width", "site"),
+                         kinds={"depth": "numeric", "width": "numeric", "site": "categorical"},
+                         classes=classes)
+    assert model.family == "constant"
+    loaded = load_bundle(save_bundle(model, tmp_path / "m.npz"))
+    proba = loaded.predict_proba(frame.head(4))
+    shares = np.bincount(codes, minlength=n_classes) / 40 * 0.5 + 0.5 / n_classes
+    np.testing.assert_allclose(proba, np.tile(shares, (4, 1)), rtol=1e-12)
+    session = ort.InferenceSession(str(export_onnx(loaded, tmp_path / "m.onnx")))
+    feeds = {"depth": frame[["depth"]].head(4).to_numpy(np.float64),
+             "width": frame[["width"]].head(4).to_numpy(np.float64),
+             "site": frame[["site"]].head(4).to_numpy().astype(str)}
+    label, probabilities = session.run(["label", "probabilities"], feeds)
+    np.testing.assert_allclose(probabilities, proba, rtol=1e-6)
+    assert list(label) == list(loaded.predict(frame.head(4)))
