@@ -1,7 +1,11 @@
-"""A trained model ready to use: fitted preprocessing + one network + what it was trained for.
+"""A trained model ready to use: fitted preprocessing + one family's record + what it was trained for.
 
 This is what the search's winner refit produces, what the model bundle stores and loads, what
 ``labbench predict`` and the ONNX export consume. It holds plain objects only (no Optuna, no Qt).
+
+``family`` names the model family (``labbench.families``) and ``weights`` holds that family's
+record: an object with ``forward(X)`` giving the outputs below from the preprocessed inputs (the
+network family's record is ``labbench.nets.NetWeights``). Exporters dispatch on ``family``.
 """
 
 from __future__ import annotations
@@ -18,7 +22,7 @@ from labbench.errors import BundleError
 @dataclass(frozen=True)
 class TrainedModel:
     preprocessor: Any                 # labbench.data.Preprocessor (fitted)
-    weights: Any                      # labbench.nets.NetWeights
+    weights: Any                      # the family's record (network: labbench.nets.NetWeights)
     task: str                         # "regression" | "binary" | "multiclass"
     target: str
     features: tuple[str, ...]         # input columns in training order
@@ -32,6 +36,17 @@ class TrainedModel:
     # regression: labbench.data.TargetScaler mapping the network's output to the target's own
     # units (fitted on the training rows); None = the network outputs target units directly
     target_scaler: Any = None
+    # the model family; None: the record's own ``family`` attribute, else "network"
+    family: str | None = None
+
+    def __post_init__(self) -> None:
+        if self.family is None:
+            object.__setattr__(self, "family", str(getattr(self.weights, "family", "network")))
+
+    @property
+    def record(self) -> Any:
+        """The family's trained-model record (the same object as ``weights``)."""
+        return self.weights
 
     def _inputs(self, frame: pd.DataFrame, source: str = "the data") -> np.ndarray:
         missing = [c for c in self.features if c not in frame.columns]

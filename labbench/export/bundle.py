@@ -4,7 +4,9 @@ Entries (all plain numeric or unicode arrays; saved and loaded with ``allow_pick
 
 ``meta``                    uint8 array: UTF-8 JSON metadata (format name and version, what the
                             model predicts, settings, scores, data fingerprint, caution text)
-``layer{i}_W``, ``layer{i}_b``  the network, layer i = 0..n-1: W (fan_in, fan_out), b (fan_out,)
+``layer{i}_W``, ``layer{i}_b``  the network family's record, layer i = 0..n-1: W (fan_in,
+                            fan_out), b (fan_out,) (another family writes its own entries,
+                            ``Family.bundle_entries``)
 ``numeric_names``           unicode (n_num,): numeric inputs, in the order of the network's inputs
 ``numeric_impute`` / ``numeric_center`` / ``numeric_scale``  float64 (n_num,):
                             x' = (x if present else impute - center) / scale
@@ -21,6 +23,12 @@ none) or ``exp(center + scale * z)`` (log), in float64. A bundle whose network n
 written as format 2, so a labbench that does not know it refuses the file instead of predicting
 in the wrong units; any other bundle is written as format 1. A format-1 bundle (or one without
 the entry) loads with ``"none"``: its network gives target units directly.
+
+Model families (format 3). The metadata's ``family`` names the model family
+(``labbench.families``) whose entries the bundle holds; loading dispatches on it. A bundle
+without the key (written before families existed) is the network family. A network bundle keeps
+format 1 or 2 as above; a bundle of any other family is written as format 3, so a labbench that
+does not know families refuses it instead of misreading it.
 """
 
 from __future__ import annotations
@@ -38,20 +46,21 @@ import numpy as np
 
 from labbench import __version__
 from labbench.errors import BundleError
+from labbench.families import DEFAULT as NETWORK
+from labbench.families import get_family
 from labbench.model import TrainedModel
+from labbench.nets.losses import TASKS
 
 FORMAT_NAME = "labbench-model-bundle"
-FORMAT_VERSION = 2          # the newest format this labbench reads and writes
+FORMAT_VERSION = 3          # the newest format this labbench reads and writes
 CAUTION = (
     "A cross-validated score is an estimate of how the model does on new rows like the training "
     "data, not a guarantee. Decisions that affect people, money or safety need independent "
     "validation on fresh data and must follow the local rules of that field."
 )
-TASKS = ("regression", "binary", "multiclass")
-OUTPUTS = {"regression": "identity", "binary": "sigmoid", "multiclass": "softmax"}
 META_KEYS = ("format", "format_version", "labbench_version", "created", "data_sha256", "task",
              "target", "features", "kinds", "classes", "settings", "metric", "scores",
-             "id_column", "network", "preprocessing", "caution")
+             "id_column", "preprocessing", "caution")
 _ZIP_MAGIC = (b"PK\x03\x04", b"PK\x05\x06")
 
 
@@ -79,10 +88,9 @@ def _unicode(values) -> np.ndarray:
 def bundle_arrays(model: TrainedModel) -> dict[str, np.ndarray]:
     """Every entry of the bundle file for ``model`` (metadata included)."""
     state = model.preprocessor.to_state()
-    arrays: dict[str, np.ndarray] = {}
-    for i, (W, b) in enumerate(model.weights.layers):
-        arrays[f"layer{i}_W"] = np.ascontiguousarray(W)
-        arrays[f"layer{i}_b"] = np.ascontiguousarray(b)
+    family = get_family(model.family)
+    arrays, family_meta = family.bundle_entries(model.weights)
+    arrays = dict(arrays)
     arrays["numeric_names"] = _unicode(state["numeric"])
     for key in ("impute", "center", "scale"):
         arrays[f"numeric_{key}"] = np.asarray(state[key], dtype=np.float64).reshape(-1)
@@ -93,14 +101,14 @@ def bundle_arrays(model: TrainedModel) -> dict[str, np.ndarray]:
     scores = dict(model.scores)
     for key in ("cv_mean", "cv_std", "holdout_score"):
         scores.setdefault(key, None)
-    first_W = model.weights.layers[0][0]
     preprocessing: dict[str, Any] = {"scaling": state["scaling"]}
     target = model.target_scaler if model.task == "regression" else None
     if target is not None and not target.is_identity:
         preprocessing["target"] = target.to_state()
     meta = {
         "format": FORMAT_NAME,
-        "format_version": 2 if "target" in preprocessing else 1,
+        "format_version": 3 if family.name != NETWORK else 2 if "target" in preprocessing else 1,
+        "family": family.name,
         "labbench_version": __version__,
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
         "data_sha256": model.data_sha256,
@@ -113,8 +121,7 @@ def bundle_arrays(model: TrainedModel) -> dict[str, np.ndarray]:
         "metric": model.metric,
         "scores": scores,
         "id_column": model.id_column,
-        "network": {"layers": len(model.weights.layers), "activation": model.weights.activation,
-                    "output": model.weights.output, "dtype": str(np.asarray(first_W).dtype)},
+        **family_meta,
         "preprocessing": preprocessing,
         "caution": CAUTION,
     }
@@ -227,43 +234,6 @@ def _entry(arrays: Mapping[str, np.ndarray], key: str, name: str, kind: str, ndi
     return arr
 
 
-def _check_network(arrays, meta, name: str, n_inputs: int, n_outputs: int):
-    net = meta["network"]
-    if not isinstance(net, dict) or not isinstance(net.get("layers"), int) or net["layers"] < 1:
-        raise _fail(name, "metadata 'network' must give the number of layers (1 or more)")
-    expected_output = OUTPUTS[meta["task"]]
-    if net.get("output") != expected_output:
-        raise _fail(name, f"network output {net.get('output')!r} does not fit task {meta['task']!r} "
-                    f"(expected {expected_output!r})")
-    from labbench.nets.activations import ACTIVATIONS
-
-    if net.get("activation") not in ACTIVATIONS:
-        raise _fail(name, f"hidden activation {net.get('activation')!r} is not one of {', '.join(ACTIVATIONS)}",
-                    "use a bundle saved by this labbench or a newer one")
-    layers = []
-    fan_in, dtype = n_inputs, None
-    for i in range(net["layers"]):
-        W = _entry(arrays, f"layer{i}_W", name, "f", 2)
-        b = _entry(arrays, f"layer{i}_b", name, "f", 1)
-        if W.shape[0] != fan_in:
-            raise _fail(name, f"layer{i}_W has shape {W.shape} but {fan_in} inputs reach layer {i}")
-        if b.shape != (W.shape[1],):
-            raise _fail(name, f"layer{i}_b has shape {b.shape}, expected ({W.shape[1]},) to match layer{i}_W")
-        dtype = dtype or W.dtype
-        if W.dtype != dtype or b.dtype != dtype:
-            raise _fail(name, f"layer {i} mixes dtypes ({W.dtype}, {b.dtype}); expected {dtype}")
-        layers.append((W, b))
-        fan_in = W.shape[1]
-    if fan_in != n_outputs:
-        raise _fail(name, f"the last layer gives {fan_in} outputs, a {meta['task']} model with "
-                    f"{len(meta['classes'] or [])} classes needs {n_outputs}")
-    extra = sorted(k for k in arrays if k.startswith("layer") and k[5:].split("_")[0].isdigit()
-                   and int(k[5:].split("_")[0]) >= net["layers"])
-    if extra:
-        raise _fail(name, f"holds layer entries beyond the {net['layers']} the metadata names ({', '.join(extra)})")
-    return tuple(layers)
-
-
 def _check_preprocessing(arrays, meta, name: str) -> dict[str, Any]:
     numeric = _entry(arrays, "numeric_names", name, "U").tolist()
     n_num = len(numeric)
@@ -296,6 +266,20 @@ def _check_preprocessing(arrays, meta, name: str) -> dict[str, Any]:
         if kinds.get(col) != want:
             raise _fail(name, f"column {col!r} is {kinds.get(col)!r} in the metadata but {want} in the preprocessing")
     return state
+
+
+def _check_family(meta, name: str):
+    """The bundle's model family; a bundle without the key is the network's (written before)."""
+    from labbench.errors import SpecError
+
+    family = meta.get("family", NETWORK)
+    if not isinstance(family, str):
+        raise _fail(name, f"metadata 'family' is {family!r}, expected the name of a model family")
+    try:
+        return get_family(family)
+    except SpecError:
+        raise _fail(name, f"holds a model of the family {family!r}, which this labbench does not know",
+                    "load it where that family is installed (LABBENCH_FAMILIES, see DEVELOPERS.md)") from None
 
 
 def _check_task(meta, name: str) -> int:
@@ -332,29 +316,27 @@ def _check_target(meta, name: str):
 def load_bundle(path: str | os.PathLike) -> TrainedModel:
     """Read and validate a bundle; every problem is one :class:`BundleError` line."""
     from labbench.data import Preprocessor
-    from labbench.nets.weights import NetWeights
 
     name = str(path)
     arrays = read_entries(path)
     meta = read_metadata(arrays, name)
+    family = _check_family(meta, name)
     n_outputs = _check_task(meta, name)
     state = _check_preprocessing(arrays, meta, name)
     n_inputs = len(state["numeric"]) + sum(len(c) for c in state["categories"])
-    layers = _check_network(arrays, meta, name, n_inputs, n_outputs)
+    record = family.from_bundle(arrays, meta, name, n_inputs, n_outputs)
     target_scaler = _check_target(meta, name)
     try:
         preprocessor = Preprocessor.from_state(state)
-        weights = NetWeights(layers=layers, activation=meta["network"]["activation"],
-                             output=meta["network"]["output"])
     except (ValueError, KeyError, TypeError) as exc:
         raise _fail(name, f"cannot be rebuilt ({type(exc).__name__}: {str(exc).splitlines()[0] if str(exc) else ''})") from None
     return TrainedModel(
-        preprocessor=preprocessor, weights=weights, task=meta["task"], target=str(meta["target"]),
+        preprocessor=preprocessor, weights=record, task=meta["task"], target=str(meta["target"]),
         features=tuple(meta["features"]), kinds=dict(meta["kinds"]),
         classes=tuple(meta["classes"]) if meta["classes"] is not None else None,
         settings=dict(meta["settings"] or {}), metric=str(meta["metric"] or ""),
         scores=dict(meta["scores"] or {}), data_sha256=str(meta["data_sha256"] or ""),
-        id_column=meta["id_column"], target_scaler=target_scaler,
+        id_column=meta["id_column"], target_scaler=target_scaler, family=family.name,
     )
 
 

@@ -1,4 +1,7 @@
-"""ONNX export of a trained model: preprocessing and network in one graph of standard operators.
+"""ONNX export of a trained model: preprocessing and the model in one graph of standard operators.
+
+The model part comes from the model's family (``Family.onnx_body``; the network's is in
+``labbench.families.network_export``); the inputs, the preprocessing and the outputs are shared.
 
 Inputs, one per input column of the model, named after the column (letters, digits and ``_``;
 other characters become ``_``, a leading digit gets ``c_`` in front, a name taken by an output or
@@ -39,7 +42,6 @@ from labbench.model import TrainedModel
 OPSET = 17
 ML_OPSET = 2
 IR_VERSION = 8   # the IR version that goes with opset 17
-_ACTIVATION_OPS = {"relu": "Relu", "tanh": "Tanh", "sigmoid": "Sigmoid"}
 
 
 #: The graph's output names; an input column of the same name gets a suffix ("value" -> "value_2").
@@ -71,10 +73,11 @@ def build_onnx(model: TrainedModel):
         raise LabbenchError("ONNX export needs the onnx package; install it with "
                             "pip install 'labbench[onnx]'") from None
     from labbench.export.bundle import bundle_arrays
+    from labbench.families import get_family
 
+    family = get_family(model.family)
     state = model.preprocessor.to_state()
-    layers = model.weights.layers
-    net_dtype = np.asarray(layers[0][0]).dtype
+    net_dtype = np.dtype(family.onnx_dtype(model.weights))
     net_type = TensorProto.DOUBLE if net_dtype == np.float64 else TensorProto.FLOAT
     names = input_names(model.features)
     nodes, inits = [], []
@@ -114,10 +117,9 @@ def build_onnx(model: TrainedModel):
         blocks.append(node("Cast", [hot], f"_lb.cat{j}_block", to=net_type))
     h = node("Concat", blocks, "_lb.inputs", axis=1) if len(blocks) > 1 else blocks[0]
 
-    for i, (W, b) in enumerate(layers):
-        h = node("Gemm", [h, const(f"W{i}", np.asarray(W)), const(f"b{i}", np.asarray(b))], f"_lb.layer{i}")
-        if i < len(layers) - 1:
-            h = node(_ACTIVATION_OPS[model.weights.activation], [h], f"_lb.hidden{i}")
+    # the family's part: scaled inputs -> value (training units) / P(second class) / probabilities
+    n_inputs = len(numeric) + sum(len(c) for c in state["categories"])
+    h = family.onnx_body(model.weights, h, n_inputs, node, const, net_type, model.task)
 
     outputs = []
     if model.task == "regression":
@@ -136,14 +138,15 @@ def build_onnx(model: TrainedModel):
     else:
         classes = const("classes", np.array(list(model.classes), dtype=object))
         if model.task == "binary":
-            p = node("Sigmoid", [h], "_lb.p1")
+            p = h
             q = node("Sub", [const("one", np.ones((1, 1), dtype=net_dtype)), p], "_lb.p0")
             node("Concat", [q, p], "probabilities", axis=1)
             flat = node("Reshape", [p, const("flat", np.array([-1], np.int64))], "_lb.p1_flat")
             hit = node("GreaterOrEqual", [flat, const("half", np.array(0.5, dtype=net_dtype))], "_lb.is_second")
             index = node("Cast", [hit], "_lb.label_index", to=TensorProto.INT64)
         else:
-            node("Softmax", [h], "probabilities", axis=1)
+            if h != "probabilities":
+                node("Identity", [h], "probabilities")
             index = node("ArgMax", ["probabilities"], "_lb.label_index", axis=1, keepdims=0)
         node("Gather", [classes, index], "label", axis=0)
         outputs.append(helper.make_tensor_value_info("label", TensorProto.STRING, ["N"]))

@@ -102,6 +102,8 @@ def inputs(model, columns):
     return np.hstack(blocks)
 
 
+# The hidden activations of labbench.nets.activations.ACTIVATIONS plus the output "identity"
+# (labbench's tests check that every registered activation is here).
 ACTIVATIONS = {
     "relu": lambda z: np.maximum(z, 0),
     "tanh": np.tanh,
@@ -111,8 +113,17 @@ ACTIVATIONS = {
 
 
 def forward(model, X):
-    """Network output: regression (n,) in training units (see target_units), P(second class)
-    (n,) for binary, class probabilities (n, C)."""
+    """Model output: regression (n,) in training units (see target_units), P(second class)
+    (n,) for binary, class probabilities (n, C). The bundle's "family" says which kind of model
+    computes it (none: a network); another family's function is added to FORWARD below."""
+    family = model["meta"].get("family", "network")
+    if family not in FORWARD:
+        raise SystemExit(f"this script cannot compute a model of the family {family!r}")
+    return FORWARD[family](model, X)
+
+
+def network_forward(model, X):
+    """A network's output from its layers (bundle entries layer{i}_W, layer{i}_b)."""
     n = model["meta"]["network"]["layers"]
     h = X.astype(model["layer0_W"].dtype)
     for i in range(n):
@@ -124,6 +135,9 @@ def forward(model, X):
         e = np.exp(h - h.max(axis=1, keepdims=True))
         return e / e.sum(axis=1, keepdims=True)
     return ACTIVATIONS[output](h)[:, 0]
+
+
+FORWARD = {"network": network_forward}
 
 
 def target_units(model, z):

@@ -10,8 +10,10 @@ and every step just runs it. So an activation describes itself as such steps:
   f'(z) in place, from the activation ``a`` (and what ``forward`` left in ``scratch``);
 * ``apply(z)``: the plain out-of-place function, for prediction.
 
-To add an activation write these three, add an ``Activation`` to ``ACTIVATIONS`` and its name to
-``config.ACTIVATION_NAMES``; the finite-difference gradient test runs every name in the table.
+To add an activation write these three and add an ``Activation`` to ``ACTIVATIONS`` (the names
+in ``config.ACTIVATION_NAMES``, the search's choices and the exporters follow the table; the
+numpy script and ONNX need their own line, a test says which); the finite-difference gradient
+test runs every name in the table.
 """
 
 from __future__ import annotations

@@ -13,12 +13,21 @@ from typing import Any
 import numpy as np
 
 from labbench.errors import SpecError
+from labbench.nets.activations import ACTIVATIONS
+from labbench.nets.init import SCHEMES
+from labbench.nets.optim import OPTIMIZERS
 
-ACTIVATION_NAMES = ("relu", "tanh", "sigmoid")
-OPTIMIZER_NAMES = ("sgd", "momentum", "adam")
-INIT_NAMES = ("auto", "glorot", "he")
+# Names come from their registries (one source each): add an activation to
+# ``activations.ACTIVATIONS``, an optimiser to ``optim.OPTIMIZERS``, a start to ``init.SCHEMES``.
+ACTIVATION_NAMES = tuple(ACTIVATIONS)
+OPTIMIZER_NAMES = tuple(OPTIMIZERS)
+INIT_NAMES = ("auto", *SCHEMES)
 DTYPE_NAMES = ("float32", "float64")
 MAX_HIDDEN_LAYERS = 3
+#: The largest momentum allowed, inclusive (0 <= momentum <= MOMENTUM_MAX), here and in the
+#: search's settings table (labbench.families.network reads it): at 1 the heavy ball never forgets
+#: a step, and above 0.999 the step size grows past a thousand times the learning rate.
+MOMENTUM_MAX = 0.999
 
 #: What ``init = "auto"`` draws for each hidden activation, chosen by measurement
 #: (benchmarks/bench_init.py; table in DEVELOPERS.md): Glorot beat He for relu (+1.3 accuracy
@@ -86,8 +95,8 @@ class NetConfig:
         _positive("epochs", self.epochs, integer=True)
         _positive("patience", self.patience, allow_zero=True, integer=True)
         _positive("momentum", self.momentum, allow_zero=True)
-        if self.momentum >= 1:
-            raise SpecError(f"momentum: {self.momentum!r} is out of range; it must be at least 0 and below 1")
+        if self.momentum > MOMENTUM_MAX:
+            raise SpecError(f"momentum: {self.momentum!r} is out of range; it must be from 0 to {MOMENTUM_MAX}")
 
     @property
     def init_scheme(self) -> str:

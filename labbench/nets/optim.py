@@ -18,15 +18,19 @@ position: a member without rows keeps its parameters and state (the trainer save
 them) and an Adam member counts only the steps it took. ``begin_epoch()`` runs before each epoch.
 
 To add an optimiser: subclass ``Optimizer``, implement ``steps`` (and ``state``/``begin_epoch`` if
-it keeps state), register it in ``OPTIMIZERS`` and its name in ``config.OPTIMIZER_NAMES``.
+it keeps state), register it in ``OPTIMIZERS`` (``config.OPTIMIZER_NAMES`` and the search's choices follow).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from typing import TYPE_CHECKING
+
 from labbench.nets.activations import Steps
-from labbench.nets.config import NetConfig
+
+if TYPE_CHECKING:       # config reads OPTIMIZERS' names, so the import runs one way only
+    from labbench.nets.config import NetConfig
 
 
 class Optimizer:

@@ -1,4 +1,4 @@
-"""The search space a spec gets when it has no ``[space]`` section (and a new table in the window).
+"""The search space a network spec gets when it has no ``[space]`` section (and a new table in the window).
 
 A first search should search: the settings a practitioner would otherwise pick by hand (learning
 rate, layers, units, batch size, activation, weight decay) get ranges that cover what works for
@@ -15,16 +15,9 @@ from __future__ import annotations
 
 from typing import Any
 
-DEFAULT_SPACE: dict[str, Any] = {
-    "learning_rate": {"low": 1e-4, "high": 0.1, "log": True},
-    "hidden_layers": {"low": 1, "high": 2},
-    "hidden_units": {"low": 16, "high": 256, "log": True},
-    "epochs": 200,
-    "batch_size": {"choices": [32, 64, 128]},
-    "activation": {"choices": ["relu", "tanh"]},
-    "optimizer": "adam",
-    "l2": {"low": 1e-6, "high": 1e-2, "log": True, "off": True},
-}
+from labbench.families.network import DEFAULT_SPACE   # declared with the network's settings
+
+__all__ = ["DEFAULT_SPACE", "default_space_dict"]
 
 
 def default_space_dict() -> dict[str, Any]:

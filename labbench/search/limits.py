@@ -44,6 +44,8 @@ def memory_estimate(spec: Any) -> dict[str, float]:
     trial times the workers, and folds × seeds for the winner's spread check. The first layer's
     weights (inputs × units) and the batch's activations come on top; they depend on the data.
     """
+    if "hidden_units" not in spec.space:  # not a network: nothing of this size to count
+        return {"trial": 0, "spread": 0, "per_net": 0, "units": 0, "layers": 0}
     units = _largest(spec.space, "hidden_units")
     layers = _largest(spec.space, "hidden_layers")
     per_net = 4 * 4 * max(layers - 1, 0) * units * (units + 1)

@@ -1,7 +1,7 @@
 """One trial: the k (× repeats) fold models of one configuration trained together.
 
-This runs inside a worker process. It trains a ``labbench.nets.StackTrainer`` over the prepared
-folds (one stacked member per fold), hands the fold means of every epoch to a callback, and stops
+This runs inside a worker process. It asks the model family (``labbench.families``; the network's
+is a ``labbench.nets.StackTrainer``) to train over the prepared folds (one stacked member per fold), hands the fold means of every epoch to a callback, and stops
 after an epoch when told to (pruned or cancelled). With ``patience`` the folds share ONE kept
 epoch (``best_epoch``: the best of their mean validation loss, see ``labbench.nets.stopping``) and
 the fold scores are the metric at that epoch; with patience 0 it is the last epoch. The trial
@@ -58,18 +58,16 @@ def run_trial(
     exceptions propagate (they are bugs). ``best_epoch`` is the epoch whose fold scores are given.
     """
     from labbench.errors import DivergenceError
-    from labbench.nets import StackTrainer
-    from labbench.search.space import settings_to_config
 
     started = time.perf_counter()
     folds = prepared.fold_arrays
-    config = settings_to_config(settings, dtype=dtype)
     n_members = len(folds.X_train)
-    trainer = StackTrainer(
-        config, prepared.task, prepared.n_outputs,
+    trainer = prepared.model.stack(
+        settings, prepared.task, prepared.n_outputs,
         folds.X_train, folds.y_train, folds.X_val, folds.y_val,
         seeds=member_seeds(seed, n_members), metric=prepared.metric,
         target_inverse=folds.target_inverse,    # regression: scores in the target's own units
+        dtype=dtype,
     )
     state = {"epochs": 0, "last": None, "stopped": False}
 

@@ -18,6 +18,7 @@ from typing import Any
 
 import numpy as np
 
+from labbench.search.space import spec_error
 from labbench.search.spec import Spec, check_metric
 
 log = logging.getLogger("labbench.search.prepare")
@@ -34,6 +35,14 @@ class Prepared:
     folds: tuple                       # (train, val) positions into train_pos, one pair per fold
     fold_arrays: Any                   # labbench.data.FoldArrays (rows = positions into the table)
     target_scaling: str = "standard"   # regression: how the refit scales the target (spec key)
+    family: str = "network"            # the model family (labbench.families) that trains
+
+    @property
+    def model(self):
+        """The ``labbench.families.Family`` that trains on these folds."""
+        from labbench.families import get_family
+
+        return get_family(self.family)
 
     @property
     def n_outputs(self) -> int:
@@ -57,16 +66,20 @@ def metric_direction(metric: str) -> str:
 def prepare(spec: Spec) -> Prepared:
     """Load and split the spec's data. Raises DataError / SpecError with one-line messages."""
     from labbench.data import check_folds, holdout_split, load_table, make_folds, prepare_folds
-    from labbench.nets.metrics import default_metric
 
     d, e = spec.data, spec.evaluation
     table = load_table(d.path, d.target, ignore=d.ignore, kinds=dict(d.kinds) or None,
                        task=d.task, missing=d.missing, missing_markers=d.missing_markers,
                        thousands=d.thousands, decimal=d.decimal, keep=d.keep)
     task = table.task
-    metric = e.metric or default_metric(task)
+    metric = e.metric or spec.space.model.default_metric(task)
     if e.metric:
         check_metric(metric, task, spec.source_path)
+    offered = spec.space.model.metrics(task)
+    if metric not in offered:           # the family scores itself with these objectives only
+        raise spec_error(spec.source_path, "evaluation.metric", f"{metric!r} cannot score the "
+                         f"{spec.space.family} family on a {task} task; use one of "
+                         + ", ".join(offered))
     check_folds(table, e.folds, e.holdout)
     stratify = task != "regression"
     train_pos, holdout_pos = holdout_split(table.y, e.holdout, seed=e.seed, stratify=stratify)
@@ -79,4 +92,5 @@ def prepare(spec: Spec) -> Prepared:
              len(holdout_pos), len(folds))
     return Prepared(table=table, task=task, metric=metric, direction=metric_direction(metric),
                     train_pos=train_pos, holdout_pos=holdout_pos, folds=tuple(folds),
-                    fold_arrays=fold_arrays, target_scaling=d.target_scaling)
+                    fold_arrays=fold_arrays, target_scaling=d.target_scaling,
+                    family=spec.space.family)

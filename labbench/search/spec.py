@@ -5,7 +5,8 @@
                 missing_markers, thousands, decimal, keep
 [evaluation]    folds, repeats, holdout, seed, metric, seed_spread
 [search]        trials, minutes, sampler, pruner, workers, storage, name
-[space]         one entry per network setting (see labbench.search.space)
+[model]         family (default "network"; labbench.families)
+[space]         one entry per setting of the model family (see labbench.search.space)
 ```
 
 ``load_spec(path)`` reads and checks it (every problem a one-line ``SpecError`` naming the file,
@@ -25,12 +26,13 @@ from typing import Any, Mapping
 import tomli_w
 
 from labbench.errors import SpecError
-from labbench.search.defaults import default_space_dict
+from labbench.families import DEFAULT as DEFAULT_FAMILY
+from labbench.families import get_family
+from labbench.nets.losses import TASKS
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
                                     MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
 
-TASKS = ("regression", "binary", "multiclass")
 KINDS = ("numeric", "categorical")
 MISSING = ("impute", "drop")
 SCALING = ("standard", "minmax")
@@ -42,7 +44,7 @@ PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
 
 
-_SECTIONS = ("data", "evaluation", "search", "space")
+_SECTIONS = ("data", "evaluation", "search", "model", "space")
 
 
 @dataclass(frozen=True)
@@ -141,8 +143,10 @@ class Spec:
             search["storage"] = s.storage if keep_password else without_password(s.storage)
         if s.name:
             search["name"] = s.name
-        return {"data": data, "evaluation": evaluation, "search": search,
-                "space": self.space.to_dict()}
+        out = {"data": data, "evaluation": evaluation, "search": search}
+        if self.space.family != DEFAULT_FAMILY:       # a network spec reads as it always did
+            out["model"] = {"family": self.space.family}
+        return {**out, "space": self.space.to_dict()}
 
     def to_toml(self, base_dir: str | os.PathLike | None = None, *,
                 keep_password: bool = False) -> str:
@@ -398,17 +402,24 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         name=ss.text("name"),
     )
 
-    # No [space] at all: the default searched space (labbench.search.defaults); with a [space]
-    # section, settings left out are fixed at their defaults.
-    space_raw = d["space"] if "space" in d else default_space_dict()
+    # [model] family: which kind of model (labbench.families); none = the network.
+    ms = _Section(d.get("model", {}), "model", ("family",), source)
+    family = get_family(ms.text("family", DEFAULT_FAMILY), source).name
+    # No [space] at all: the family's default searched space (labbench.search.defaults for the
+    # network); with a [space] section, settings left out are fixed at their defaults.
+    space_raw = d["space"] if "space" in d else _plain_copy(get_family(family).default_space)
     if not isinstance(space_raw, Mapping):
         raise spec_error(source, "space", f"{show(space_raw)} is not a table; write [space] "
                          "with one line per setting")
-    space = SearchSpace.from_dict(space_raw, source)
+    space = SearchSpace.from_dict(space_raw, source, family)
     _check_sampler_space(search, space, source)
     spec = Spec(data, evaluation, search, space, source)
     check_memory(spec)
     return spec
+
+
+def _plain_copy(space: Mapping[str, Any]) -> dict[str, Any]:
+    return {k: (dict(v) if isinstance(v, Mapping) else v) for k, v in space.items()}
 
 
 def _number_format(ds: _Section) -> dict[str, Any]:

@@ -87,6 +87,8 @@ def epoch_range(spec: Any) -> tuple[int, int]:
     """(fewest, most) epochs a trial of this space can train."""
     from labbench.search.space import Choices, Fixed, IntRange
 
+    if "epochs" not in spec.space:        # a family without epochs trains one (families.base)
+        return 1, 1
     s = spec.space["epochs"]
     if isinstance(s, Fixed):
         return int(s.value), int(s.value)

@@ -31,7 +31,6 @@ from labbench.search import events
 from labbench.search.insight import (compare_cv_holdout, counts_by_state, fmt,
                                      lead_inside_spread, param_importance, spread_stats)
 from labbench.search.prepare import Prepared, prepare
-from labbench.search.space import settings_to_config
 from labbench.search.spec import Spec, without_password
 
 log = logging.getLogger("labbench.search.winner")
@@ -129,11 +128,11 @@ def refit_epochs(trial: Any, settings: Mapping[str, Any]) -> int:
 def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling: str,
           dtype: str = "float32", target_scaling: str | None = None, epochs: int | None = None):
     """Train the settings on all training rows for ``epochs`` (default: the settings' epochs; no
-    validation rows, so no early stopping); returns ``(Preprocessor, NetWeights, TargetScaler or
-    None)``. Regression: the target scaler (``target_scaling``, default the prepared spec's) is
-    fitted on the same rows and the network trains in its units."""
+    validation rows, so no early stopping); returns ``(Preprocessor, record, TargetScaler or
+    None)`` where the record is the family's (the network's: ``NetWeights``). Regression: the
+    target scaler (``target_scaling``, default the prepared spec's) is fitted on the same rows
+    and the model trains in its units."""
     from labbench.data import Preprocessor, TargetScaler
-    from labbench.nets import StackTrainer
 
     table = prepared.table
     numeric = [c for c in table.features if table.kinds[c] == "numeric"]
@@ -145,31 +144,28 @@ def refit(prepared: Prepared, settings: Mapping[str, Any], *, seed: int, scaling
     if prepared.task == "regression":
         target = TargetScaler(target_scaling or prepared.target_scaling, table.target)
         y = target.fit_transform(y, f"{table.path}: ")
-    config = settings_to_config(settings, dtype=dtype)
-    if epochs is not None:
-        config = dataclasses.replace(config, epochs=int(epochs))
-    trainer = StackTrainer(config, prepared.task,
-                           prepared.n_outputs, [X], [y], seeds=_member_seeds(seed, 1))
+    trainer = prepared.model.stack(settings, prepared.task, prepared.n_outputs, [X], [y],
+                                   seeds=_member_seeds(seed, 1), dtype=dtype, epochs=epochs)
     trainer.run()
-    return pre, trainer.weights(0), target
+    return pre, trainer.record(0), target
 
 
 def measure_seed_spread(prepared: Prepared, settings: Mapping[str, Any], seeds: list[int],
                 dtype: str = "float32") -> dict[str, Any]:
     """CV score of the settings for each seed; seeds × folds trained as one stack, each seed's folds
     one group sharing its best epoch (the rule of the trials), scored at that epoch."""
-    from labbench.nets import StackTrainer
-
     fa = prepared.fold_arrays
     k = len(fa.X_train)
     member_seeds = [s for seed in seeds for s in _member_seeds(seed, k)]
-    trainer = StackTrainer(settings_to_config(settings, dtype=dtype), prepared.task,
-                           prepared.n_outputs, list(fa.X_train) * len(seeds),
-                           list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
-                           list(fa.y_val) * len(seeds), seeds=member_seeds, metric=prepared.metric,
-                           target_inverse=None if fa.target_inverse is None
-                           else list(fa.target_inverse) * len(seeds),
-                           groups=[i for i in range(len(seeds)) for _ in range(k)])
+    trainer = prepared.model.stack(settings, prepared.task,
+                                   prepared.n_outputs, list(fa.X_train) * len(seeds),
+                                   list(fa.y_train) * len(seeds), list(fa.X_val) * len(seeds),
+                                   list(fa.y_val) * len(seeds), seeds=member_seeds,
+                                   metric=prepared.metric,
+                                   target_inverse=None if fa.target_inverse is None
+                                   else list(fa.target_inverse) * len(seeds),
+                                   groups=[i for i in range(len(seeds)) for _ in range(k)],
+                                   dtype=dtype)
     trainer.run()
     per_member = np.asarray(trainer.best_val_metric, dtype=np.float64)
     scores = [float(per_member[i * k:(i + 1) * k].mean()) for i in range(len(seeds))]

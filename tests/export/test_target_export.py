@@ -77,7 +77,7 @@ def test_bundle_script_and_onnx_agree(scaled, tmp_path):
     want = model.predict(rows)
     bundle = save_bundle(model, tmp_path / "m.npz")
     meta = json.loads(bytes(bundle_arrays(model)["meta"]).decode("utf-8"))
-    assert meta["format_version"] == 2 == FORMAT_VERSION
+    assert meta["format_version"] == 2 < FORMAT_VERSION    # 3: a family other than the network
     assert meta["preprocessing"]["target"] == model.target_scaler.to_state()
     loaded = load_bundle(bundle)
     assert loaded.target_scaler.to_state() == model.target_scaler.to_state()
