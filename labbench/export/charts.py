@@ -13,6 +13,7 @@ import numpy as np
 
 from labbench.export import font
 from labbench.export.png import Canvas, Color
+from labbench.numbers import tick as format_tick     # axis labels: the one number formatting
 
 # An own palette: muted, distinguishable, readable on white.
 INK: Color = (40, 40, 40)
@@ -54,17 +55,6 @@ def nice_step(span: float, count: int = 5) -> float:
         if raw <= mult * power * 1.0001:
             return mult * power
     return 10.0 * power
-
-
-def format_tick(value: float, step: float) -> str:
-    if value == 0:
-        return "0"
-    if abs(value) >= 1e5 or abs(value) < 1e-3:
-        return f"{value:.1e}".replace("e-0", "e-").replace("e+0", "e")
-    decimals = max(0, -math.floor(math.log10(step) + 1e-9))
-    if step * 10**decimals % 1 > 1e-6:  # e.g. a 0.25 step needs one more decimal
-        decimals += 1
-    return f"{value:.{decimals}f}"
 
 
 def fit_text(text: str, room: float) -> tuple[str, int]:

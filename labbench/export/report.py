@@ -12,7 +12,6 @@ from __future__ import annotations
 import base64
 import html
 import logging
-import math
 import os
 from pathlib import Path
 from typing import Any, Iterable
@@ -20,6 +19,8 @@ from typing import Any, Iterable
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
 from labbench.export import report_plots as plots
+from labbench.numbers import number
+from labbench.search import states
 from labbench.search.commands import param_label
 
 log = logging.getLogger("labbench.export.report")
@@ -46,7 +47,7 @@ def num(value: Any, digits: int = 4) -> str:
         return esc(value if value is not None else "n/a")
     if isinstance(value, int):
         return str(value)
-    return "n/a" if not math.isfinite(value) else f"{value:.{digits}g}"
+    return number(value, digits)           # the one number formatting (labbench.numbers)
 
 
 def table(header: Iterable[str], rows: Iterable[Iterable[Any]], numeric: Iterable[int] = ()) -> str:
@@ -83,14 +84,11 @@ def job_line(data: ReportData) -> str:
     metric = data.attrs.get("metric") or "its metric"
     return (f"Search '{data.study_name}': predict {_target(data)} ({data.data.get('task') or '?'}) "
             f"from {Path(str(path)).name} with a small neural network; {len(data.trials)} trial(s), "
-            f"{counts['complete']} complete, ranked by cross-validated {metric} ({data.direction}).")
+            f"{counts['complete']} {states.WORDS['complete']}, ranked by cross-validated {metric} ({data.direction}).")
 
 
 def _counts(data: ReportData) -> dict[str, int]:
-    counts = {"complete": 0, "pruned": 0, "failed": 0, "running": 0, "waiting": 0}
-    for t in data.trials:
-        counts[t.state] = counts.get(t.state, 0) + 1
-    return counts
+    return states.count(data.trials)
 
 
 def data_section(data: ReportData) -> str:
@@ -158,7 +156,7 @@ def space_section(data: ReportData) -> str:
 
 def trials_section(data: ReportData) -> str:
     counts = _counts(data)
-    parts = [table(("state", "trials"), [(k, v) for k, v in counts.items()], numeric=(1,))]
+    parts = [table(("state", "trials"), [(states.WORDS[k], v) for k, v in counts.items()], numeric=(1,))]
     parts.append(figure(plots.score_by_trial(data), "score by trial",
                         f"Cross-validated {plots.metric_label(data, long=True)} of each complete trial, and the best so far."))
     parts.append(figure(plots.learning_curves(data), "learning curves",
@@ -184,7 +182,7 @@ def trials_section(data: ReportData) -> str:
     for t in data.trials[-300:]:
         params = ", ".join(f"{param_label(k)}={num(v, 3) if isinstance(v, float) else v}"
                            for k, v in t.params.items())
-        rows.append((t.number, t.state + (" (winner)" if t.number == best else ""), t.value,
+        rows.append((t.number, states.word(t.state) + (" (winner)" if t.number == best else ""), t.value,
                      t.cv_std, t.epochs_run, t.duration_s, params, t.end_reason))
     parts.append("<h3>All trials</h3>" + ("<p>The last 300 are listed.</p>" if len(data.trials) > 300 else ""))
     parts.append(table(("trial", "state", "CV mean", "CV std", "epochs", "seconds", "parameters", "why it ended"),

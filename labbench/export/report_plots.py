@@ -23,14 +23,13 @@ def metric_label(data: ReportData, long: bool = False) -> str:
 
 
 def best_number(data: ReportData) -> int | None:
+    """The winner of winner.json, else the best trial by ``labbench.search.ranking``."""
+    from labbench.search.ranking import best_trial
+
     if data.winner and data.winner.get("trial_number") is not None:
         return int(data.winner["trial_number"])
-    done = [t for t in data.trials if t.value is not None and math.isfinite(t.value)]
-    if not done:
-        return None
-    if data.direction == "maximize":   # ties go to the earlier trial
-        return max(done, key=lambda t: (t.value, -t.number)).number
-    return min(done, key=lambda t: (t.value, t.number)).number
+    best = best_trial(data.trials, data.direction)
+    return None if best is None else best.number
 
 
 def score_by_trial(data: ReportData) -> bytes | None:
