@@ -11,7 +11,7 @@ lines up and ``0.8`` reads as the measured ``0.8000`` rather than a rounded gues
 
 ``digits`` changes the number of significant digits (e.g. 3 for a setting in a dense table).
 Also here: ``setting`` (a setting's value: ``on``/``off`` for switches), ``duration``
-(``45s``, ``3m05s``, ``2h10m``), ``percent`` (a share as ``42%``) and ``tick`` (an axis label
+(``45s``, ``3m05s``, ``2h10m``; ``long=True``: ``3 min 05 s``), ``percent`` (a share as ``42%``) and ``tick`` (an axis label
 whose decimals follow the tick step). Plain Python, no Qt: the window imports the same functions.
 """
 
@@ -53,27 +53,33 @@ def number(value: Any, digits: int = DIGITS, *, missing: str = "n/a") -> str:
 
 
 def setting(value: Any) -> str:
-    """A setting's value: switches as on/off, numbers by ``number`` (no trailing zeros forced on
-    whole numbers), text as it is."""
+    """A setting's value: switches as on/off, numbers by ``number`` without trailing zeros (a
+    setting is exact, not measured: momentum ``0.9``, learning rate ``3e-4``), text as it is."""
     if isinstance(value, bool):
         return "on" if value else "off"
     if isinstance(value, int):
         return str(value)
     if isinstance(value, float):
-        return number(value)
+        text = number(value)
+        mantissa, e, exp = text.partition("e")
+        if "." in mantissa:
+            mantissa = mantissa.rstrip("0").rstrip(".")
+        return mantissa + e + exp
     return "" if value is None else str(value)
 
 
-def duration(seconds: float | None, *, missing: str = "?") -> str:
-    """Seconds as a short text: ``45s``, ``3m05s``, ``2h10m``."""
+def duration(seconds: float | None, *, long: bool = False, missing: str = "?") -> str:
+    """Seconds as a short text: ``45s``, ``3m05s``, ``2h10m`` (a progress line, a table column);
+    ``long``: ``45 s``, ``3 min 05 s``, ``2 h 10 min`` (a sentence, a label in the window)."""
     if seconds is None or (isinstance(seconds, float) and not math.isfinite(seconds)):
         return missing
     s = int(round(max(0.0, float(seconds))))
+    h, m, sec = s // 3600, (s % 3600) // 60, s % 60
     if s < 60:
-        return f"{s}s"
+        return f"{s} s" if long else f"{s}s"
     if s < 3600:
-        return f"{s // 60}m{s % 60:02d}s"
-    return f"{s // 3600}h{(s % 3600) // 60:02d}m"
+        return f"{m} min {sec:02d} s" if long else f"{m}m{sec:02d}s"
+    return f"{h} h {m:02d} min" if long else f"{h}h{m:02d}m"
 
 
 def percent(share: float | None, digits: int = 0, *, missing: str = "n/a") -> str:

@@ -67,7 +67,9 @@ def test_digits_changes_the_significant_digits():
 def test_setting_values():
     assert setting(True) == "on" and setting(False) == "off"
     assert setting(64) == "64" and setting("relu") == "relu" and setting(None) == ""
-    assert setting(0.001) == "0.001000" and setting(0.0003) == "3.000e-4"
+    assert setting(0.001) == "0.001" and setting(0.0003) == "3e-4" and setting(0.9) == "0.9"
+    assert setting(0.012345) == "0.01235" and setting(1.5e-5) == "1.5e-5" and setting(20.0) == "20"
+    assert setting(float("nan")) == "n/a"
 
 
 def test_duration():
@@ -75,6 +77,8 @@ def test_duration():
     assert duration(0.4) == "0s" and duration(45) == "45s" and duration(-3) == "0s"
     assert duration(185) == "3m05s" and duration(3599.6) == "1h00m"
     assert duration(7830) == "2h10m"                      # 2 h 10 min 30 s, minutes truncated
+    assert duration(45, long=True) == "45 s" and duration(185, long=True) == "3 min 05 s"
+    assert duration(7830, long=True) == "2 h 10 min" and duration(None, missing="unknown") == "unknown"
 
 
 def test_percent():

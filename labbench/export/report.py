@@ -19,7 +19,7 @@ from typing import Any, Iterable
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
 from labbench.export import report_plots as plots
-from labbench.numbers import number
+from labbench.numbers import number, setting
 from labbench.search import states
 from labbench.search.commands import param_label
 
@@ -180,8 +180,7 @@ def trials_section(data: ReportData) -> str:
     best = plots.best_number(data)
     rows = []
     for t in data.trials[-300:]:
-        params = ", ".join(f"{param_label(k)}={num(v, 3) if isinstance(v, float) else v}"
-                           for k, v in t.params.items())
+        params = ", ".join(f"{param_label(k)}={setting(v)}" for k, v in t.params.items())
         rows.append((t.number, states.word(t.state) + (" (winner)" if t.number == best else ""), t.value,
                      t.cv_std, t.epochs_run, t.duration_s, params, t.end_reason))
     parts.append("<h3>All trials</h3>" + ("<p>The last 300 are listed.</p>" if len(data.trials) > 300 else ""))
