@@ -27,9 +27,9 @@ import pandas as pd
 
 from labbench.errors import DataError
 from labbench.data.reading import names_text, show
+from labbench.nets.losses import TASKS   # the one list of tasks: the losses the engine has
 
 KINDS = ("numeric", "categorical")
-TASKS = ("regression", "binary", "multiclass")
 MAX_CLASSES = 20   # whole-number targets with more distinct values are treated as regression
 CODES_PER_ROW = 0.5   # more distinct values than this share of the rows: a quantity
 SMALL_CODE = 20       # whole numbers within -20..20 are small enough to be codes in any pattern

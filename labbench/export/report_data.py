@@ -25,7 +25,7 @@ log = logging.getLogger("labbench.export.report")
 @dataclass
 class TrialRow:
     number: int
-    state: str                      # complete | pruned | failed | running | waiting
+    state: str                      # a key of labbench.search.states (complete, pruned, ...)
     value: float | None
     params: dict[str, Any]
     settings: dict[str, Any]
@@ -55,9 +55,9 @@ class ReportData:
 
 
 def _state(trial) -> str:
-    from labbench.search.insight import STATE_NAMES
+    from labbench.search.states import trial_key
 
-    return STATE_NAMES.get(trial.state.name, trial.state.name.lower())
+    return trial_key(trial)
 
 
 def _row(trial) -> TrialRow:

@@ -38,12 +38,10 @@ def _finite(value: Any) -> bool:
 def best_number(data: ReportData) -> int | None:
     if data.winner and data.winner.get("trial_number") is not None:
         return int(data.winner["trial_number"])
-    done = [t for t in data.trials if t.state == "complete" and _finite(t.value)]
-    if not done:
-        return None
-    if data.direction == "maximize":   # ties go to the earlier trial
-        return max(done, key=lambda t: (t.value, -t.number)).number
-    return min(done, key=lambda t: (t.value, t.number)).number
+    from labbench.search.ranking import best_trial      # the one rule for "the best trial"
+
+    best = best_trial(data.trials, data.direction)
+    return None if best is None else best.number
 
 
 def view_range(values: Sequence[float], direction: str) -> tuple[float, float] | None:

@@ -10,6 +10,8 @@ from __future__ import annotations
 import math
 from typing import Any, Iterable, Mapping
 
+from labbench.numbers import number
+
 # labbench's own words for the trial states (the window uses the same)
 try:
     from labbench.palette import STATE_WORDS as _SHARED_WORDS
@@ -56,7 +58,7 @@ def num(value: Any, digits: int = 4) -> str:
         return "n/a" if value is None else str(value)
     if isinstance(value, int):
         return str(value)
-    return "n/a" if not math.isfinite(value) else f"{value:.{digits}g}"
+    return number(value, digits)           # the one number formatting (labbench.numbers)
 
 
 def value_words(name: str, value: Any) -> str:

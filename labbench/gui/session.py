@@ -29,25 +29,17 @@ SYNC_MS = 5000          # during a run, finished trials are checked against stor
 
 
 def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
-    """What ``labbench run`` does: the search, then the winner check (in the search process)."""
-    from labbench.search.commands import out_dir
+    """What ``labbench run`` does: the search, then the one ending (in the search process):
+    ``labbench.search.ending.finish_search`` writes every file into ``<spec name>_out``."""
+    from labbench.search.ending import finish_search
     from labbench.search.runner import SearchRunner
-    from labbench.search.winner import finalize
 
     runner = SearchRunner(spec, emit, fresh=fresh)
     outcome = runner.run(cancel)
     result: dict[str, Any] = {"outcome": outcome, "summary": None, "model": None, "files": ()}
     if outcome.cancelled or outcome.best_number is None or cancel.is_set():
         return result
-    files: list[str] = []
-
-    def relay(event) -> None:
-        if isinstance(event, ev.WinnerReady):
-            files.extend(event.files)
-        emit(event)
-
-    summary, model = finalize(spec, runner.study, runner.prepared, emit=relay,
-                              out_dir=out_dir(spec, None))
+    summary, model, files = finish_search(spec, runner.study, runner.prepared, None, emit)
     result.update(summary=summary, model=model, files=tuple(files))
     return result
 

@@ -10,13 +10,13 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 from labbench.errors import SpecError
+from labbench.search import ranking, states
+from labbench.search.states import CANCELLED
 from labbench.search.storage import LABBENCH_FORMAT, plain, versions
 from labbench.search.strategy import intermediate_sign
 
-CANCELLED = "cancelled by the user"
 LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
-STATE_NAMES = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
-               "RUNNING": "running", "WAITING": "waiting"}
+STATE_NAMES = states.KEY_OF_OPTUNA      # Optuna state name -> labbench key (labbench.search.states)
 
 
 @dataclass(frozen=True)
@@ -93,24 +93,18 @@ def study_attrs(spec, prepared) -> dict[str, Any]:
 
 
 def best_of(trials, direction: str) -> tuple | None:
-    """(number, value, cv_std, fold_scores, params) of the best complete trial, or None."""
-    from optuna.trial import TrialState
-
-    done = [t for t in trials if t.state == TrialState.COMPLETE and t.value is not None]
-    if not done:
+    """(number, value, cv_std, fold_scores, params) of the best trial (labbench.search.ranking),
+    or None."""
+    t = ranking.best_trial(trials, direction)
+    if t is None:
         return None
-    pick = max if direction == "maximize" else min
-    t = pick(done, key=lambda t: t.value)
     return (t.number, float(t.value), float(t.user_attrs.get("cv_std") or 0.0),
             tuple(t.user_attrs.get("fold_scores") or ()), dict(t.params))
 
 
 def count_states(trials) -> dict[str, int]:
-    counts = {name: 0 for name in STATE_NAMES.values()}
-    for t in trials:
-        name = STATE_NAMES.get(t.state.name, t.state.name.lower())
-        counts[name] = counts.get(name, 0) + 1
-    return counts
+    """Trials per state key, cancelled told apart from failed (labbench.search.states)."""
+    return states.count(trials)
 
 
 def eta(trials: int | None, minutes: float | None, finished: int, elapsed: float) -> float | None:

@@ -19,12 +19,14 @@ from pathlib import Path
 from typing import Any
 
 from labbench.errors import SpecError
+from labbench.numbers import duration, number, percent, setting
+from labbench.search import states
+from labbench.search.ending import OUTPUT_NAMES, out_dir
 
 log = logging.getLogger("labbench.search.commands")
 
 EXIT_OK, EXIT_NO_WINNER, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
-# the files `labbench run` writes into its output folder
-OUTPUT_NAMES = ("winner.json", "winner.toml", "model.npz", "predict_with_numpy.py", "model.onnx")
+__all__ = ["OUTPUT_NAMES", "out_dir", "run_command", "show_command", "winner_text", "trials_table"]
 
 
 def add_parser(subparsers) -> None:
@@ -103,20 +105,9 @@ class _Interrupts:
             signal.signal(sig, handler)
 
 
-def out_dir(spec, given: str | None) -> Path:
-    if given:
-        return Path(given)
-    if spec.source_path:
-        src = Path(spec.source_path).resolve()
-        return src.parent / f"{src.stem}_out"
-    from labbench.fileio import safe_file_name
-
-    return Path.cwd() / f"{safe_file_name(spec.study_name())}_out"
-
-
 def run_command(args) -> int:
-    from labbench.fileio import check_out_dir, check_output
     from labbench.search import events
+    from labbench.search.ending import check_out
     from labbench.search.progress import ProgressLine
     from labbench.search.runner import SearchRunner
     from labbench.search.spec import load_spec
@@ -128,10 +119,7 @@ def run_command(args) -> int:
         _check_workers(spec, args.workers)
     target = out_dir(spec, args.out)
     # checked before the search starts, not after it ran for hours
-    inputs = (("spec file", args.spec), ("data file", spec.data.path))
-    check_out_dir(target, inputs=inputs)
-    for name in OUTPUT_NAMES:        # e.g. `labbench run winner.toml --out .`
-        check_output(target / name, inputs=inputs, what="output folder", option="--out")
+    check_out(spec, target, spec_path=args.spec)
     if args.trials == 0:
         if args.fresh:
             raise SpecError("--trials 0 with --fresh: that would delete the stored search and run "
@@ -200,21 +188,10 @@ def _check_workers(spec, workers: int) -> None:
 
 
 def _finish(spec, study, prepared, target: Path, progress) -> int:
-    """Refit, hold-out, seed spread, winner files, bundle/script/ONNX; prints the summary."""
-    from labbench.export import export_all
-    from labbench.search import events
-    from labbench.search.winner import finalize
+    """The one ending (``labbench.search.ending.finish_search``); prints the summary."""
+    from labbench.search.ending import finish_search
 
-    files: list[str] = []
-
-    def collect(event) -> None:
-        if isinstance(event, events.WinnerReady):
-            files.extend(event.files)
-        progress(event)
-
-    summary, model = finalize(spec, study, prepared, emit=collect, out_dir=target)
-    progress(events.FinalStage("files", f"Saving the trained winner (bundle, script, ONNX) to {target}"))
-    files.extend(str(p) for p in export_all(model, summary, target))
+    summary, _model, files = finish_search(spec, study, prepared, target, progress)
     progress.close()
     print(winner_text(summary, files))
     return EXIT_OK
@@ -244,9 +221,9 @@ def interrupted_text(ended: dict[str, int], storage: str | None, spec_path: str,
     cancelled = ended.get("cancelled", 0)
     done = {k: n for k, n in ended.items() if k != "cancelled" and n}
     finished = sum(done.values())
-    parts = ", ".join(f"{n} {k}" for k, n in done.items())
+    parts = states.counts_text(done)
     where = f" in {storage}" if storage else ""
-    text = f"labbench: interrupted; {finished} trial(s) of this run finished"
+    text = f"labbench: interrupted; {finished} trial(s) of this run ended"
     text += f" ({parts})" if parts else ""
     if cancelled:
         text += (f" and {cancelled} were cancelled (stored as failed, 'cancelled by the user', "
@@ -268,29 +245,23 @@ def _shown_url(spec, storage: str | None) -> str:
         return "the storage"
 
 
-def _fmt(value) -> str:
-    from labbench.search.insight import fmt
-
-    return fmt(value)
-
-
 def winner_text(summary: dict, files: list[str] = ()) -> str:
     """The winner summary ``labbench run`` prints at the end."""
     s, metric = summary, summary["metric"]
     folds = s.get("fold_scores") or []
     lines = [f"winner: trial {s['trial_number']} of search '{s.get('study_name', '')}'",
-             f"  {metric}, cross-validated over {len(folds)} folds: {_fmt(s['cv_mean'])} "
-             f"± {_fmt(s['cv_std'])} (mean ± standard deviation across folds)",
-             "  per fold: " + "  ".join(_fmt(v) for v in folds)]
+             f"  {metric}, cross-validated over {len(folds)} folds: {number(s['cv_mean'])} "
+             f"± {number(s['cv_std'])} (mean ± standard deviation across folds)",
+             "  per fold: " + "  ".join(number(v) for v in folds)]
     comparison = s.get("cv_vs_holdout") or {}
     lines.append(f"  hold-out ({s.get('holdout_rows', '?')} rows, scored once): "
-                 f"{_fmt(s.get('holdout_score'))}")
+                 f"{number(s.get('holdout_score'))}")
     if comparison.get("text"):
         lines.append(f"    {comparison['text']}")
     spread = s.get("seed_spread")
     if spread and spread.get("scores"):
-        lines.append(f"  seed spread ({len(spread['scores'])} seeds): {_fmt(spread['mean'])} "
-                     f"± {_fmt(spread['std'])}, from {_fmt(spread['min'])} to {_fmt(spread['max'])}")
+        lines.append(f"  seed spread ({len(spread['scores'])} seeds): {number(spread['mean'])} "
+                     f"± {number(spread['std'])}, from {number(spread['min'])} to {number(spread['max'])}")
     else:
         lines.append("  seed spread: not measured")
     warnings = list(s.get("warnings") or [])
@@ -298,15 +269,15 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
         lines.append(f"    {s['runner_up']['text']}")
     settings = s.get("settings") or {}
     if settings:
-        lines.append("  settings: " + ", ".join(f"{k} {_cell(v)}" for k, v in settings.items()))
+        lines.append("  settings: " + ", ".join(f"{k} {setting(v)}" for k, v in settings.items()))
     imp = s.get("importance") or {}
     if imp.get("values"):
         lines.append(f"  importance ({imp.get('method')}): " + ", ".join(
-            f"{k} {v:.2f}" for k, v in imp["values"].items()))
+            f"{k} {percent(v)}" for k, v in imp["values"].items()))
     if imp.get("message"):
         lines.append(f"    {imp['message']}")
     counts = s.get("trials") or {}
-    lines.append("  trials: " + ", ".join(f"{n} {k}" for k, n in counts.items() if n))
+    lines.append("  trials: " + states.counts_text(counts))
     for warning in warnings:
         lines.append(f"  warning: {warning}")
     if files:
@@ -365,16 +336,6 @@ def open_for_reading(source: str, study: str | None, storage: str | None):
     return optuna.load_study(study_name=name, storage=rdb), shown
 
 
-def _cell(value: Any) -> str:
-    from labbench.search.progress import number
-
-    if isinstance(value, bool):
-        return "on" if value else "off"
-    if isinstance(value, float):
-        return number(value) if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
-    return str(value)
-
-
 def param_label(name: str) -> str:
     """A searched parameter as the user knows it: the units of hidden layer i are stored as the
     parameter ``units_i`` and shown as ``layer_i_units``; ``l2_on`` is the l2 penalty's switch."""
@@ -385,8 +346,7 @@ def param_label(name: str) -> str:
 
 def trials_table(study) -> str:
     """The text ``labbench show`` prints for a study (also handy in tests)."""
-    from labbench.search.progress import duration, number
-    from labbench.search.runner import STATE_NAMES
+    from labbench.search.ranking import best_trial
 
     trials = study.get_trials(deepcopy=False)
     attrs = study.user_attrs
@@ -397,34 +357,33 @@ def trials_table(study) -> str:
     rows = []
     for t in trials:
         ua = t.user_attrs
-        done = t.state.name == "COMPLETE" and t.value is not None   # (Optuna gives a pruned
-        rows.append([str(t.number), STATE_NAMES.get(t.state.name, t.state.name.lower()),  # trial
-                     number(t.value) if done else "",          # its last step's value: not a score)
+        key = states.trial_key(t)
+        done = key == "complete" and t.value is not None   # (Optuna gives a pruned trial its
+        rows.append([str(t.number), states.WORDS[key],      # last step's value: not a score)
+                     number(t.value) if done else "",
                      number(ua["cv_std"]) if done and ua.get("cv_std") is not None else "",
                      str(ua.get("epochs_run", "")),
                      duration(ua["duration_s"]) if "duration_s" in ua else "",
-                     *[_cell(t.params[p]) if p in t.params else "" for p in params]])
+                     *[setting(t.params[p]) if p in t.params else "" for p in params]])
     widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
               for i, h in enumerate(header)]
     lines = [f"search '{study.study_name}': {direction} {metric}, {len(trials)} trials"]
     lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip())
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows]
     lines.append("(± = standard deviation across folds, ran = epochs trained)")
-    done = [t for t in trials if t.value is not None and t.state.name == "COMPLETE"]
-    if done:
-        pick = max if direction == "maximize" else min
-        best = pick(done, key=lambda t: t.value)
+    best = best_trial(trials, direction)
+    if best is not None:
         folds = best.user_attrs.get("fold_scores") or []
         std = best.user_attrs.get("cv_std")
         spread = f" ± {number(std)}" if std is not None else ""
         lines.append(f"best: trial {best.number}, {metric} {number(best.value)}{spread} over "
-                     f"{len(folds)} folds; " + ", ".join(f"{param_label(k)}={_cell(v)}" for k, v in
+                     f"{len(folds)} folds; " + ", ".join(f"{param_label(k)}={setting(v)}" for k, v in
                                                       best.params.items()))
     else:
-        lines.append("best: none yet (no complete trial)")
-    ended = [t for t in trials if t.state.name in ("FAIL",) and t.user_attrs.get("end_reason")]
+        lines.append(f"best: none yet (no {states.WORDS['complete']} trial with a score)")
+    ended = [t for t in trials if states.trial_key(t) == "failed" and t.user_attrs.get("end_reason")]
     for t in ended[-5:]:
-        lines.append(f"trial {t.number} failed: {t.user_attrs['end_reason']}")
+        lines.append(f"trial {t.number} {states.WORDS['failed']}: {t.user_attrs['end_reason']}")
     return "\n".join(lines)
 
 

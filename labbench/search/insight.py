@@ -1,7 +1,7 @@
 """Small pure functions that read a search and say what it means (the window and the report share them).
 
 * ``best_so_far`` — the running best value over trial numbers;
-* ``counts_by_state`` — trials per state in plain words;
+* ``counts_by_state`` — trials per state key (``labbench.search.states``);
 * ``param_importance`` — Optuna's parameter importance, or an honest message when there is too
   little to go on;
 * ``spread_stats`` / ``lead_inside_spread`` — how much a score moves with the training seed, and
@@ -15,12 +15,13 @@ import logging
 import math
 from typing import Any, Iterable, Mapping, Sequence
 
+from labbench.numbers import number as fmt
+from labbench.search import states
+
 log = logging.getLogger("labbench.search.insight")
 
 MIN_TRIALS_FOR_IMPORTANCE = 10
 IMPORTANCE_METHODS = ("ped_anova", "fanova")
-STATE_NAMES = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
-               "RUNNING": "running", "WAITING": "waiting"}
 
 
 def best_so_far(points: Iterable[tuple[int, float | None]], direction: str) -> list[tuple[int, float]]:
@@ -35,12 +36,8 @@ def best_so_far(points: Iterable[tuple[int, float | None]], direction: str) -> l
 
 
 def counts_by_state(trials: Iterable[Any]) -> dict[str, int]:
-    """Trials per state ("complete", "pruned", "failed", "running", "waiting"), all keys present."""
-    counts = dict.fromkeys(STATE_NAMES.values(), 0)
-    for t in trials:
-        name = STATE_NAMES.get(getattr(t.state, "name", str(t.state)), "failed")
-        counts[name] += 1
-    return counts
+    """Trials per state key (complete, pruned, failed, cancelled, running, waiting), all present."""
+    return states.count(trials)
 
 
 def _finite(x: Any) -> bool:
@@ -53,10 +50,6 @@ def _sample_std(values: Sequence[float]) -> float:
         return 0.0
     mean = math.fsum(values) / n
     return math.sqrt(math.fsum((v - mean) ** 2 for v in values) / (n - 1))
-
-
-def fmt(value: float | None, digits: int = 4) -> str:
-    return "n/a" if value is None or not math.isfinite(value) else f"{value:.{digits}g}"
 
 
 # --------------------------------------------------------------------------------------------

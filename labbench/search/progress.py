@@ -11,25 +11,9 @@ import sys
 import time
 from typing import TextIO
 
+from labbench.numbers import duration, number
 from labbench.search import events as ev
-
-
-def duration(seconds: float | None) -> str:
-    """Seconds as a short human text: 45s, 3m05s, 2h10m."""
-    if seconds is None:
-        return "?"
-    s = int(round(max(0.0, seconds)))
-    if s < 60:
-        return f"{s}s"
-    if s < 3600:
-        return f"{s // 60}m{s % 60:02d}s"
-    return f"{s // 3600}h{(s % 3600) // 60:02d}m"
-
-
-def number(value: float | None) -> str:
-    if value is None:
-        return "-"
-    return f"{value:.4g}" if abs(value) >= 1e4 or abs(value) < 1e-3 and value != 0 else f"{value:.4f}"
+from labbench.search import states
 
 
 class ProgressLine:
@@ -131,7 +115,7 @@ class ProgressLine:
             if not self.tty:
                 value = f" {self.metric} {number(event.value)}" if event.value is not None else ""
                 why = f" ({event.reason})" if event.reason and event.state != "complete" else ""
-                self._write_line(f"trial {event.number} {event.state}{value} in "
+                self._write_line(f"trial {event.number} {states.word(event.state)}{value} in "
                                  f"{duration(event.duration_s)}, {event.epochs_run} epochs{why}"
                                  f" [{self.done}/{self.budget or '-'}]")
             self._draw(force=True)
@@ -152,8 +136,7 @@ class ProgressLine:
             self._draw(force=True)
             self.close()
             self._write_line(f"search ended ({event.reason}): "
-                             + (", ".join(f"{n} {k}" for k, n in event.counts.items() if n)
-                                or "no trials")
+                             + (states.counts_text(event.counts) or "no trials")
                              + (f"; {event.message}" if event.message else ""))
         elif isinstance(event, ev.FinalStage):
             self.close()

@@ -40,6 +40,7 @@ from labbench.errors import LabbenchError, SpecError
 from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
                                          best_of, count_states, eta, positive, study_attrs)
+from labbench.search.states import key_of
 from labbench.search.objective import curve_attr, cv_summary, one_line
 from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
@@ -453,7 +454,7 @@ class SearchRunner:
         self.finished += 1
         if flight.training:
             self.durations.append(duration)
-        shown = "cancelled" if reason == CANCELLED else STATE_NAMES[state]
+        shown = key_of(state, reason)          # the one state table (labbench.search.states)
         self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
                                 reason, dict(trial.params), int(runs)))
         if state == "COMPLETE" and self._better(value):

@@ -25,18 +25,16 @@ from typing import Any, Mapping
 
 import tomli_w
 
+from labbench.data import KINDS, MISSING_POLICIES, SCALINGS, TARGET_SCALINGS   # the data's own lists
 from labbench.errors import SpecError
 from labbench.families import DEFAULT as DEFAULT_FAMILY
 from labbench.families import get_family
-from labbench.nets.losses import TASKS
+from labbench.nets.losses import TASKS         # the one list of tasks
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
                                     MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
 
-KINDS = ("numeric", "categorical")
-MISSING = ("impute", "drop")
-SCALING = ("standard", "minmax")
-TARGET_SCALING = ("standard", "log", "none")    # labbench.data.TARGET_SCALINGS
+MISSING, SCALING, TARGET_SCALING = MISSING_POLICIES, SCALINGS, TARGET_SCALINGS   # labbench.data's
 THOUSANDS = (",", ".", " ", "'", "_")     # as labbench.data.reading.THOUSANDS
 DECIMALS = (".", ",")
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")

@@ -2,7 +2,8 @@
 
 ``finalize(spec, study)`` does, in order (one ``FinalStage`` event per step):
 
-1. the winner = the best COMPLETE trial by its CV value (the study's metric direction);
+1. the winner = the best trial by ``labbench.search.ranking`` (finished, finite CV value, the
+   study's metric direction, ties to the earlier trial);
 2. refit its settings on ALL training rows (a fresh preprocessor fitted on those rows) for the
    trial's shared best epoch (``best_epoch``), no early stopping;
 3. score that model ONCE on the locked hold-out rows, beside the CV estimate;
@@ -27,9 +28,10 @@ from typing import Any, Mapping
 import numpy as np
 
 from labbench.errors import DivergenceError, LabbenchError
-from labbench.search import events
-from labbench.search.insight import (compare_cv_holdout, counts_by_state, fmt,
-                                     lead_inside_spread, param_importance, spread_stats)
+from labbench.numbers import number as fmt
+from labbench.search import events, ranking
+from labbench.search.insight import (compare_cv_holdout, counts_by_state, lead_inside_spread,
+                                     param_importance, spread_stats)
 from labbench.search.prepare import Prepared, prepare
 from labbench.search.spec import Spec, without_password
 
@@ -54,33 +56,16 @@ def _member_seeds(seed: int, n_members: int) -> list[int]:
 
 
 def pick_winner(trials: list[Any], direction: str) -> tuple[Any, Any | None]:
-    """(best complete trial, best complete trial whose settings differ) — ties go to the earlier."""
-    done = [t for t in trials if t.value is not None and math.isfinite(t.value)]
-    if not done:
-        return None, None
-    sign = -1.0 if direction == "maximize" else 1.0
-    ranked = sorted(done, key=lambda t: (sign * t.value, t.number))
-    best = ranked[0]
-    key = _settings_key(best)
-    runner_up = next((t for t in ranked[1:] if _settings_key(t) != key), None)
-    return best, runner_up
+    """(best trial, best trial whose settings differ) by ``labbench.search.ranking``."""
+    return ranking.best_and_runner_up(trials, direction)
 
 
 MAX_REFITS = 3       # trials tried for the refit before giving up (the best, then two fallbacks)
 
 
 def ranked_candidates(trials: list[Any], direction: str) -> list[Any]:
-    """Complete trials best first (ties to the earlier), one per distinct settings."""
-    done = [t for t in trials if t.value is not None and math.isfinite(t.value)]
-    sign = -1.0 if direction == "maximize" else 1.0
-    seen: set[str] = set()
-    ranked = []
-    for t in sorted(done, key=lambda t: (sign * t.value, t.number)):
-        key = _settings_key(t)
-        if key not in seen:
-            seen.add(key)
-            ranked.append(t)
-    return ranked
+    """Scored trials best first (ties to the earlier), one per distinct settings (ranking)."""
+    return ranking.distinct(trials, direction)
 
 
 def fallback_text(failed: Any, nxt: Any, reason: str, metric: str) -> str:
@@ -98,11 +83,6 @@ def refit_error(diverged: list[tuple[Any, str]], n_candidates: int) -> Divergenc
         f"the refit on all training rows diverged for trial(s) {numbers}{more}, so there is no "
         f"winner model (last: {last}); lower the learning_rate range in [space] (and check that "
         f"the inputs are scaled, [data] scaling), then run the search again")
-
-
-def _settings_key(trial: Any) -> str:
-    settings = trial.user_attrs.get("settings")
-    return json.dumps(settings if settings is not None else trial.params, sort_keys=True)
 
 
 def _versions() -> dict[str, str]:
@@ -197,17 +177,14 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     ``seed_spread``: number of seeds (default ``spec.evaluation.seed_spread``; 0 or 1 skips it).
     ``out_dir``: where winner.json / winner.toml go (default: the spec's folder).
     """
-    from optuna.trial import TrialState
-
     from labbench.model import TrainedModel
 
     n_seeds = spec.evaluation.seed_spread if seed_spread is None else int(seed_spread)
     prepared = prepared or prepare(spec)
     direction, metric, seed = prepared.direction, prepared.metric, spec.evaluation.seed
     trials = study.get_trials(deepcopy=False)
-    complete = [t for t in trials if t.state == TrialState.COMPLETE]
-    candidates = ranked_candidates(complete, direction)
-    best, runner_up = pick_winner(complete, direction)
+    candidates = ranked_candidates(trials, direction)
+    best, runner_up = pick_winner(trials, direction)
     if best is None:
         raise LabbenchError(f"study {study.study_name}: no complete trial yet, so there is no "
                             "winner; run more trials (or widen the search if every trial failed)")

@@ -68,7 +68,7 @@ def test_search_path_with_a_single_row_level_markers_and_an_id_column(tmp_path):
                           text=True, timeout=300, cwd=tmp_path)
     out = done.stdout + done.stderr
     assert done.returncode == 0, out
-    assert "2 complete" in out and "failed" not in out, out
+    assert "2 finished" in out and "failed" not in out, out
     # the row counter is left out, and the command line says so
     assert "'row' looks like a row id" in out and "keep = [...]" in out, out
 

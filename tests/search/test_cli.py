@@ -37,7 +37,7 @@ def test_run_on_the_orchard_demo_writes_the_winner_and_show_lists_the_trials(orc
     out, err = capsys.readouterr()
     assert "winner: trial" in out and "hold-out" in out and "seed spread (2 seeds)" in out
     assert "estimate" in out                      # the caution that CV is an estimate
-    assert "trial 0 complete" in err or "trial 0 " in err    # one line per trial off a terminal
+    assert "trial 0 finished" in err or "trial 0 " in err    # one line per trial off a terminal
     folder = orchard.parent / "orchard_out"
     summary = json.loads((folder / "winner.json").read_text())
     assert WINNER_KEYS <= set(summary)
@@ -48,7 +48,7 @@ def test_run_on_the_orchard_demo_writes_the_winner_and_show_lists_the_trials(orc
     assert main(["show", str(orchard)]) == 0
     table = capsys.readouterr().out
     rows = [line for line in table.splitlines() if line.split()[:1] in (["0"], ["1"], ["2"])]
-    assert len(rows) == 3 and all("complete" in r for r in rows)
+    assert len(rows) == 3 and all("finished" in r for r in rows)   # labbench.search.states
     assert f"best: trial {summary['trial_number']}" in table
 
     url = f"sqlite:///{orchard.parent / 'orchard.db'}"
@@ -135,8 +135,8 @@ def test_progress_line_redraws_on_a_terminal_and_writes_lines_elsewhere():
     _feed(ProgressLine(pipe, tty=False))
     lines = pipe.getvalue().splitlines()
     assert "\r" not in pipe.getvalue()
-    assert any(line.startswith("trial 0 complete rmse 0.8000 in 2s, 3 epochs") for line in lines)
-    assert lines[-1].startswith("search ended (budget): 1 complete")
+    assert any(line.startswith("trial 0 finished rmse 0.8000 in 2s, 3 epochs") for line in lines)
+    assert lines[-1].startswith("search ended (budget): 1 finished")
 
 
 def test_a_search_where_every_trial_fails_exits_1_without_a_winner(tmp_path, capsys):
@@ -195,7 +195,7 @@ def test_ctrl_c_right_after_the_last_trial_exits_130_and_refits_nothing(tmp_path
     assert main(["run", str(spec), "--out", str(out), "--quiet"]) == 130
     assert sent
     err = capsys.readouterr().err
-    assert "interrupted; 2 trial(s) of this run finished (2 complete)" in err
+    assert "interrupted; 2 trial(s) of this run ended (2 finished)" in err
     assert "cancelled" not in err and "--trials 0" in err
     assert not out.exists() or not any(out.iterdir())           # nothing refit, nothing written
     monkeypatch.undo()
@@ -228,7 +228,7 @@ def test_the_interrupt_message_counts_cancelled_trials_apart(tmp_path, capsys, m
     cancelled = [t for t in trials if t.user_attrs.get("end_reason") == "cancelled by the user"]
     finished = [t for t in trials if t not in cancelled]
     assert cancelled, "two workers: at least the other trial in flight is cancelled"
-    assert f"interrupted; {len(finished)} trial(s) of this run finished" in err
+    assert f"interrupted; {len(finished)} trial(s) of this run ended" in err
     assert f"and {len(cancelled)} were cancelled" in err
     assert not (tmp_path / "o" / "winner.json").exists()
 

@@ -69,9 +69,12 @@ def test_counts_by_state_from_a_real_study():
                          (None, optuna.trial.TrialState.FAIL), (2.0, None)]:
         t = study.ask()
         study.tell(t, value, state=state)
+    t = study.ask()                                   # cancelled: stored as FAIL with its reason
+    t.set_user_attr("end_reason", "cancelled by the user")
+    study.tell(t, None, state=optuna.trial.TrialState.FAIL)
     study.ask()                                       # left running
     assert counts_by_state(study.get_trials(deepcopy=False)) == {
-        "complete": 2, "pruned": 1, "failed": 1, "running": 1, "waiting": 0}
+        "complete": 2, "pruned": 1, "failed": 1, "cancelled": 1, "running": 1, "waiting": 0}
 
 
 def test_spread_stats_match_the_statistics_module():
