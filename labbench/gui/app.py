@@ -32,9 +32,10 @@ def make_app(argv: list[str] | None = None) -> QApplication:
     app.setProperty("labbench_styled", True)
     import pyqtgraph as pg
 
-    from labbench.gui.theme import Theme, stylesheet
+    from labbench.gui.theme import Theme, is_dark, own_palette, stylesheet
 
     app.setStyle("Fusion")
+    app.setPalette(own_palette(is_dark(app.palette())))
     app.setStyleSheet(stylesheet())
     t = Theme.current()
     pg.setConfigOptions(antialias=True, background=t.background, foreground=t.foreground)
