@@ -3,7 +3,8 @@
 Left: the cross-validated score with its spread over the folds, the hold-out score and the spread
 across seeds once the winner check has run. Middle: the settings in words and what the winner
 check said (the comparison with the hold-out, the runner-up, warnings, the caution). Right: the
-winner's score in each fold, as bars that start at zero.
+winner's score in each fold, as bars that start at zero, and how far the best has climbed over
+the trials (``ClimbStrip``).
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from PySide6.QtWidgets import QHBoxLayout, QLabel, QSizePolicy, QTextBrowser, QV
 
 from labbench.gui import core, theme
 from labbench.gui.panel import Panel
+from labbench.gui.plots_settings import ClimbStrip
 from labbench.gui.trialbook import TrialBook
 from labbench.gui.words import num, settings_words
 from labbench.palette import colours
@@ -51,13 +53,25 @@ def sureness_lines(best, summary: Mapping[str, Any] | None, metric: str) -> list
     return lines
 
 
+def _captioned(text: str, widget: QWidget) -> QWidget:
+    box = QWidget()
+    lay = QVBoxLayout(box)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.setSpacing(0)
+    caption = QLabel(text)
+    caption.setObjectName("panelHint")
+    lay.addWidget(caption)
+    lay.addWidget(widget, 1)
+    return box
+
+
 class BenchSheet(Panel):
     """The winner strip at the top of the run page."""
 
     def __init__(self, parent=None):
         super().__init__("The winner so far", "The finished trial with the best cross-validated score, how sure "
                          "we are of it (spread over the folds; after the search, the hold-out rows and the spread "
-                         "across seeds), its settings in words and its score in each fold.", parent, short=" ")
+                         "across seeds), its settings in words, its score in each fold and how the best climbed trial by trial.", parent, short=" ")
         row = QHBoxLayout()
         row.setContentsMargins(0, 0, 0, 0)
         row.setSpacing(14)
@@ -81,18 +95,24 @@ class BenchSheet(Panel):
         self.text.viewport().setAutoFillBackground(False)
         row.addWidget(self.text, 1)
         self.folds = pg.PlotWidget()
-        self.folds.setFixedWidth(210)
+        self.folds.setFixedWidth(170)
         self.fold_plot = self.folds.getPlotItem()
         self.fold_plot.setMenuEnabled(False)
         self.fold_plot.setMouseEnabled(x=False, y=False)
         self.fold_plot.hideButtons()
-        self.fold_plot.setLabel("bottom", "fold")
         self.fold_bars = pg.BarGraphItem(x=[], height=[], width=0.6)
         self.fold_plot.addItem(self.fold_bars)
         self.fold_mean = pg.InfiniteLine(angle=0, movable=False)
         self.fold_plot.addItem(self.fold_mean)
         self.folds.setVisible(False)
-        row.addWidget(self.folds, 0)
+        self.fold_box = _captioned("each fold (bars from zero)", self.folds)
+        self.fold_box.setVisible(False)
+        row.addWidget(self.fold_box, 0)
+        self.climb = ClimbStrip()
+        self.climb.setFixedWidth(330)
+        self.climb.plot.setLabel("bottom", None)
+        self.climb.plot.showLabel("bottom", False)
+        row.addWidget(_captioned("the best so far, trial by trial", self.climb), 0)
         self.strip = QWidget()
         self.strip.setLayout(row)
         self.body.addWidget(self.strip)
@@ -110,10 +130,12 @@ class BenchSheet(Panel):
         return self.fold_plot
 
     def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
-        key = (book.best_number, book.finished_version, id(book.winner), book.stage, t.background.name())
+        key = (book.best_number, book.finished_version, id(book.winner), book.stage, selected,
+               max(book.records, default=-1), t.background.name())
         if key == self._drawn:
             return False
         self._drawn = key
+        self.climb.draw(book, selected, t)
         best = book.best()
         metric = core.metric_label(book.metric) if book.metric else "score"
         pal = colours(t.dark)
@@ -125,6 +147,7 @@ class BenchSheet(Panel):
                                   else "Waiting for the first trial to finish…")
             self.details_html = ""
             self.folds.setVisible(False)
+            self.fold_box.setVisible(False)
             self.shown_number = self.shown_value = None
         else:
             self.shown_number, self.shown_value = best.number, best.value
@@ -149,6 +172,7 @@ class BenchSheet(Panel):
             self.folds.setVisible(False)
             return
         self.folds.setVisible(True)
+        self.fold_box.setVisible(True)
         self.folds.setBackground(t.background)
         self.style_plot(self.fold_plot, t)
         self.fold_plot.showGrid(x=False, y=True, alpha=t.grid_alpha)
@@ -160,9 +184,12 @@ class BenchSheet(Panel):
         # bars start at zero: their lengths compare the folds honestly
         low = min(0.0, min(scores), mean)
         high = max(0.0, max(scores), mean)
-        pad = (high - low) * 0.08 or 0.05
-        self.fold_range = (low - (pad if low < 0 else 0.0), high + (pad if high > 0 else 0.0))
+        pad = (high - low) * 0.1 or 0.05
+        self.fold_range = (low - pad if low < 0 else -0.04 * (high - low), high + pad if high > 0 else 0.0)
         self.fold_plot.setYRange(*self.fold_range, padding=0)
+        top = max(abs(v) for v in self.fold_range)
+        marks = sorted({0.0, float(f"{max(scores, key=abs):.2g}")} if top else {0.0})
+        self.fold_plot.getAxis("left").setTicks([[(v, f"{v:g}") for v in marks], []])
         self.fold_plot.setXRange(0.4, len(scores) + 0.6, padding=0)
         self.fold_plot.getAxis("bottom").setTicks([[(x, str(x)) for x in xs]])
 

@@ -160,8 +160,7 @@ class GoodRanges(QWidget):
         p.setPen(muted)
         p.setFont(small)
         p.drawText(QRectF(4, 2, LABEL_W, 18), Qt.AlignmentFlag.AlignLeft, "setting")
-        p.drawText(QRectF(x0, 2, track_w, 18), Qt.AlignmentFlag.AlignLeft,
-                   "range tried · ticks: finished trials · bar: the best quarter")
+        p.drawText(QRectF(x0, 2, track_w, 18), Qt.AlignmentFlag.AlignLeft, "the range tried")
         p.drawText(QRectF(x1 + 8, 2, SHARE_W, 18), Qt.AlignmentFlag.AlignLeft, "moved the score")
         for i, row in enumerate(self.rows):
             y = 24 + i * ROW_H
@@ -220,32 +219,24 @@ class GoodRanges(QWidget):
         p.end()
 
 
-class StoryPanel(Panel):
-    """How the best climbed, and where the good scores live in every searched setting."""
+class ClimbStrip(QWidget):
+    """How far the best has climbed: the best score so far after each trial as a staircase, a dot
+    where a trial beat the one before it (the latest few carry their number), the picked trial
+    as a dashed line. Sits in the bench sheet beside the winner."""
 
     clicked = Signal(int)
 
     def __init__(self, parent=None):
-        super().__init__("How the search went", "Top: the best cross-validated score so far after each trial; a "
-                         "dot marks every trial that beat the one before it. Below: for each searched setting, "
-                         "the range the search tried, a tick per finished trial and a bar over the values of the "
-                         "best quarter of the trials; the diamond is the winner, the ring the trial you picked. "
-                         "At the right: the share of the score's variation each setting explains (parameter "
-                         "importance), once enough trials have finished.", parent, short=" ")
-        self.hint.setTextFormat(Qt.TextFormat.RichText)
-        box = QWidget()
-        lay = QVBoxLayout(box)
+        super().__init__(parent)
+        lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
-        lay.setSpacing(2)
         self.widget = pg.PlotWidget()
-        self.widget.setMinimumHeight(110)
-        self.widget.setMaximumHeight(170)
+        lay.addWidget(self.widget)
         self.plot: pg.PlotItem = self.widget.getPlotItem()
         self.plot.setMenuEnabled(False)
         self.plot.setMouseEnabled(x=False, y=False)
         self.plot.hideButtons()
         self.plot.setLabel("bottom", "trial")
-        self.plot.setLabel("left", "best so far")
         self.climb = pg.PlotDataItem()
         self.milestones = pg.ScatterPlotItem(size=9, pxMode=True, hoverable=True, tip=self._tip)
         self.milestones.sigClicked.connect(lambda _i, pts, *_a: len(pts) and self.clicked.emit(int(pts[0].data())))
@@ -258,32 +249,91 @@ class StoryPanel(Panel):
         self.plot.addItem(self.message, ignoreBounds=True)
         self.clip_note = pg.TextItem("", anchor=(1, 1))
         self.plot.addItem(self.clip_note, ignoreBounds=True)
-        lay.addWidget(self.widget)
+        self._tips: dict[int, str] = {}
+        self.outside = 0
+
+    def _tip(self, x, y, data):
+        return self._tips.get(int(data), f"trial {int(x)}: {y:.4g}")
+
+    def draw(self, book: TrialBook, selected: int | None, t: theme.Theme) -> None:
+        pal = colours(t.dark)
+        self.widget.setBackground(t.background)
+        Panel.style_plot(self.plot, t)
+        done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
+        xs, ys = core.best_so_far(done, book.direction)
+        last = max((r.number for r in book.records.values()), default=0)
+        if xs:
+            # a staircase to the latest trial: the best holds until a trial beats it
+            self.climb.setData(*_steps(list(xs) + [float(max(last, xs[-1]))], list(ys) + [ys[-1]]))
+        else:
+            self.climb.setData([], [])
+        self.climb.setPen(pg.mkPen(pal["climb"], width=2.2))
+        miles = _milestones(xs, ys)
+        self._tips = {int(n): f"trial {int(n)} became the best: {v:.4g}" for n, v in miles}
+        self.milestones.setData([{"pos": (n, v), "data": int(n), "brush": pg.mkBrush(pal["milestone"]),
+                                  "pen": pg.mkPen(t.background, width=1), "size": 8} for n, v in miles])
+        for label in self.labels:
+            self.plot.removeItem(label)
+        self.labels = []
+        for n, v in miles[-3:]:       # the latest few milestones carry their trial number
+            label = pg.TextItem(f"#{int(n)}", anchor=(-0.1, -0.05), color=pal["milestone"])
+            label.setPos(n, v)
+            self.plot.addItem(label, ignoreBounds=True)
+            self.labels.append(label)
+        self.outside = 0
+        if xs:
+            # the view follows the middle of the scores, so one disastrous early trial does not
+            # flatten the climb; a note counts the early bests left below it
+            low, high, _ = robust_range([r.value for r in done], 5, 95, pad=0.1)
+            top, bottom = max(ys), min(ys)
+            high = max(high, top + 0.12 * ((top - low) or abs(top) * 0.05 or 0.05))
+            low = min(low, ys[-1])
+            self.outside = sum(1 for y in ys if y < low or y > high)
+            if bottom >= low:
+                low = min(low, bottom)
+            self.plot.setYRange(low, high, padding=0)
+            self.plot.setXRange(-0.5, max(1, last) + 0.5, padding=0)
+            integer_axis(self.plot.getAxis("bottom"), 0, max(1, last))
+            self.clip_note.setText(f"{self.outside} early best{'s' if self.outside != 1 else ''} below"
+                                   if self.outside else "")
+            self.clip_note.setColor(t.foreground)
+            self.clip_note.setPos(max(1, last) + 0.5, high)
+        sel = book.records.get(selected) if selected is not None else None
+        self.picked_line.setVisible(sel is not None)
+        if sel is not None:
+            self.picked_line.setPen(pg.mkPen(pal["selected"], width=1.5, style=Qt.PenStyle.DashLine))
+            self.picked_line.setValue(sel.number)
+        centre_message(self.plot, self.message, None if done else "The best score climbs here as trials finish.")
+
+
+class StoryPanel(Panel):
+    """Where the good scores live in every searched setting, and what moved the score."""
+
+    clicked = Signal(int)
+
+    def __init__(self, parent=None):
+        super().__init__("Where the good scores live", "For each searched setting: the range the search tried, a "
+                         "tick per finished trial and a bar over the values of the best quarter of the trials; "
+                         "the diamond is the winner, the ring the trial you picked. At the right: the share of "
+                         "the score's variation each setting explains (parameter importance), once enough "
+                         "trials have finished.", parent, short=" ")
+        self.hint.setTextFormat(Qt.TextFormat.RichText)
         self.ranges = GoodRanges()
         self.scroll = QScrollArea()
         self.scroll.setWidgetResizable(True)
         self.scroll.setFrameShape(QScrollArea.Shape.NoFrame)
         self.scroll.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.scroll.setWidget(self.ranges)
-        lay.addWidget(self.scroll, 1)
-        self.body.addWidget(box)
-        self.box = box
+        self.body.addWidget(self.scroll)
         self.values: dict[str, float] = {}
         self.text = ""
-        self._tips: dict[int, str] = {}
         self._drawn = None
 
     def picture_widget(self) -> QWidget:
-        return self.box
-
-    def export_item(self):
-        return self.plot
+        return self.ranges
 
     def ensure(self, n: int) -> None:
         """Nothing to make in advance (kept for the window, which calls it while the user edits)."""
-
-    def _tip(self, x, y, data):
-        return self._tips.get(int(data), f"trial {int(x)}: {y:.4g}")
 
     def show_result(self, values: Mapping[str, float] | None, message: str | None) -> None:
         """Set from the importance job: shares (name -> share) or the core's message."""
@@ -299,7 +349,7 @@ class StoryPanel(Panel):
             return (f"Too early to say which settings moved the score: {done} finished trial"
                     f"{'s' if done != 1 else ''}, at least {MIN_TRIALS_FOR_IMPORTANCE} are needed.")
         if self.values:
-            return (f"“Moved the score”: the share of the score's variation each setting explains, "
+            return (f"Moved the score: the share of the score's variation each setting explains, "
                     f"from {done} finished trials.")
         if self.text.startswith("Parameter importance could not be computed"):
             return "Which settings moved the score could not be worked out from these trials."
@@ -312,57 +362,14 @@ class StoryPanel(Panel):
             return False
         self._drawn = key
         pal = colours(t.dark)
-        self.widget.setBackground(t.background)
-        self.style_plot(self.plot, t)
-        if book.metric:
-            self.plot.setLabel("left", "best so far")
-        done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
-        xs, ys = core.best_so_far(done, book.direction)
-        last = max((r.number for r in book.records.values()), default=0)
-        if xs:
-            # a step line to the latest trial: the best holds until a trial beats it
-            sx, sy = list(xs) + [float(max(last, xs[-1]))], list(ys) + [ys[-1]]
-            self.climb.setData(*_steps(sx, sy))
-        else:
-            self.climb.setData([], [])
-        self.climb.setPen(pg.mkPen(pal["climb"], width=2.2))
-        miles = _milestones(xs, ys)
-        self._tips = {int(n): f"trial {int(n)} became the best: {v:.4g}" for n, v in miles}
-        self.milestones.setData([{"pos": (n, v), "data": int(n), "brush": pg.mkBrush(pal["milestone"]),
-                                  "pen": pg.mkPen(t.background, width=1), "size": 9} for n, v in miles])
-        for label in self.labels:
-            self.plot.removeItem(label)
-        self.labels = []
-        for n, v in miles[-4:]:       # the latest few milestones carry their trial number
-            label = pg.TextItem(f"#{int(n)}", anchor=(-0.1, -0.05), color=pal["milestone"])
-            label.setPos(n, v)
-            self.plot.addItem(label, ignoreBounds=True)
-            self.labels.append(label)
-        if xs:
-            low, high, _ = robust_range([r.value for r in done], 5, 95, pad=0.1)
-            high = max(high, max(ys) + 0.1 * (max(ys) - low or 1))
-            low = min(low, ys[-1])
-            outside = sum(1 for y in ys if y < low or y > high)
-            self.plot.setYRange(low, high, padding=0)
-            self.plot.setXRange(-0.5, max(1, last) + 0.5, padding=0)
-            integer_axis(self.plot.getAxis("bottom"), 0, max(1, last))
-            self.clip_note.setText(f"{outside} early best{'s' if outside != 1 else ''} below this view"
-                                   if outside else "")
-            self.clip_note.setColor(t.foreground)
-            self.clip_note.setPos(max(1, last) + 0.5, high)
-        sel = book.records.get(selected) if selected is not None else None
-        self.picked_line.setVisible(sel is not None)
-        if sel is not None:
-            self.picked_line.setPen(pg.mkPen(pal["selected"], width=1.5, style=Qt.PenStyle.DashLine))
-            self.picked_line.setValue(sel.number)
-        centre_message(self.plot, self.message, None if done else "The best score so far climbs here as trials finish.")
-        shares = self.values if len(done) >= MIN_TRIALS_FOR_IMPORTANCE else {}
+        done = sum(1 for r in book.records.values() if r.state == "complete")
+        shares = self.values if done >= MIN_TRIALS_FOR_IMPORTANCE else {}
         self.ranges.set_rows(build_rows(book, selected, shares), self.importance_note(book))
         self.hint.setText(
-            f"<span style='color:{pal['climb']}'><b>━</b></span>&nbsp;best so far&nbsp; "
-            f"<span style='color:{pal['milestone']}'><b>●</b></span>&nbsp;a new best&nbsp; "
-            f"<span style='color:{pal['good_span']}'><b>▬</b></span>&nbsp;where the best quarter sits&nbsp; "
-            f"<span style='color:{pal['milestone']}'><b>◆</b></span>&nbsp;winner")
+            f"<span style='color:{pal['complete']}'><b>|</b></span>&nbsp;a finished trial&nbsp; "
+            f"<span style='color:{pal['good_span']}'><b>▬</b></span>&nbsp;the best quarter&nbsp; "
+            f"<span style='color:{pal['milestone']}'><b>◆</b></span>&nbsp;winner&nbsp; "
+            f"<span style='color:{pal['selected']}'><b>○</b></span>&nbsp;picked")
         return True
 
 

@@ -125,7 +125,7 @@ class WatchPage(QWidget):
         self.left.setObjectName("leftSplit")
         self.left.addWidget(self.curves)
         self.left.addWidget(self.story)
-        self.left.setSizes([260, 380])
+        self.left.setSizes([330, 310])
         self.left.setChildrenCollapsible(False)
         self.body = QSplitter(Qt.Orientation.Horizontal)
         self.body.setObjectName("bodySplit")
@@ -141,17 +141,17 @@ class WatchPage(QWidget):
         self.split.addWidget(self.body)
         self.split.setStretchFactor(0, 0)
         self.split.setStretchFactor(1, 1)
-        self.split.setSizes([122, 640])
+        self.split.setSizes([136, 640])
         self.split.setChildrenCollapsible(False)
-        self.sheet.setMinimumHeight(104)
+        self.sheet.setMinimumHeight(128)
         self.curves.setMinimumHeight(150)
-        self.story.setMinimumHeight(170)
+        self.story.setMinimumHeight(120)
         self.lower.setMinimumWidth(260)
         outer.addWidget(self.split, 1)
 
         self._turn = 0
         self._picking = False
-        for p in (self.curves, self.story):
+        for p in (self.curves, self.story, self.sheet.climb):
             p.clicked.connect(self.select)
         self.notebook.picked.connect(self._from_notebook)
         self.table.picked.connect(self._from_table)

@@ -76,10 +76,10 @@ def state_word(state: str) -> str:
 def why_stopped(state: str, reason: str, epochs_run: int, epochs_total: int) -> str:
     """Why a trial ended, in a few words."""
     if state == "complete":
-        return f"ran all {epochs_total or epochs_run} epochs" if (epochs_total or epochs_run) else ""
+        return f"all {epochs_total or epochs_run} epochs" if (epochs_total or epochs_run) else ""
     if state == "pruned":
-        return (f"stopped early at epoch {epochs_run} of {epochs_total}: its curve trailed the others"
-                if epochs_total else "stopped early: its curve trailed the others")
+        return (f"stopped at epoch {epochs_run} of {epochs_total}, its curve trailing the others"
+                if epochs_total else "stopped early, its curve trailing the others")
     if state == "cancelled":
         return "stopped by you" + (f" at epoch {epochs_run}" if epochs_run else "")
     if state == "failed":
