@@ -141,7 +141,9 @@ class BenchSheet(Panel):
         pal = colours(t.dark)
         done = book.ended is not None and book.running_number is None
         title = "The winner" if done and best is not None else "The winner so far"
-        self.findChild(QLabel, "panelTitle").setText(f"<b>{title}</b>")
+        if title != self.title:
+            self.title = title
+            self.findChild(QLabel, "panelTitle").setText(f"<b>{title}</b>")
         if best is None or best.value is None:
             self.headline.setText("No finished trial yet." if not book.records
                                   else "Waiting for the first trial to finish…")

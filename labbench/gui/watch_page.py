@@ -149,6 +149,14 @@ class WatchPage(QWidget):
         self.lower.setMinimumWidth(260)
         outer.addWidget(self.split, 1)
 
+        # the pictures answer the mouse; Tab walks the controls and skips them
+        import pyqtgraph as pg
+
+        for view in self.findChildren(pg.GraphicsView):
+            view.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+            view.viewport().setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.saved_sizes: dict[str, list[int]] = {}
+        self._sized = False
         self._turn = 0
         self._picking = False
         for p in (self.curves, self.story, self.sheet.climb):
@@ -159,6 +167,23 @@ class WatchPage(QWidget):
     def splitters(self) -> dict[str, QSplitter]:
         """The splitters whose sizes the window remembers."""
         return {"page": self.split, "body": self.body, "left": self.left}
+
+    def current_sizes(self) -> dict[str, list[int]]:
+        """Sizes to remember: the saved ones while the page has never been shown."""
+        if self.saved_sizes and not self._sized:
+            return dict(self.saved_sizes)
+        return {name: s.sizes() for name, s in self.splitters().items()}
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._sized:
+            # applied once the page has its real size: before that a splitter squeezes them into
+            # whatever width it has and the proportions are lost
+            self._sized = True
+            for name, splitter in self.splitters().items():
+                sizes = self.saved_sizes.get(name)
+                if sizes and len(sizes) == splitter.count():
+                    splitter.setSizes(sizes)
 
     def select(self, number: int | None) -> None:
         """Pick a trial (from a click in a picture): the notebook and the table follow."""

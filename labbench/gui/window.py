@@ -197,11 +197,11 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         state = self.settings.value("window_state")
         if state is not None:
             self.restoreState(state)
-        for name, splitter in self.watch.splitters().items():
+        for name in self.watch.splitters():
             sizes = self.settings.value(f"splitter/{name}")
-            if isinstance(sizes, (list, tuple)) and len(sizes) == splitter.count():
+            if isinstance(sizes, (list, tuple)):
                 try:
-                    splitter.setSizes([int(v) for v in sizes])
+                    self.watch.saved_sizes[name] = [int(v) for v in sizes]
                 except (TypeError, ValueError):
                     pass
         log_on = self.settings.value("curves/log_scale", False)
@@ -219,8 +219,8 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
     def remember_layout(self) -> None:
         self.settings.setValue("geometry", self.saveGeometry())
         self.settings.setValue("window_state", self.saveState())
-        for name, splitter in self.watch.splitters().items():
-            self.settings.setValue(f"splitter/{name}", splitter.sizes())
+        for name, sizes in self.watch.current_sizes().items():
+            self.settings.setValue(f"splitter/{name}", sizes)
         self.settings.setValue("curves/log_scale", self.watch.curves.log_box.isChecked())
         self.settings.sync()
 
