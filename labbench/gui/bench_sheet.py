@@ -29,7 +29,7 @@ def _fin(v: Any) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
 
 
-def sureness_lines(best, summary: Mapping[str, Any] | None, metric: str) -> list[str]:
+def sureness_lines(best, summary: Mapping[str, Any] | None, metric: str, running: bool = True) -> list[str]:
     """How sure we are, as short lines: folds, hold-out, seeds (what is known so far)."""
     lines = []
     folds = len(best.fold_scores)
@@ -48,8 +48,10 @@ def sureness_lines(best, summary: Mapping[str, Any] | None, metric: str) -> list
                          f"± {num(spread.get('std'))}")
         else:
             lines.append("seed spread not measured")
-    else:
+    elif running:
         lines.append("hold-out and seed check: when the search ends")
+    else:
+        lines.append("no hold-out or seed check known for this search")
     return lines
 
 
@@ -95,7 +97,7 @@ class BenchSheet(Panel):
         self.text.viewport().setAutoFillBackground(False)
         row.addWidget(self.text, 1)
         self.folds = pg.PlotWidget()
-        self.folds.setFixedWidth(170)
+        self.folds.setFixedWidth(150)
         self.fold_plot = self.folds.getPlotItem()
         self.fold_plot.setMenuEnabled(False)
         self.fold_plot.setMouseEnabled(x=False, y=False)
@@ -109,7 +111,7 @@ class BenchSheet(Panel):
         self.fold_box.setVisible(False)
         row.addWidget(self.fold_box, 0)
         self.climb = ClimbStrip()
-        self.climb.setFixedWidth(330)
+        self.climb.setFixedWidth(300)
         self.climb.plot.setLabel("bottom", None)
         self.climb.plot.showLabel("bottom", False)
         row.addWidget(_captioned("the best so far, trial by trial", self.climb), 0)
@@ -139,7 +141,8 @@ class BenchSheet(Panel):
         best = book.best()
         metric = core.metric_label(book.metric) if book.metric else "score"
         pal = colours(t.dark)
-        done = book.ended is not None and book.running_number is None
+        running = book.ended is None and book.progress is not None
+        done = not running and book.running_number is None
         title = "The winner" if done and best is not None else "The winner so far"
         if title != self.title:
             self.title = title
@@ -154,7 +157,7 @@ class BenchSheet(Panel):
         else:
             self.shown_number, self.shown_value = best.number, best.value
             std = f" <span style='font-size:12pt'>± {best.cv_std:.4g}</span>" if best.cv_std is not None else ""
-            lines = "<br>".join(html.escape(x) for x in sureness_lines(best, book.winner, metric))
+            lines = "<br>".join(html.escape(x) for x in sureness_lines(best, book.winner, metric, running))
             self.headline.setText(
                 f"<span style='font-size:18pt; font-weight:600; color:{pal['best']}'>{best.value:.4g}</span>{std}"
                 f"<br><b>{html.escape(metric)}</b>, trial {best.number}"

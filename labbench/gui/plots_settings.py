@@ -86,7 +86,7 @@ def build_rows(book: TrialBook, selected: int | None, shares: Mapping[str, float
 
                 def pos(v, a=a, b=b):
                     return 0.5 if b == a else (math.log10(float(v)) - a) / (b - a)
-                row.ticks = [(pos(v), num(v, 2)) for v in log_ticks(lo, hi, 5)]
+                row.ticks = [(pos(v), f"{v:g}") for v in log_ticks(lo, hi, 5)]
             else:
                 def pos(v, lo=lo, hi=hi):
                     return 0.5 if hi == lo else (float(v) - lo) / (hi - lo)
@@ -275,8 +275,11 @@ class ClimbStrip(QWidget):
         for label in self.labels:
             self.plot.removeItem(label)
         self.labels = []
+        span = max(1.0, float(last))
         for n, v in miles[-3:]:       # the latest few milestones carry their trial number
-            label = pg.TextItem(f"#{int(n)}", anchor=(-0.1, -0.05), color=pal["milestone"])
+            # to the right of the dot, or to its left near the right edge (never cut off)
+            anchor = (1.1, -0.05) if n > 0.8 * span else (-0.1, -0.05)
+            label = pg.TextItem(f"#{int(n)}", anchor=anchor, color=pal["milestone"])
             label.setPos(n, v)
             self.plot.addItem(label, ignoreBounds=True)
             self.labels.append(label)
