@@ -39,19 +39,30 @@ def loss_band(curves: Sequence[Sequence[float]], lo_q: float = 10.0,
     trials reached are left out (a band of one line says nothing).
     """
     longest = max((len(c) for c in curves), default=0)
-    epochs, low, mid, high = [], [], [], []
-    for i in range(longest):
-        at = np.asarray([c[i] for c in curves if len(c) > i and c[i] is not None and math.isfinite(c[i])],
-                        dtype=float)
-        if at.size < 2:
-            continue
-        a, b, c = np.percentile(at, [lo_q, 50.0, hi_q])
-        epochs.append(i + 1)
-        low.append(a)
-        mid.append(b)
-        high.append(c)
-    return (np.asarray(epochs, float), np.asarray(low, float), np.asarray(mid, float),
-            np.asarray(high, float))
+    if not longest:
+        empty = np.asarray([], float)
+        return empty, empty, empty, empty
+    grid = np.full((len(curves), longest), np.nan)
+    for i, c in enumerate(curves):
+        grid[i, :len(c)] = np.asarray([np.nan if v is None else v for v in c], dtype=float)
+    grid[~np.isfinite(grid)] = np.nan
+    enough = np.count_nonzero(~np.isnan(grid), axis=0) >= 2
+    if not enough.any():
+        empty = np.asarray([], float)
+        return empty, empty, empty, empty
+    # numpy's default (linear) quantile, column by column, without nanpercentile's per-column loop
+    cols = np.sort(grid[:, enough], axis=0)                 # NaN sort to the end
+    counts = np.count_nonzero(~np.isnan(cols), axis=0)
+    out = []
+    for q in (lo_q, 50.0, hi_q):
+        pos = q / 100.0 * (counts - 1)
+        below = np.floor(pos).astype(int)
+        above = np.minimum(below + 1, counts - 1)
+        a = np.take_along_axis(cols, below[None, :], axis=0)[0]
+        b = np.take_along_axis(cols, above[None, :], axis=0)[0]
+        out.append(a + (b - a) * (pos - below))
+    epochs = np.flatnonzero(enough).astype(float) + 1
+    return epochs, out[0], out[1], out[2]
 
 
 def good_span(xs: Sequence[float], scores: Sequence[float], direction: str,

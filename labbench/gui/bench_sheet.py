@@ -121,6 +121,8 @@ class BenchSheet(Panel):
         self.details_html = ""
         self.final_html = ""
         self.fold_range: tuple[float, float] | None = None
+        self._page = None
+        self._folds_drawn = None
         self._drawn = None
         self.shown_number: int | None = None
         self.shown_value: float | None = None
@@ -169,13 +171,19 @@ class BenchSheet(Panel):
                                     if folds else ""))
             self._draw_folds(best.fold_scores, best.value, t)
         self.final_html = self._final_text(book)
-        self.text.setHtml(self.details_html + self.final_html)
+        page = self.details_html + self.final_html
+        if page != self._page:          # laying out the document again is the slow part
+            self._page = page
+            self.text.setHtml(page)
         return True
 
     def _draw_folds(self, scores, mean: float, t: theme.Theme) -> None:
         if not scores:
             self.folds.setVisible(False)
             return
+        if self._folds_drawn == (tuple(scores), mean, t.background.name()):
+            return
+        self._folds_drawn = (tuple(scores), mean, t.background.name())
         self.folds.setVisible(True)
         self.fold_box.setVisible(True)
         self.folds.setBackground(t.background)

@@ -132,8 +132,9 @@ class Panel(QFrame):
         return 12 + QFontMetrics(font).height() + self._key_doc(width).size().height() + \
             self.picture_widget().height()
 
-    def picture_bytes(self, suffix: str) -> bytes:
-        """The picture encoded as PNG or SVG (drawn here, on the GUI thread)."""
+    def picture_bytes(self, suffix: str) -> bytes | QImage:
+        """The picture as SVG bytes, or for PNG as a QImage (drawn here, on the GUI thread;
+        the PNG encoding is left to whoever writes it, which may be a helper thread)."""
         widget = self.picture_widget()
         width, height = widget.width(), int(self._picture_height()) + 1
         data = QByteArray()
@@ -158,7 +159,8 @@ class Panel(QFrame):
             painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
             self._paint(painter, width)
             painter.end()
-            image.save(buf, "PNG")
+            buf.close()
+            return image
         buf.close()
         return bytes(data.data())
 
@@ -166,8 +168,7 @@ class Panel(QFrame):
         """Write the picture now; the suffix picks the format (.svg, anything else PNG)."""
         path = Path(path)
         path.parent.mkdir(parents=True, exist_ok=True)
-        data = self.picture_bytes(".svg" if path.suffix.lower() == ".svg" else ".png")
-        path.write_bytes(data)
+        _write(path, self.picture_bytes(".svg" if path.suffix.lower() == ".svg" else ".png"))
         return path
 
     def export_in_background(self, path: str | Path, done=None) -> threading.Thread:
@@ -179,7 +180,7 @@ class Panel(QFrame):
             error = None
             try:
                 path.parent.mkdir(parents=True, exist_ok=True)
-                path.write_bytes(data)
+                _write(path, data)
             except OSError as exc:
                 error = f"{path}: {exc.strerror or exc}"
             if done is not None:
@@ -207,6 +208,15 @@ class Panel(QFrame):
         self.export_in_background(path)
         if bar is not None:
             bar.showMessage(f"Picture saved to {path}", 6000)
+
+
+def _write(path: Path, data: bytes | QImage) -> None:
+    """Write SVG bytes, or encode and write a QImage as PNG (QImage.save only returns False)."""
+    if isinstance(data, QImage):
+        if not data.save(str(path), "PNG"):
+            raise OSError(0, "the picture could not be written", str(path))
+    else:
+        path.write_bytes(data)
 
 
 def message_item(text: str) -> pg.TextItem:

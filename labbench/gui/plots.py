@@ -77,6 +77,7 @@ class CurvesPanel(Panel):
         self.clip_note = pg.TextItem("", anchor=(1, 0))
         self.plot.addItem(self.clip_note, ignoreBounds=True)
         self.band_data: tuple = (np.array([]),) * 4
+        self._styled: dict[str, tuple] = {}
         self._theme_key = None
         self._band_key = None
         self._view = None
@@ -95,6 +96,7 @@ class CurvesPanel(Panel):
         for line in self.lines.values():
             line.setData([], [])
         self.shown = {r: None for r in ROLES}
+        self._styled = {}
 
     def refresh(self, book: TrialBook, changed: set[int], selected: int | None, t: theme.Theme) -> bool:
         key = (t.background.name(), t.foreground.name())
@@ -133,10 +135,13 @@ class CurvesPanel(Panel):
                     line.setData([], [])
                 self.shown[role] = None
                 continue
-            if self.shown[role] != number or number in changed or role == "running":
+            restyle = self.shown[role] != number or self._styled.get(role) != (rec.state, key)
+            if restyle:
                 width = 3.0 if role == "selected" else 2.4
                 style = theme.pen_style(rec.state) if role == "selected" else Qt.PenStyle.SolidLine
                 line.setPen(pg.mkPen(t.state(role), width=width, style=style))
+                self._styled[role] = (rec.state, key)
+            if restyle or number in changed:
                 line.setData(np.asarray(rec.epochs, float), np.asarray(rec.val_loss, float))
                 self.shown[role] = number
         self._set_view(book)

@@ -251,14 +251,58 @@ class ClimbStrip(QWidget):
         self.plot.addItem(self.clip_note, ignoreBounds=True)
         self._tips: dict[int, str] = {}
         self.outside = 0
+        self._theme = None
+        self._view = None
 
     def _tip(self, x, y, data):
         return self._tips.get(int(data), f"trial {int(x)}: {y:.4g}")
 
     def draw(self, book: TrialBook, selected: int | None, t: theme.Theme) -> None:
         pal = colours(t.dark)
-        self.widget.setBackground(t.background)
-        Panel.style_plot(self.plot, t)
+        if self._theme != t.background.name():
+            self._theme = t.background.name()
+            self.widget.setBackground(t.background)
+            Panel.style_plot(self.plot, t)
+        done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
+        xs, ys = core.best_so_far(done, book.direction)
+        last = max((r.number for r in book.records.values()), default=0)
+        if xs:
+            # a staircase to the latest trial: the best holds until a trial beats it
+            self.climb.setData(*_steps(list(xs) + [float(max(last, xs[-1]))], list(ys) + [ys[-1]]))
+        else:
+            self.climb.setData([], [])
+        self.climb.setPen(pg.mkPen(pal["climb"], width=2.2))
+        miles = _milestones(xs, ys)
+        self._tips = {int(n): f"trial {int(n)} became the best: {v:.4g}" for n, v in miles}
+        self.milestones.setData([{"pos": (n, v), "data": int(n), "brush": pg.mkBrush(pal["milestone"]),
+                                  "pen": pg.mkPen(t.background, width=1), "size": 8} for n, v in miles])
+        span = max(1.0, float(last))
+        shown = miles[-3:]            # the latest few milestones carry their trial number
+        while len(self.labels) < len(shown):
+            label = pg.TextItem("", color=pal["milestone"])
+            self.plot.addItem(label, ignoreBounds=True)
+            self.labels.append(label)
+        for i, label in enumerate(self.labels):
+            if i >= len(shown):
+                label.setVisible(False)
+                continue
+            n, v = shown[i]
+            # to the right of the dot, or to its left near the right edge (never cut off)
+            label.setAnchor((1.1, -0.05) if n > 0.8 * span else (-0.1, -0.05))
+            label.setText(f"#{int(n)}", color=pal["milestone"])
+            label.setPos(n, v)
+            label.setVisible(True)
+        self.outside = 0
+
+    def _tip(self, x, y, data):
+        return self._tips.get(int(data), f"trial {int(x)}: {y:.4g}")
+
+    def draw(self, book: TrialBook, selected: int | None, t: theme.Theme) -> None:
+        pal = colours(t.dark)
+        if self._theme != t.background.name():
+            self._theme = t.background.name()
+            self.widget.setBackground(t.background)
+            Panel.style_plot(self.plot, t)
         done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
         xs, ys = core.best_so_far(done, book.direction)
         last = max((r.number for r in book.records.values()), default=0)
@@ -294,9 +338,11 @@ class ClimbStrip(QWidget):
             self.outside = sum(1 for y in ys if y < low or y > high)
             if bottom >= low:
                 low = min(low, bottom)
-            self.plot.setYRange(low, high, padding=0)
-            self.plot.setXRange(-0.5, max(1, last) + 0.5, padding=0)
-            integer_axis(self.plot.getAxis("bottom"), 0, max(1, last))
+            if self._view != (low, high, last):     # a new range re-lays the axes: only when it moved
+                self._view = (low, high, last)
+                self.plot.setYRange(low, high, padding=0)
+                self.plot.setXRange(-0.5, max(1, last) + 0.5, padding=0)
+                integer_axis(self.plot.getAxis("bottom"), 0, max(1, last))
             self.clip_note.setText(f"{self.outside} early best{'s' if self.outside != 1 else ''} below"
                                    if self.outside else "")
             self.clip_note.setColor(t.foreground)

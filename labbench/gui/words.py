@@ -85,7 +85,9 @@ def why_stopped(state: str, reason: str, epochs_run: int, epochs_total: int) -> 
     if state == "failed":
         return "failed: " + (reason or "no reason given")
     if state == "running":
-        return f"epoch {epochs_run}" + (f" of {epochs_total}" if epochs_total else "")
+        # no epoch count: the entry would change (and the list re-lay itself out) every epoch;
+        # the line above the pictures follows the epochs
+        return f"training, {epochs_total} epochs planned" if epochs_total else "training"
     return reason
 
 
