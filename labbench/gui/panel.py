@@ -13,7 +13,7 @@ import threading
 from pathlib import Path
 
 import pyqtgraph as pg
-from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QPoint, QPointF, QRectF, QSize, Qt
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QPoint, QPointF, QRectF, QSize, Qt, QTimer
 from PySide6.QtGui import QFont, QImage, QPainter, QTextDocument
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import (QFileDialog, QGraphicsItem, QFrame, QHBoxLayout, QLabel, QSizePolicy, QToolButton,
@@ -203,11 +203,20 @@ class Panel(QFrame):
         self.last_dir = str(Path(path).parent)
         win = self.window()
         bar = win.statusBar() if hasattr(win, "statusBar") else None
-        if bar is not None:
-            bar.showMessage(f"Saving the picture to {path}…")
-        self.export_in_background(path)
-        if bar is not None:
-            bar.showMessage(f"Picture saved to {path}", 6000)
+        outcome: list[str | None] = []
+        thread = self.export_in_background(path, lambda _p, error: outcome.append(error))
+        if bar is None:
+            return
+        bar.showMessage(f"Saving the picture to {path}…")
+
+        def report() -> None:      # on the GUI thread: the helper thread only leaves its outcome
+            if thread.is_alive():
+                QTimer.singleShot(100, report)
+                return
+            error = outcome[0] if outcome else "the picture could not be written"
+            bar.showMessage(f"Picture saved to {path}" if error is None else f"Not saved: {error}", 8000)
+
+        QTimer.singleShot(100, report)
 
 
 def _write(path: Path, data: bytes | QImage) -> None:

@@ -277,7 +277,10 @@ class ClimbStrip(QWidget):
         self.milestones.setData([{"pos": (n, v), "data": int(n), "brush": pg.mkBrush(pal["milestone"]),
                                   "pen": pg.mkPen(t.background, width=1), "size": 8} for n, v in miles])
         span = max(1.0, float(last))
-        shown = miles[-3:]            # the latest few milestones carry their trial number
+        shown: list = []              # the latest few milestones carry their trial number,
+        for n, v in reversed(miles):  # never two so close that their labels overlap
+            if len(shown) < 3 and all(abs(n - m) > 0.18 * span for m, _v in shown):
+                shown.append((n, v))
         while len(self.labels) < len(shown):
             label = pg.TextItem("", color=pal["milestone"])
             self.plot.addItem(label, ignoreBounds=True)

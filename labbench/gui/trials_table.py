@@ -17,7 +17,7 @@ from labbench.gui.trialbook import TrialBook, TrialRecord
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
 FILTERS = [("every state", None), ("finished", {"complete"}), ("stopped early", {"pruned"}),
-           ("failed or cancelled", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
+           ("failed or stopped by you", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
 
 
 def _fmt(v: float | None, digits: int = 4) -> str:

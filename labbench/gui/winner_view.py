@@ -19,17 +19,9 @@ def winner_html(summary: Mapping[str, Any], metric: str = "") -> str:
     """The winner check in sentences: hold-out, seed spread, runner-up, warnings and the caution."""
     e = html.escape
     word = e(core.metric_label(summary.get("metric") or metric or "score"))
-    check = (f"<b>Winner check</b> (trial {e(_n(summary.get('trial_number')))}, {word}): "
-             f"cross-validated {e(_n(summary.get('cv_mean')))} ± {e(_n(summary.get('cv_std')))}; "
-             f"hold-out {e(_n(summary.get('holdout_score')))} on {e(_n(summary.get('holdout_rows')))} rows "
-             f"kept aside, scored once")
-    spread = summary.get("seed_spread") or {}
-    if spread.get("scores"):
-        check += (f"; across {len(spread['scores'])} seeds {e(_n(spread.get('mean')))} ± "
-                  f"{e(_n(spread.get('std')))} ({e(_n(spread.get('min')))} to {e(_n(spread.get('max')))})")
-    else:
-        check += "; the spread across seeds was not measured"
-    parts = [f"<p style='margin:6px 0 0 0'>{check}.</p>"]
+    # the numbers themselves head the sheet; here the check says what they mean
+    parts = [f"<p style='margin:6px 0 0 0'><b>Winner check</b> (trial {e(_n(summary.get('trial_number')))}, "
+             f"{word}, hold-out {e(_n(summary.get('holdout_score')))}).</p>"]
     comparison = (summary.get("cv_vs_holdout") or {}).get("text")
     if comparison:
         parts.append(f"<p style='margin:2px 0 0 0'>{e(comparison)}</p>")

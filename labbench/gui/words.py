@@ -94,6 +94,8 @@ def why_stopped(state: str, reason: str, epochs_run: int, epochs_total: int) -> 
 def duration_text(seconds: float | None) -> str:
     if seconds is None:
         return "unknown"
+    if seconds < 0.1:
+        return "under 0.1 s"
     if seconds < 10:
         return f"{seconds:.1f} s"
     seconds = int(round(seconds))

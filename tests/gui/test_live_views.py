@@ -118,7 +118,7 @@ def test_band_lines_climb_and_ranges_follow_the_events(make_window):
     # the table says the states in words and keeps every trial
     table = w.watch.table
     assert table.proxy.rowCount() == 5
-    table.filter_box.setCurrentText("failed or cancelled")
+    table.filter_box.setCurrentText("failed or stopped by you")
     assert table.proxy.rowCount() == 1
     # the notebook: one entry per trial, newest first
     book = w.watch.notebook
