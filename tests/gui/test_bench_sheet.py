@@ -303,3 +303,11 @@ def test_the_palette_is_plain_data():
             "print(len(p.LIGHT))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert int(out.stdout) >= 10
+
+
+def test_every_page_fits_a_narrow_window(make_window):
+    w = make_window()
+    for row in range(3):
+        w.steps.setCurrentRow(row)
+        # half of a 1600-pixel screen, less the window frame (common practice: side-by-side windows)
+        assert w.minimumSizeHint().width() <= 795
