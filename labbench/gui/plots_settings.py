@@ -279,7 +279,7 @@ class ClimbStrip(QWidget):
         span = max(1.0, float(last))
         shown: list = []              # the latest few milestones carry their trial number,
         for n, v in reversed(miles):  # never two so close that their labels overlap
-            if len(shown) < 3 and all(abs(n - m) > 0.18 * span for m, _v in shown):
+            if len(shown) < 3 and all(abs(n - m) > 0.2 * span for m, _v in shown):
                 shown.append((n, v))
         while len(self.labels) < len(shown):
             label = pg.TextItem("", color=pal["milestone"])
@@ -290,46 +290,12 @@ class ClimbStrip(QWidget):
                 label.setVisible(False)
                 continue
             n, v = shown[i]
-            # to the right of the dot, or to its left near the right edge (never cut off)
-            label.setAnchor((1.1, -0.05) if n > 0.8 * span else (-0.1, -0.05))
+            # to the left of the dot (the staircase runs on to the right), or to its right near
+            # the left edge (never cut off)
+            label.setAnchor((-0.1, -0.05) if n < 0.2 * span else (1.1, -0.05))
             label.setText(f"#{int(n)}", color=pal["milestone"])
             label.setPos(n, v)
             label.setVisible(True)
-        self.outside = 0
-
-    def _tip(self, x, y, data):
-        return self._tips.get(int(data), f"trial {int(x)}: {y:.4g}")
-
-    def draw(self, book: TrialBook, selected: int | None, t: theme.Theme) -> None:
-        pal = colours(t.dark)
-        if self._theme != t.background.name():
-            self._theme = t.background.name()
-            self.widget.setBackground(t.background)
-            Panel.style_plot(self.plot, t)
-        done = [r for r in book.ordered() if r.state == "complete" and r.value is not None]
-        xs, ys = core.best_so_far(done, book.direction)
-        last = max((r.number for r in book.records.values()), default=0)
-        if xs:
-            # a staircase to the latest trial: the best holds until a trial beats it
-            self.climb.setData(*_steps(list(xs) + [float(max(last, xs[-1]))], list(ys) + [ys[-1]]))
-        else:
-            self.climb.setData([], [])
-        self.climb.setPen(pg.mkPen(pal["climb"], width=2.2))
-        miles = _milestones(xs, ys)
-        self._tips = {int(n): f"trial {int(n)} became the best: {v:.4g}" for n, v in miles}
-        self.milestones.setData([{"pos": (n, v), "data": int(n), "brush": pg.mkBrush(pal["milestone"]),
-                                  "pen": pg.mkPen(t.background, width=1), "size": 8} for n, v in miles])
-        for label in self.labels:
-            self.plot.removeItem(label)
-        self.labels = []
-        span = max(1.0, float(last))
-        for n, v in miles[-3:]:       # the latest few milestones carry their trial number
-            # to the right of the dot, or to its left near the right edge (never cut off)
-            anchor = (1.1, -0.05) if n > 0.8 * span else (-0.1, -0.05)
-            label = pg.TextItem(f"#{int(n)}", anchor=anchor, color=pal["milestone"])
-            label.setPos(n, v)
-            self.plot.addItem(label, ignoreBounds=True)
-            self.labels.append(label)
         self.outside = 0
         if xs:
             # the view follows the middle of the scores, so one disastrous early trial does not
