@@ -19,7 +19,7 @@ from PySide6.QtWidgets import QHBoxLayout, QLabel, QSizePolicy, QTextBrowser, QV
 
 from labbench.gui import core, theme
 from labbench.gui.panel import Panel
-from labbench.gui.plots_settings import ClimbStrip
+from labbench.gui.climb import ClimbStrip
 from labbench.gui.trialbook import TrialBook
 from labbench.gui.words import num, settings_words
 from labbench.palette import colours
