@@ -29,7 +29,7 @@ def entry_text(rec: TrialRecord, book: TrialBook) -> str:
     else:
         score = "no score"
     why = why_stopped(rec.state, rec.reason, len(rec.epochs), rec.epochs_total)
-    took = duration_text(rec.duration_s) if rec.duration_s else ""
+    took = duration_text(rec.duration_s) if rec.duration_s >= 1 else ""     # below a second: noise
     second = " · ".join(x for x in ((score if rec.value is not None else ""), why, took) if x)
     words = settings_words(rec.settings, rec.params)
     return "\n".join(x for x in (head, second, words) if x)
