@@ -311,3 +311,19 @@ def test_every_page_fits_a_narrow_window(make_window):
         w.steps.setCurrentRow(row)
         # half of a 1600-pixel screen, less the window frame (common practice: side-by-side windows)
         assert w.minimumSizeHint().width() <= 795
+
+
+def test_the_last_experiment_comes_back(tmp_path, qtbot, dialogs, orchard_csv):
+    from labbench.gui import app as gui_app
+
+    spec = tmp_path / "orchard.toml"
+    spec.write_text('[data]\npath = "orchard.csv"\ntarget = "grade"\nignore = ["crate_id"]\n', encoding="utf-8")
+    gui_app.make_app()
+    settings = QSettings(str(tmp_path / "last.ini"), QSettings.Format.IniFormat)
+    settings.setValue("recent_files", [str(tmp_path / "gone.toml"), str(spec)])   # the first was deleted
+    w = gui_app.open_window(settings=settings)
+    w.quiet_dialogs = True
+    qtbot.addWidget(w)
+    w.show()
+    qtbot.waitUntil(lambda: w.data.frame is not None, timeout=30_000)
+    assert w.spec_path == str(spec) and w.data.target_box.currentText() == "grade"
