@@ -32,9 +32,10 @@ def make_app(argv: list[str] | None = None) -> QApplication:
     app.setProperty("labbench_styled", True)
     import pyqtgraph as pg
 
-    from labbench.gui.theme import Theme, stylesheet
+    from labbench.gui.theme import Theme, is_dark, own_palette, stylesheet
 
     app.setStyle("Fusion")
+    app.setPalette(own_palette(is_dark(app.palette())))
     app.setStyleSheet(stylesheet())
     t = Theme.current()
     pg.setConfigOptions(antialias=True, background=t.background, foreground=t.foreground)
@@ -47,6 +48,10 @@ def open_window(spec: str | None = None, demo: bool = False, settings: QSettings
 
     window = MainWindow(settings)
     target = str(DEMO_SPEC) if demo else spec
+    if target is None:
+        # no file named: the last experiment comes back (a spec file that still exists)
+        last = [p for p in window.recent_files() if p.lower().endswith(".toml") and Path(p).is_file()]
+        target = last[0] if last else None
     if demo and not DEMO_SPEC.exists():
         QTimer.singleShot(0, lambda: QMessageBox.warning(
             window, "No demo set", f"{DEMO_SPEC}: the demo spec is missing; run the demo_sets "

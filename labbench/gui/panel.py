@@ -1,17 +1,31 @@
-"""A titled frame around one picture, with its own "Save picture…" button (PNG or SVG)."""
+"""A titled frame around one picture, with its own "Save picture…" button (PNG or SVG).
+
+A saved picture is the panel as a reader sees it: its title, its key (the coloured words under
+the title) and the picture, drawn with real text. The drawing happens on the GUI thread (tens of
+milliseconds); encoding and writing the file happen on a helper thread when saved from the
+button, so a slow disk never stalls the window.
+"""
 
 from __future__ import annotations
 
 import textwrap
+import threading
 from pathlib import Path
 
 import pyqtgraph as pg
+from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QPoint, QPointF, QRectF, QSize, Qt, QTimer
+from PySide6.QtGui import QFont, QImage, QPainter, QTextDocument
+from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import (QFileDialog, QGraphicsItem, QFrame, QHBoxLayout, QLabel, QSizePolicy, QToolButton,
                                QVBoxLayout, QWidget)
 
 from labbench.gui import theme
 
 pg.setConfigOptions(antialias=True)
+
+PICTURE_SCALE = 2          # a PNG has twice the on-screen pixels: sharp in print and when zoomed
+TITLE_PT = 13              # title and key sizes in a saved picture, whatever the screen's font
+KEY_PT = 10
 
 
 class Panel(QFrame):
@@ -50,6 +64,7 @@ class Panel(QFrame):
         self.body.setContentsMargins(0, 0, 0, 0)
         outer.addLayout(self.body, 1)
         self.last_dir = ""
+        self.writers: list[threading.Thread] = []
 
     # ---- drawing helpers shared by the plot panels
     @staticmethod
@@ -67,29 +82,114 @@ class Panel(QFrame):
             axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
         item.showGrid(x=True, y=True, alpha=t.grid_alpha)
 
-    def export_item(self):
-        """The graphics item or scene the exporters write (subclasses override)."""
-        raise NotImplementedError
+    def picture_widget(self) -> QWidget:
+        """The widget drawn under the title in a saved picture (subclasses may override)."""
+        item = self.body.itemAt(0)
+        return item.widget() if item is not None else self
+
+    def key_html(self) -> str:
+        return self.hint.text() if self.hint.textFormat() != Qt.TextFormat.PlainText else self.hint.text()
+
+    # ---- saving
+    def _paint(self, painter: QPainter, width: float) -> None:
+        t = theme.Theme.current()
+        painter.fillRect(QRectF(0, 0, width, self._picture_height()), t.background)
+        painter.setPen(t.foreground)
+        font = QFont(self.font())
+        font.setPointSizeF(TITLE_PT)
+        font.setBold(True)
+        painter.setFont(font)
+        title_h = painter.fontMetrics().height()
+        painter.drawText(QRectF(10, 6, width - 20, title_h), Qt.AlignmentFlag.AlignLeft, self.title)
+        doc = self._key_doc(width)
+        painter.save()
+        painter.translate(6, 8 + title_h)
+        doc.drawContents(painter)
+        painter.restore()
+        widget = self.picture_widget()
+        painter.save()
+        painter.translate(QPointF(0, 12 + title_h + doc.size().height()))
+        QWidget.render(widget, painter, QPoint(0, 0))
+        painter.restore()
+
+    def _key_doc(self, width: float) -> QTextDocument:
+        doc = QTextDocument()
+        f = QFont(self.font())
+        f.setPointSizeF(KEY_PT)
+        doc.setDefaultFont(f)
+        colour = theme.Theme.current().foreground.name()
+        doc.setHtml(f"<div style='color:{colour}'>{self.key_html()}</div>")
+        doc.setTextWidth(width - 12)
+        return doc
+
+    def _picture_height(self) -> float:
+        width = self.picture_widget().width()
+        font = QFont(self.font())
+        font.setPointSizeF(TITLE_PT)
+        font.setBold(True)
+        from PySide6.QtGui import QFontMetrics
+
+        return 12 + QFontMetrics(font).height() + self._key_doc(width).size().height() + \
+            self.picture_widget().height()
+
+    def picture_bytes(self, suffix: str) -> bytes | QImage:
+        """The picture as SVG bytes, or for PNG as a QImage (drawn here, on the GUI thread;
+        the PNG encoding is left to whoever writes it, which may be a helper thread)."""
+        widget = self.picture_widget()
+        width, height = widget.width(), int(self._picture_height()) + 1
+        data = QByteArray()
+        buf = QBuffer(data)
+        buf.open(QIODevice.OpenModeFlag.WriteOnly)
+        if suffix == ".svg":
+            gen = QSvgGenerator()
+            gen.setOutputDevice(buf)
+            gen.setSize(QSize(width, height))
+            gen.setViewBox(QRectF(0, 0, width, height))
+            gen.setResolution(widget.logicalDpiX())
+            gen.setTitle(self.title)
+            painter = QPainter(gen)
+            self._paint(painter, width)
+            painter.end()
+        else:
+            image = QImage(width * PICTURE_SCALE, height * PICTURE_SCALE, QImage.Format.Format_ARGB32)
+            image.setDevicePixelRatio(PICTURE_SCALE)
+            image.fill(theme.Theme.current().background)
+            painter = QPainter(image)
+            painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+            painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
+            self._paint(painter, width)
+            painter.end()
+            buf.close()
+            return image
+        buf.close()
+        return bytes(data.data())
 
     def export(self, path: str | Path) -> Path:
-        """Write the picture; the suffix picks the format (.svg, anything else a raster image)."""
-        from pyqtgraph import exporters
-
+        """Write the picture now; the suffix picks the format (.svg, anything else PNG)."""
         path = Path(path)
         path.parent.mkdir(parents=True, exist_ok=True)
-        item = self.export_item()
-        if path.suffix.lower() == ".svg":
-            exporters.SVGExporter(item).export(str(path))
-        else:
-            exp = exporters.ImageExporter(item)
-            # twice the on-screen size so the picture stays sharp when printed or zoomed
-            width = max(int(exp.params["width"]) * 2, 600)
-            exp.params["width"] = width
-            exp.params["background"] = theme.Theme.current().background
-            exp.export(str(path))
-        if not path.exists():        # QImage.save reports failure only by returning False
-            raise OSError(f"{path}: the picture could not be written")
+        _write(path, self.picture_bytes(".svg" if path.suffix.lower() == ".svg" else ".png"))
         return path
+
+    def export_in_background(self, path: str | Path, done=None) -> threading.Thread:
+        """Draw now, write on a helper thread; ``done(path, error)`` is called on that thread."""
+        path = Path(path)
+        data = self.picture_bytes(".svg" if path.suffix.lower() == ".svg" else ".png")
+
+        def write() -> None:
+            error = None
+            try:
+                path.parent.mkdir(parents=True, exist_ok=True)
+                _write(path, data)
+            except OSError as exc:
+                error = f"{path}: {exc.strerror or exc}"
+            if done is not None:
+                done(path, error)
+
+        thread = threading.Thread(target=write, name="labbench-picture", daemon=True)
+        thread.start()
+        self.writers = [w for w in self.writers if w.is_alive()] + [thread]
+        return thread
 
     def ask_export(self) -> None:
         name = self.title.lower().replace(" ", "_").replace("/", "_")
@@ -101,10 +201,31 @@ class Panel(QFrame):
         if not Path(path).suffix:
             path += ".svg" if "svg" in chosen.lower() else ".png"
         self.last_dir = str(Path(path).parent)
-        self.export(path)
         win = self.window()
-        if hasattr(win, "statusBar"):
-            win.statusBar().showMessage(f"Picture saved to {path}", 6000)
+        bar = win.statusBar() if hasattr(win, "statusBar") else None
+        outcome: list[str | None] = []
+        thread = self.export_in_background(path, lambda _p, error: outcome.append(error))
+        if bar is None:
+            return
+        bar.showMessage(f"Saving the picture to {path}…")
+
+        def report() -> None:      # on the GUI thread: the helper thread only leaves its outcome
+            if thread.is_alive():
+                QTimer.singleShot(100, report)
+                return
+            error = outcome[0] if outcome else "the picture could not be written"
+            bar.showMessage(f"Picture saved to {path}" if error is None else f"Not saved: {error}", 8000)
+
+        QTimer.singleShot(100, report)
+
+
+def _write(path: Path, data: bytes | QImage) -> None:
+    """Write SVG bytes, or encode and write a QImage as PNG (QImage.save only returns False)."""
+    if isinstance(data, QImage):
+        if not data.save(str(path), "PNG"):
+            raise OSError(0, "the picture could not be written", str(path))
+    else:
+        path.write_bytes(data)
 
 
 def message_item(text: str) -> pg.TextItem:
@@ -125,42 +246,10 @@ def centre_message(plot: pg.PlotItem, item: pg.TextItem, text: str | None) -> No
     item.setVisible(True)
 
 
-def curve_pen(t: theme.Theme, state: str, *, best: bool, running: bool, selected: bool):
-    """Pen of a learning curve by its trial's role (selected > running > best > state)."""
-    if selected:
-        return pg.mkPen(t.state("selected"), width=3.2), 40, True
-    if running:
-        return pg.mkPen(t.state("running"), width=2.6), 30, True
-    if best:
-        return pg.mkPen(t.state("best"), width=2.6), 20, True
-    alpha = 150 if state == "complete" else 130
-    # the many background lines are drawn without antialiasing: a third of the paint time
-    return pg.mkPen(t.state(state, alpha), width=1, style=theme.pen_style(state)), 0, False
+def integer_axis(axis, low: float, high: float) -> list[int]:
+    """Whole-number ticks on a pyqtgraph axis (trial numbers, epochs); returns them."""
+    from labbench.gui.axes import integer_ticks
 
-
-def log_ticks(low: float, high: float) -> list[tuple[float, str]]:
-    """Ticks at 1, 2, 5 × 10^k between two positive values, placed at log10 (axis drawn in log10)."""
-    import math
-
-    if not (low > 0 and high > 0):
-        return []
-    lo, hi = math.floor(math.log10(min(low, high))), math.ceil(math.log10(max(low, high)))
-    out = []
-    steps = (1, 2, 5) if hi - lo <= 2 else (1,)      # wide spans: one tick per decade
-    for k in range(lo, hi + 1):
-        for m in steps:
-            v = m * 10.0 ** k
-            if low / 1.5 <= v <= high * 1.5:
-                out.append((math.log10(v), f"{v:g}"))
-    if len(out) < 2:
-        out = [(math.log10(v), f"{v:.2g}") for v in (low, high)]
-    return out
-
-
-def integer_spacing(axis, largest: int) -> None:
-    """Whole-number ticks for trial numbers and epochs (pyqtgraph's own above 60)."""
-    step = 1 if largest <= 12 else 2 if largest <= 25 else 5 if largest <= 60 else None
-    if step is None:
-        axis.setTickSpacing()
-    else:
-        axis.setTickSpacing(step, step)
+    ticks = integer_ticks(low, high)
+    axis.setTicks([[(float(v), str(v)) for v in ticks], []])
+    return ticks

@@ -1,8 +1,9 @@
 """Colours, pens and icons of the window, derived from the running palette (light or dark).
 
-The state colours are labbench's own: a neutral ink for finished trials so that the two that
-matter (the one training now and the best so far) stand out, a cool slate for pruned ones and a
-brick red for failures. Each is lightened on a dark palette so it stays readable.
+The colours are labbench's own (``labbench.palette``, shared with the report): ink on a warm
+paper, a bottle green for the winner, amber for the trial training now, violet for the trial the
+user picked, a cool slate for pruned trials and a brick red for failures. ``own_palette`` turns
+them into the window's QPalette, light or dark after the desktop's choice.
 """
 
 from __future__ import annotations
@@ -15,28 +16,13 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPalette, QPixmap
 from PySide6.QtSvg import QSvgRenderer
 from PySide6.QtWidgets import QApplication
 
+from labbench.palette import DARK, LIGHT, STATE_WORDS  # noqa: F401  (STATE_WORDS: the states in words)
+
 RESOURCES = Path(__file__).resolve().parents[2] / "resources"
 
-# name -> (light-palette colour, dark-palette colour)
-_STATE_COLOURS = {
-    "running": ("#d9822b", "#f0a35e"),    # amber: the trial training right now
-    "best": ("#1f8a5b", "#4cc38a"),       # deep green: the best finished trial
-    "complete": ("#5b6472", "#a9b1bd"),   # ink grey: every other finished trial
-    "pruned": ("#6f7fb8", "#98a6d8"),     # slate blue, dashed: stopped early by the pruner
-    "failed": ("#b8433a", "#e2766c"),     # brick red, dotted: the trial raised an error
-    "cancelled": ("#8e8e8e", "#9a9a9a"),  # plain grey, dotted: stopped by the user
-    "waiting": ("#8e8e8e", "#9a9a9a"),
-    "selected": ("#7a3fb0", "#c39bef"),   # violet: the row picked in the trials table
-}
-
-STATE_WORDS = {
-    "running": "training",
-    "complete": "finished",
-    "pruned": "pruned",
-    "failed": "failed",
-    "cancelled": "cancelled",
-    "waiting": "queued",
-}
+# name -> (light-palette colour, dark-palette colour), from labbench.palette (shared with the report)
+_STATE_COLOURS = {name: (LIGHT[name], DARK[name]) for name in
+                  ("running", "best", "complete", "pruned", "failed", "cancelled", "waiting", "selected")}
 
 
 def is_dark(palette: QPalette | None = None) -> bool:
@@ -69,6 +55,35 @@ class Theme:
         colour = QColor(dark if self.dark else light)
         colour.setAlpha(alpha)
         return colour
+
+
+def _mix(a: str, b: str, share: float) -> QColor:
+    ca, cb = QColor(a), QColor(b)
+    return QColor(round(ca.red() * (1 - share) + cb.red() * share),
+                  round(ca.green() * (1 - share) + cb.green() * share),
+                  round(ca.blue() * (1 - share) + cb.blue() * share))
+
+
+def own_palette(dark: bool) -> QPalette:
+    """The window's QPalette from labbench's colours (paper and ink, the winner's green as accent)."""
+    c = DARK if dark else LIGHT
+    pal = QPalette()
+    roles = QPalette.ColorRole
+    for role, colour in ((roles.Window, c["panel"]), (roles.Base, c["paper"]), (roles.Button, c["panel"]),
+                         (roles.Text, c["ink"]), (roles.WindowText, c["ink"]), (roles.ButtonText, c["ink"]),
+                         (roles.ToolTipBase, c["paper"]), (roles.ToolTipText, c["ink"]),
+                         (roles.PlaceholderText, c["muted"]), (roles.Link, c["best"]),
+                         (roles.BrightText, c["failed"])):
+        pal.setColor(role, QColor(colour))
+    pal.setColor(roles.AlternateBase, _mix(c["paper"], c["rule"], 0.35))
+    pal.setColor(roles.Highlight, _mix(c["paper"], c["best"], 0.30))
+    pal.setColor(roles.HighlightedText, QColor(c["ink"]))
+    pal.setColor(roles.Mid, QColor(c["rule"]))
+    pal.setColor(roles.Midlight, _mix(c["panel"], c["paper"], 0.5))
+    pal.setColor(roles.Dark, _mix(c["rule"], c["ink"], 0.3))
+    for role in (roles.Text, roles.WindowText, roles.ButtonText):
+        pal.setColor(QPalette.ColorGroup.Disabled, role, QColor(c["muted"]))
+    return pal
 
 
 def state_colour(name: str, alpha: int = 255) -> QColor:

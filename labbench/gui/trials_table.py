@@ -16,8 +16,8 @@ from labbench.gui import core, theme
 from labbench.gui.trialbook import TrialBook, TrialRecord
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-FILTERS = [("every state", None), ("finished", {"complete"}), ("pruned", {"pruned"}),
-           ("failed or cancelled", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
+FILTERS = [("every state", None), ("finished", {"complete"}), ("stopped early", {"pruned"}),
+           ("failed or stopped by you", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
 
 
 def _fmt(v: float | None, digits: int = 4) -> str:
@@ -34,7 +34,7 @@ class TrialsModel(QAbstractTableModel):
         self.rows: list[TrialRecord] = []
         self.params: list[str] = []
         self.best: int | None = None
-        self._columns = list(self.BASE) + ["Note"]
+        self._columns = list(self.BASE) + ["Why it stopped"]
         self.structure_changed = False
 
     def columns(self) -> list[str]:
@@ -50,7 +50,7 @@ class TrialsModel(QAbstractTableModel):
                 [r.number for r in rows[:len(self.rows)]] != [r.number for r in self.rows]:
             self.beginResetModel()
             self.params = params
-            self._columns = self.BASE + [core.param_label(p) for p in params] + ["Note"]
+            self._columns = self.BASE + [core.param_label(p) for p in params] + ["Why it stopped"]
             self.rows = rows
             self.endResetModel()
             self.structure_changed = True
@@ -109,7 +109,7 @@ class TrialsModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DisplayRole:
             if col == 1:
                 word = theme.STATE_WORDS.get(rec.state, rec.state)
-                return word + (" ★ best" if rec.number == self.best else "")
+                return word + (" · winner" if rec.number == self.best else "")
             if col == 4 and rec.epochs_total:
                 return f"{value} / {rec.epochs_total}"
             if isinstance(value, float):
@@ -157,8 +157,6 @@ class TrialsTable(QWidget):
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
         head = QHBoxLayout()
-        title = QLabel("<b>All trials</b>")
-        head.addWidget(title)
         self.count = QLabel("")
         self.count.setObjectName("panelHint")
         head.addWidget(self.count, 1)
@@ -180,6 +178,8 @@ class TrialsTable(QWidget):
         self.view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.view.setAlternatingRowColors(True)
+        self.view.setTabKeyNavigation(False)      # Tab leaves the table; arrows move inside it
+        self.view.setAccessibleName("Trials table")
         self.view.verticalHeader().hide()
         self.view.verticalHeader().setDefaultSectionSize(22)
         self.view.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
@@ -204,7 +204,7 @@ class TrialsTable(QWidget):
             fm = self.view.horizontalHeader().fontMetrics()
             for col, name in enumerate(self.model.columns()[:-1]):
                 self.view.setColumnWidth(col, max(64, fm.horizontalAdvance(name) + 28,
-                                                  fm.horizontalAdvance("finished ★ best") + 16 if col == 1 else 0))
+                                                  fm.horizontalAdvance("finished · winner") + 16 if col == 1 else 0))
         counts: dict[str, int] = {}
         for r in book.records.values():
             counts[r.state] = counts.get(r.state, 0) + 1

@@ -1,31 +1,26 @@
-"""Step 3 — run and watch: progress, the four live pictures, the best so far, every trial."""
+"""Step 3 — run and watch, laid out as a bench sheet.
+
+At the top the current winner and how sure we are; below it, on the left, how the trials learned
+(a band of every trial's learning curve) and how the search went (the best's climb and where the
+good scores live in each setting's range); on the right the notebook, one entry per trial (with
+the compact table as a second view).
+"""
 
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QPainter, QPalette, QPen
-from PySide6.QtWidgets import (QGridLayout, QHBoxLayout, QLabel, QPushButton,
-                               QSizePolicy, QSplitter, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QHBoxLayout, QLabel, QPushButton, QSizePolicy, QSplitter, QTabWidget,
+                               QVBoxLayout, QWidget)
 
 from labbench.gui import core, theme
-from labbench.gui.best_panel import BestPanel
-from labbench.gui.plots import CurvesPanel, ScoresPanel
-from labbench.gui.plots_settings import ImportancePanel, SettingsPanel
+from labbench.gui.bench_sheet import BenchSheet
+from labbench.gui.notebook import Notebook
+from labbench.gui.plots import CurvesPanel
+from labbench.gui.plots_settings import StoryPanel
 from labbench.gui.trialbook import TrialBook
 from labbench.gui.trials_table import TrialsTable
-
-
-def duration_text(seconds: float | None) -> str:
-    if seconds is None:
-        return "unknown"
-    seconds = int(round(seconds))
-    if seconds < 60:
-        return f"{seconds} s"
-    minutes, s = divmod(seconds, 60)
-    if minutes < 60:
-        return f"{minutes} min {s:02d} s"
-    hours, m = divmod(minutes, 60)
-    return f"{hours} h {m:02d} min"
+from labbench.gui.words import duration_text
 
 
 class BudgetBar(QWidget):
@@ -79,16 +74,19 @@ class BudgetBar(QWidget):
 
 
 class WatchPage(QWidget):
-    picked = Signal(object)     # trial number or None (from a plot click or the table)
+    picked = Signal(object)     # trial number or None (from a picture, the notebook or the table)
 
     def __init__(self, parent=None):
         super().__init__(parent)
         outer = QVBoxLayout(self)
         outer.setContentsMargins(6, 6, 6, 6)
+        outer.setSpacing(6)
         bar = QHBoxLayout()
         self.start_button = QPushButton(theme.icon("start"), "Start")
         self.stop_button = QPushButton(theme.icon("stop"), "Stop")
         self.start_button.setObjectName("startButton")
+        self.start_button.setToolTip("Start the search (or continue the stored one)")
+        self.stop_button.setToolTip("Stop after the current epoch; the finished trials stay stored")
         for b in (self.start_button, self.stop_button):
             b.setMinimumWidth(84)
             bar.addWidget(b)
@@ -105,47 +103,107 @@ class WatchPage(QWidget):
         bar.addWidget(self.in_flight, 3)
         outer.addLayout(bar)
 
+        self.sheet = BenchSheet()
         self.curves = CurvesPanel()
-        self.scores = ScoresPanel()
-        self.settings_plot = SettingsPanel()
-        self.importance = ImportancePanel()
-        self.best = BestPanel()
+        self.story = StoryPanel()
+        self.notebook = Notebook()
         self.table = TrialsTable()
-        self.panels = [self.curves, self.scores, self.settings_plot, self.importance, self.best]
+        # older names kept for the session and the take-away actions
+        self.best = self.sheet
+        self.importance = self.story
+        self.settings_plot = self.story
+        self.panels = [self.curves, self.story, self.sheet]
 
-        plots = QWidget()
-        grid = QGridLayout(plots)
-        grid.setContentsMargins(0, 0, 0, 0)
-        grid.setSpacing(6)
-        grid.addWidget(self.curves, 0, 0)
-        grid.addWidget(self.scores, 0, 1)
-        grid.addWidget(self.settings_plot, 1, 0)
-        grid.addWidget(self.importance, 1, 1)
-        for i in range(2):
-            grid.setColumnStretch(i, 1)
-            grid.setRowStretch(i, 1)
+        self.lower = QTabWidget()
+        self.lower.setObjectName("runsTabs")
+        self.lower.addTab(self.notebook, "Notebook")
+        self.lower.addTab(self.table, "Table")
+        self.lower.setTabToolTip(0, "One entry per trial, newest first, in words")
+        self.lower.setTabToolTip(1, "Every trial in a sortable table (save it as CSV from the Winner menu)")
 
-        top = QSplitter(Qt.Orientation.Horizontal)
-        top.addWidget(plots)
-        top.addWidget(self.best)
-        top.setStretchFactor(0, 4)
-        top.setStretchFactor(1, 1)
-        top.setSizes([1000, 370])
+        self.left = QSplitter(Qt.Orientation.Vertical)
+        self.left.setObjectName("leftSplit")
+        self.left.addWidget(self.curves)
+        self.left.addWidget(self.story)
+        self.left.setSizes([300, 320])
+        self.left.setChildrenCollapsible(False)
+        self.body = QSplitter(Qt.Orientation.Horizontal)
+        self.body.setObjectName("bodySplit")
+        self.body.addWidget(self.left)
+        self.body.addWidget(self.lower)
+        self.body.setStretchFactor(0, 3)
+        self.body.setStretchFactor(1, 2)
+        self.body.setSizes([700, 420])
+        self.body.setChildrenCollapsible(False)
         self.split = QSplitter(Qt.Orientation.Vertical)
-        self.split.addWidget(top)
-        self.split.addWidget(self.table)
-        self.split.setStretchFactor(0, 3)
+        self.split.setObjectName("pageSplit")
+        self.split.addWidget(self.sheet)
+        self.split.addWidget(self.body)
+        self.split.setStretchFactor(0, 0)
         self.split.setStretchFactor(1, 1)
-        self.split.setSizes([620, 220])
+        self.split.setSizes([150, 620])
+        self.split.setChildrenCollapsible(False)
+        self.sheet.setMinimumHeight(128)
+        self.curves.setMinimumHeight(150)
+        self.story.setMinimumHeight(120)
+        self.lower.setMinimumWidth(260)
         outer.addWidget(self.split, 1)
 
-        self._turn = 0
-        for p in (self.curves, self.scores, self.settings_plot):
-            p.clicked.connect(self._clicked)
-        self.table.picked.connect(self.picked)
+        # the pictures answer the mouse; Tab walks the controls and skips them
+        import pyqtgraph as pg
 
-    def _clicked(self, number: int) -> None:
-        self.table.select(number)
+        for view in self.findChildren(pg.GraphicsView):
+            view.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+            view.viewport().setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.saved_sizes: dict[str, list[int]] = {}
+        self._sized = False
+        self._turn = 0
+        self._picking = False
+        for p in (self.curves, self.story, self.sheet.climb):
+            p.clicked.connect(self.select)
+        self.notebook.picked.connect(self._from_notebook)
+        self.table.picked.connect(self._from_table)
+
+    def splitters(self) -> dict[str, QSplitter]:
+        """The splitters whose sizes the window remembers."""
+        return {"page": self.split, "body": self.body, "left": self.left}
+
+    def current_sizes(self) -> dict[str, list[int]]:
+        """Sizes to remember: the saved ones while the page has never been shown."""
+        if self.saved_sizes and not self._sized:
+            return dict(self.saved_sizes)
+        return {name: s.sizes() for name, s in self.splitters().items()}
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if not self._sized:
+            # applied once the page has its real size: before that a splitter squeezes them into
+            # whatever width it has and the proportions are lost
+            self._sized = True
+            for name, splitter in self.splitters().items():
+                sizes = self.saved_sizes.get(name)
+                if sizes and len(sizes) == splitter.count():
+                    splitter.setSizes(sizes)
+
+    def select(self, number: int | None) -> None:
+        """Pick a trial (from a click in a picture): the notebook and the table follow."""
+        self.notebook.select(number)
+
+    def _from_notebook(self, number) -> None:
+        if self._picking:
+            return
+        self._picking = True
+        self.table.select(number, emit=False)
+        self._picking = False
+        self.picked.emit(number)
+
+    def _from_table(self, number) -> None:
+        if self._picking:
+            return
+        self._picking = True
+        self.notebook.select(number, emit=False)
+        self._picking = False
+        self.picked.emit(number)
 
     def reset(self) -> None:
         self.curves.reset()
@@ -168,6 +226,7 @@ class WatchPage(QWidget):
         pending = drew is not None
         if drew is not None:
             self._turn = drew + 1
+        self.notebook.refresh(book, changed)
         self.table.refresh(book, changed)
         self._progress(book)
         return pending

@@ -6,8 +6,8 @@ import logging
 from pathlib import Path
 from typing import Any
 
-from PySide6.QtCore import QSettings, QSize, Qt
-from PySide6.QtWidgets import (QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QMainWindow,
+from PySide6.QtCore import QSettings, QSize, Qt, QTimer
+from PySide6.QtWidgets import (QApplication, QHBoxLayout, QLabel, QListWidget, QListWidgetItem, QMainWindow,
                                QMessageBox, QStackedWidget, QWidget)
 
 from labbench.errors import LabbenchError, SpecError
@@ -21,6 +21,8 @@ from labbench.gui.takeaway import Takeaway
 from labbench.gui.watch_page import WatchPage
 
 log = logging.getLogger("labbench.gui")
+
+HIDDEN_STOP_MS = 30_000    # a closed window waits this long for its search to stop, then ends it
 
 
 class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
@@ -191,10 +193,36 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         if geometry is not None:
             self.restoreGeometry(geometry)
         else:
-            self.resize(1360, 860)
+            self.resize(self._first_size())
         state = self.settings.value("window_state")
         if state is not None:
             self.restoreState(state)
+        for name in self.watch.splitters():
+            sizes = self.settings.value(f"splitter/{name}")
+            if isinstance(sizes, (list, tuple)):
+                try:
+                    self.watch.saved_sizes[name] = [int(v) for v in sizes]
+                except (TypeError, ValueError):
+                    pass
+        log_on = self.settings.value("curves/log_scale", False)
+        self.watch.curves.log_box.setChecked(str(log_on).lower() in ("true", "1"))
+
+    def _first_size(self) -> QSize:
+        """1360 × 860 where it fits, else the screen's free area (a 1366 × 768 laptop)."""
+        screen = self.screen() or QApplication.primaryScreen()
+        want = QSize(1360, 860)
+        if screen is None:
+            return want
+        free = screen.availableGeometry().size()
+        return QSize(min(want.width(), free.width()), min(want.height(), free.height() - 30))
+
+    def remember_layout(self) -> None:
+        self.settings.setValue("geometry", self.saveGeometry())
+        self.settings.setValue("window_state", self.saveState())
+        for name, sizes in self.watch.current_sizes().items():
+            self.settings.setValue(f"splitter/{name}", sizes)
+        self.settings.setValue("curves/log_scale", self.watch.curves.log_box.isChecked())
+        self.settings.sync()
 
     def closeEvent(self, event) -> None:
         if self.session.running:
@@ -207,15 +235,25 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
                     event.ignore()
                     return
                 self._close_when_stopped = True
+                self.remember_layout()
                 self.session.stop()
-                self.statusBar().showMessage("Stopping the search, then closing…")
+                # the window goes at once; the search winds down behind it (the trial in training
+                # is stopped and marked) and the window closes for good once it has
+                self.hide()
+                QTimer.singleShot(HIDDEN_STOP_MS, self._give_up_waiting)
             event.ignore()          # closed again from _search_finished once the thread is done
             return
-        self.settings.setValue("geometry", self.saveGeometry())
-        self.settings.setValue("window_state", self.saveState())
-        self.settings.sync()
+        if not self._close_when_stopped:
+            self.remember_layout()
         self.session.close()
         super().closeEvent(event)
+
+    def _give_up_waiting(self) -> None:
+        """A search that has not wound down long after the window was closed is ended hard."""
+        proc = getattr(self.session.thread, "_proc", None)
+        if proc is not None and proc.is_alive():
+            log.warning("the search did not stop within %d s of closing; ending it", HIDDEN_STOP_MS // 1000)
+            proc.terminate()
 
     def dragEnterEvent(self, event) -> None:
         urls = event.mimeData().urls()

@@ -16,31 +16,20 @@ def _n(v: Any) -> str:
 
 
 def winner_html(summary: Mapping[str, Any], metric: str = "") -> str:
-    """Hold-out score, seed spread, runner-up, warnings and the caution, all from the summary."""
+    """The winner check in sentences: hold-out, seed spread, runner-up, warnings and the caution."""
     e = html.escape
     word = e(core.metric_label(summary.get("metric") or metric or "score"))
-    parts = [f"<h3 style='margin-bottom:2px'>Winner: trial {e(_n(summary.get('trial_number')))}</h3>"]
-    rows = [("Cross-validated", f"{_n(summary.get('cv_mean'))} ± {_n(summary.get('cv_std'))}"),
-            (f"Hold-out ({_n(summary.get('holdout_rows'))} rows, scored once)",
-             _n(summary.get("holdout_score")))]
-    spread = summary.get("seed_spread") or {}
-    if spread.get("scores"):
-        rows.append((f"Across {len(spread['scores'])} seeds",
-                     f"{_n(spread.get('mean'))} ± {_n(spread.get('std'))} "
-                     f"({_n(spread.get('min'))} to {_n(spread.get('max'))})"))
-    else:
-        rows.append(("Across seeds", "not measured"))
-    parts.append("<table>" + "".join(
-        f"<tr><td style='padding-right:12px'>{e(a)}</td><td><b>{e(b)}</b></td></tr>" for a, b in rows)
-        + f"</table><p style='margin-top:2px'>All scores: {word}.</p>")
+    # the numbers themselves head the sheet; here the check says what they mean
+    parts = [f"<p style='margin:6px 0 0 0'><b>Winner check</b> (trial {e(_n(summary.get('trial_number')))}, "
+             f"{word}, hold-out {e(_n(summary.get('holdout_score')))}).</p>"]
     comparison = (summary.get("cv_vs_holdout") or {}).get("text")
     if comparison:
-        parts.append(f"<p>{e(comparison)}</p>")
+        parts.append(f"<p style='margin:2px 0 0 0'>{e(comparison)}</p>")
     runner = summary.get("runner_up") or {}
     if runner.get("text"):
-        parts.append(f"<p>{e(runner['text'])}</p>")
+        parts.append(f"<p style='margin:2px 0 0 0'>{e(runner['text'])}</p>")
     for w in summary.get("warnings") or []:
-        parts.append(f"<p><b>⚠ {e(w)}</b></p>")
+        parts.append(f"<p style='margin:2px 0 0 0'><b>⚠ {e(w)}</b></p>")
     if summary.get("caution"):
-        parts.append(f"<p><i>{e(summary['caution'])}</i></p>")
+        parts.append(f"<p style='margin:2px 0 0 0'><i>{e(summary['caution'])}</i></p>")
     return "".join(parts)

@@ -74,7 +74,7 @@ def _trial(n, state, value, epochs=4, lr=0.01):
     return out
 
 
-def test_curves_are_styled_by_role_and_made_once(make_window):
+def test_band_lines_climb_and_ranges_follow_the_events(make_window):
     w = make_window()
     s = w.session
     events = [ev.SearchStarted("demo", "sqlite:///x.db", "accuracy", "maximize", 10, None, 0,
@@ -88,40 +88,42 @@ def test_curves_are_styled_by_role_and_made_once(make_window):
         s._on_event(e)
     assert s.view.refresh(s.book, s.book.take_changed(), None, theme.Theme.current()) is True
     drawn = [p for p in w.watch.panels[1:] if p._drawn is not None]
-    assert len(drawn) == 1 and len(w.watch.curves.curves) == 5
+    assert len(drawn) == 1
     s.flush()
     assert all(p._drawn is not None for p in w.watch.panels[1:])
-    curves = w.watch.curves.curves
-    assert sorted(curves) == [0, 1, 2, 3, 4]
-    first = curves[0]
-
-    def pen(n):
-        return curves[n].opts["pen"]
-
-    assert pen(0).color().name() == theme.state_colour("best").name()
-    assert pen(4).color().name() == theme.state_colour("running").name()
-    assert pen(1).style() == Qt.PenStyle.DashLine and pen(2).style() == Qt.PenStyle.DotLine
-    assert pen(3).style() == Qt.PenStyle.SolidLine and pen(3).widthF() < pen(0).widthF()
-    assert curves[4].zValue() > curves[0].zValue() > curves[3].zValue()
-    # more epochs of the running trial update the same curve
+    curves = w.watch.curves
+    # only the winner and the trial training now are lines; the rest live in the band
+    assert curves.shown == {"best": 0, "running": 4, "selected": None}
+    assert curves.lines["best"].opts["pen"].color().name() == theme.state_colour("best").name()
+    assert curves.lines["running"].opts["pen"].color().name() == theme.state_colour("running").name()
+    assert list(curves.lines["running"].getData()[1]) == pytest.approx([1.1 / e + 0.2 for e in (1, 2, 3)])
+    # more epochs of the running trial extend its line
     _feed(s, [ev.EpochScored(4, 4, 0.2, 0.3, 0.6, 4)])
-    assert w.watch.curves.curves[0] is first and len(curves[4].getData()[0]) == 4
-    # the score plot: finished trials only, the best-so-far line is insight's
-    assert len(w.watch.scores.dots.data) == 2
-    xs, ys = w.watch.scores.best_line.getData()
-    assert list(zip(xs, ys)) == [(float(n), b) for n, b in
-                                 insight.best_so_far([(0, 0.80), (3, 0.70)], "maximize")]
-    # one picture per searched setting; the log-scaled one is drawn at log10 of the value
-    plots = w.watch.settings_plot.plots
-    assert list(plots) == ["learning_rate", "activation"]
-    lr_x = sorted(plots["learning_rate"][1].data["x"])
-    assert lr_x == pytest.approx([-3.0, -2.0])
-    assert list(plots["activation"][1].data["x"]) == [0.0, 0.0]
+    assert len(curves.lines["running"].getData()[0]) == 4
+    # the climb: insight's best so far, a milestone only where the best changed
+    climb = w.watch.sheet.climb
+    assert list(zip(climb.milestones.data["x"], climb.milestones.data["y"])) == [(0.0, 0.80)]
+    xs, ys = climb.climb.getData()
+    levels = dict(insight.best_so_far([(0, 0.80), (3, 0.70)], "maximize"))
+    assert xs[0] == 0 and xs[-1] == 4              # the staircase reaches the latest trial
+    assert all(y == levels[0] for y in ys)
+    # one row per searched setting, named as the settings table names them
+    rows = w.watch.story.ranges.rows
+    assert [r.label for r in rows] == ["Learning rate", "Activation"]
+    lr = rows[0]
+    # learning rates tried: 0.01 (trials 0-2, 4) and 0.001 (trial 3), on a log track
+    assert lr.kind == "log" and sorted(lr.trials) == pytest.approx([0.0, 1.0])
+    # the best quarter of two finished trials is the better one (trial 0, 0.01 -> the top end)
+    assert lr.good == pytest.approx((1.0, 1.0)) and lr.winner == pytest.approx(1.0)
     # the table says the states in words and keeps every trial
     table = w.watch.table
     assert table.proxy.rowCount() == 5
-    table.filter_box.setCurrentText("failed or cancelled")
+    table.filter_box.setCurrentText("failed or stopped by you")
     assert table.proxy.rowCount() == 1
+    # the notebook: one entry per trial, newest first
+    book = w.watch.notebook
+    assert [book.list.item(i).data(Qt.ItemDataRole.UserRole + 7) for i in range(book.list.count())] == [4, 3, 2, 1, 0]
+    assert "winner so far" in book.items[0].text() and "stopped early" in book.items[1].text()
     # the progress line follows the Progress events
     _feed(s, [ev.Progress(4, 10, 30.0, 45.0)])
     assert w.watch.progress.format() == "4 / 10 trials" and "45 s" in w.watch.time_left.text()
@@ -137,8 +139,16 @@ def test_importance_waits_for_enough_trials_with_the_cores_message(make_window):
     values, message = core.importance(study)
     assert values == {} and message == insight.param_importance(study)["message"]
     w = make_window()
-    w.watch.importance.show_result(values, message)
-    w.session._drawn = None
-    w.session.flush()
-    shown = w.watch.importance.message
-    assert shown.isVisible() and shown.toPlainText().replace("\n", " ") == message
+    s = w.session
+    events = [ev.SearchStarted("demo", "sqlite:///x.db", "accuracy", "maximize", 10, None, 0,
+                               ("learning_rate",), ("learning_rate",))]
+    for n in range(3):
+        events += _trial(n, "complete", 0.5 + 0.1 * n, lr=10 ** -(n + 1))
+    _feed(s, events)
+    w.watch.importance.show_result({"learning_rate": 1.0}, message)
+    s._drawn = None
+    s.flush()
+    # below ten finished trials the page says it is too early, in its own words, and draws no share
+    note = w.watch.story.ranges.note
+    assert note.startswith("Too early to say which settings moved the score: 3 finished trials")
+    assert all(r.share is None for r in w.watch.story.ranges.rows)

@@ -41,14 +41,16 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     trials = study.get_trials()
     assert len(trials) == 4 and all(t.state.name == "COMPLETE" for t in trials)
 
-    # one curve per trial, holding the stored learning curve
-    curves = w.watch.curves.curves
-    assert sorted(curves) == [t.number for t in trials]
-    for t in trials:
-        x, y = curves[t.number].getData()
-        assert list(x) == t.user_attrs["curve"]["epoch"]
-        assert list(y) == pytest.approx(t.user_attrs["curve"]["val_loss"])
-    assert len(w.watch.scores.dots.data) == 4
+    # the band holds every stored learning curve; the winner's is drawn as a line
+    from labbench.gui.axes import loss_band
+
+    curves = w.watch.curves
+    stored = [t.user_attrs["curve"]["val_loss"] for t in trials]
+    for drawn, expected in zip(curves.band_data, loss_band(stored)):
+        assert list(drawn) == pytest.approx(list(expected))
+    x, y = curves.lines["best"].getData()
+    assert list(y) == pytest.approx(study_of(tmp_path / "orchard.db", "orchard").best_trial.user_attrs["curve"]["val_loss"])
+    assert sorted(w.watch.notebook.items) == [t.number for t in trials]
 
     # the best panel shows the winner as the storage has it
     best = study.best_trial
@@ -67,15 +69,16 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     # the table: every trial, sortable, filterable; picking a row highlights it in the plots
     table = w.watch.table
     assert table.proxy.rowCount() == 4
-    table.filter_box.setCurrentText("pruned")
+    table.filter_box.setCurrentText("stopped early")
     assert table.proxy.rowCount() == 0
     table.filter_box.setCurrentText("every state")
     table.select(trials[0].number)
     assert w.session.selected == trials[0].number
     w.session.flush()
-    pen = curves[trials[0].number].opts["pen"]
+    pen = curves.lines["selected"].opts["pen"]
     assert pen.color().name() == theme.state_colour("selected").name()
-    assert list(w.watch.scores.ring.data["x"]) == [trials[0].number]
+    assert curves.shown["selected"] == trials[0].number
+    assert w.watch.sheet.climb.picked_line.value() == trials[0].number
 
     # take the winner away
     pictures = w.take.export_pictures(str(tmp_path / "pics"))
@@ -149,7 +152,7 @@ def test_stop_mid_search_leaves_nothing_running_and_resumes(make_window, orchard
     qtbot.waitUntil(lambda: not again.session.running and again.session.synced, timeout=LONG)
     numbers = sorted(t.number for t in study_of(tmp_path / "long.db", "long").get_trials())
     assert numbers == list(range(before + 2))
-    assert sorted(again.watch.curves.curves) == numbers
+    assert sorted(again.watch.notebook.items) == numbers
 
     # and a third window can watch the storage file itself
     watcher = make_window("watch.ini")
@@ -157,7 +160,7 @@ def test_stop_mid_search_leaves_nothing_running_and_resumes(make_window, orchard
     qtbot.waitUntil(lambda: watcher.session.synced, timeout=LONG)
     assert sorted(watcher.session.book.records) == numbers
     watcher.session.flush()
-    assert sorted(watcher.watch.curves.curves) == numbers
+    assert sorted(watcher.watch.notebook.items) == numbers
 
 
 def test_closing_during_a_search_asks_then_stops_cleanly(make_window, dialogs, orchard_csv, tmp_path, qtbot):
@@ -173,6 +176,6 @@ def test_closing_during_a_search_asks_then_stops_cleanly(make_window, dialogs, o
     w.close()
     assert len(dialogs.texts("question")) == 2
     qtbot.waitUntil(lambda: not w.isVisible(), timeout=LONG)
-    assert not w.session.running
+    qtbot.waitUntil(lambda: not w.session.running, timeout=LONG)     # the search winds down after
     states = [t.state.name for t in study_of(tmp_path / "closing.db", "closing").get_trials()]
     assert states and "RUNNING" not in states
