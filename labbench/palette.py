@@ -61,15 +61,6 @@ DARK = {
     "milestone": "#8fe0b6",
 }
 
-# What each trial state is called on screen and in the report (labbench's own words).
-STATE_WORDS = {
-    "running": "training",
-    "complete": "finished",
-    "pruned": "stopped early",
-    "failed": "failed",
-    "cancelled": "stopped by you",
-    "waiting": "queued",
-}
 
 
 def colours(dark: bool = False) -> dict:

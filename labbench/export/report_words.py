@@ -12,14 +12,8 @@ from typing import Any, Iterable, Mapping
 
 from labbench.numbers import number
 
-# labbench's own words for the trial states (the window uses the same)
-try:
-    from labbench.palette import STATE_WORDS as _SHARED_WORDS
-except ImportError:  # pragma: no cover - before labbench/palette.py lands
-    _SHARED_WORDS = {}
-STATE_WORDS = {"complete": "finished", "pruned": "stopped early", "failed": "failed",
-               "cancelled": "stopped by you", "running": "training", "waiting": "queued",
-               **_SHARED_WORDS}
+# labbench's own words for the trial states (one table: labbench.search.states)
+from labbench.search.states import WORDS as STATE_WORDS  # noqa: E402
 STATE_ORDER = ("complete", "pruned", "failed", "cancelled", "running", "waiting")
 CANCELLED_REASON = "cancelled by the user"      # labbench.search.bookkeeping.CANCELLED
 

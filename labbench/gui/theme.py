@@ -16,7 +16,8 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPalette, QPixmap
 from PySide6.QtSvg import QSvgRenderer
 from PySide6.QtWidgets import QApplication
 
-from labbench.palette import DARK, LIGHT, STATE_WORDS  # noqa: F401  (STATE_WORDS: the states in words)
+from labbench.palette import DARK, LIGHT
+from labbench.search.states import WORDS as STATE_WORDS  # noqa: F401  (the one table of state words)
 
 RESOURCES = Path(__file__).resolve().parents[2] / "resources"
 

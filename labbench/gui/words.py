@@ -8,7 +8,7 @@ from __future__ import annotations
 import math
 from typing import Any, Mapping
 
-from labbench.palette import STATE_WORDS
+from labbench.search.states import WORDS as STATE_WORDS
 
 
 def num(v: Any, digits: int = 4) -> str:

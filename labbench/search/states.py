@@ -25,8 +25,8 @@ CANCELLED = "cancelled by the user"        # the end reason stored for a cancell
 
 KEY_OF_OPTUNA = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
                  "RUNNING": "running", "WAITING": "waiting"}
-WORDS = {"complete": "finished", "pruned": "pruned", "failed": "failed",
-         "cancelled": "cancelled", "running": "training", "waiting": "queued"}
+WORDS = {"complete": "finished", "pruned": "stopped early", "failed": "failed",
+         "cancelled": "stopped by you", "running": "training", "waiting": "queued"}
 MEANINGS = {
     "complete": "trained on every fold; its cross-validated score counts",
     "pruned": "stopped by the pruner: its validation loss was behind the other trials at the "
