@@ -88,8 +88,15 @@ def test_a_wheel_carries_the_resources_and_runs_the_demo(tmp_path):
     wheel = next((tmp_path / "dist").glob("labbench-*.whl"))
 
     env_dir = tmp_path / "venv"
-    venv.EnvBuilder(system_site_packages=True, with_pip=False).create(env_dir)
+    # The dependencies come from this interpreter's site-packages, added as a plain path: with
+    # system_site_packages=True the venv would also run that folder's .pth files, and an editable
+    # install of labbench (`pip install -e .`, as CI does) puts an import hook there that would
+    # shadow the wheel.
+    venv.EnvBuilder(system_site_packages=False, with_pip=False).create(env_dir)
     python = env_dir / "bin" / "python"
+    purelib = _run([str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"])
+    deps = [p for p in sys.path if p.endswith("site-packages") and "__editable__" not in p]
+    Path(purelib.strip(), "_labbench_test_deps.pth").write_text("\n".join(deps) + "\n")
     _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--no-deps", "--no-index",
           "--quiet", str(wheel)])
 

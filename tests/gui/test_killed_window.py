@@ -54,6 +54,7 @@ def test_killing_the_window_leaves_no_running_trial(tmp_path, orchard_csv):
         pruner = "none"
         [space]
         epochs = 500
+        patience = 0
         hidden_units = 8
     """), encoding="utf-8")
     script = tmp_path / "window.py"

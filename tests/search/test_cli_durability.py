@@ -23,6 +23,7 @@ learning_rate = { low = 0.001, high = 0.01, log = true }
 hidden_layers = 1
 hidden_units = 8
 epochs = 4000
+patience = 0
 batch_size = 8
 """
 

@@ -208,7 +208,7 @@ def test_holdout_rows_never_reach_any_trial(tmp_path):
 def test_cancel_from_another_thread_ends_the_trial_as_failed(tmp_path):
     iris_csv(tmp_path)
     space = "learning_rate = { low = 0.001, high = 0.01 }\nhidden_layers = 1\nhidden_units = 8\n" \
-            "epochs = 100000\nbatch_size = 8"
+            "epochs = 100000\npatience = 0\nbatch_size = 8"
     spec = write_spec(tmp_path, trials=5, space=space, workers=2)
     db = tmp_path / "s.db"
     cancel = threading.Event()
