@@ -16,10 +16,11 @@ from PySide6.QtGui import QColor, QIcon, QPainter, QPalette, QPixmap
 from PySide6.QtSvg import QSvgRenderer
 from PySide6.QtWidgets import QApplication
 
+from labbench.assets import resource_dir
 from labbench.palette import DARK, LIGHT
 from labbench.search.states import WORDS as STATE_WORDS  # noqa: F401  (the one table of state words)
 
-RESOURCES = Path(__file__).resolve().parents[2] / "resources"
+RESOURCES = resource_dir()        # the checkout's resources/, or the installed package's copy
 
 # name -> (light-palette colour, dark-palette colour), from labbench.palette (shared with the report)
 _STATE_COLOURS = {name: (LIGHT[name], DARK[name]) for name in
