@@ -14,7 +14,7 @@ from labbench.search.storage import LABBENCH_FORMAT, plain, versions
 from labbench.search.strategy import intermediate_sign
 
 CANCELLED = "cancelled by the user"
-LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
+from labbench.search.orphans import LOST  # noqa: E402,F401  (defined where trials are claimed)
 STATE_NAMES = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
                "RUNNING": "running", "WAITING": "waiting"}
 

@@ -32,6 +32,9 @@ log = logging.getLogger("labbench.search.orphans")
 OWNER_KEY = "labbench_owner"
 #: A trial whose worker or process was killed is tried again this many times (same settings).
 RETRIES = 1
+#: The end reason a trial carries from its claim until it ends properly (a trial that is reclaimed
+#: keeps it: its process stopped).
+LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
 
 
 def _read(path: str) -> str:
@@ -122,8 +125,6 @@ def claiming_storage_class():
             """First heartbeat, owner and a default end reason, in one transaction."""
             from optuna.storages._rdb import models
             from optuna.storages._rdb.storage import _create_scoped_session
-
-            from labbench.search.bookkeeping import LOST
 
             try:
                 with _create_scoped_session(self.scoped_session) as session:
