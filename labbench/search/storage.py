@@ -27,8 +27,9 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from labbench.errors import SpecError
-from labbench.search.trialstore import (HeartbeatThread, write_intermediate_values,  # noqa: F401
-                                        write_study_attrs, write_user_attrs)
+from labbench.search.optuna_adapter import (write_intermediate_values,  # noqa: F401
+                                            write_study_attrs, write_user_attrs)
+from labbench.search.trialstore import HeartbeatThread  # noqa: F401
 from labbench.search.urls import (_check_url, default_url, mask_password_text,  # noqa: F401
                                   mask_url, resolve_url)
 
@@ -190,8 +191,7 @@ JOIN_WAIT_S = 10.0
 def _running(study) -> int:
     from optuna.trial import TrialState
 
-    return len(study._storage.get_all_trials(study._study_id, deepcopy=False,
-                                             states=(TrialState.RUNNING,)))
+    return len(study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)))
 
 
 def _advice(study) -> str:
@@ -210,7 +210,7 @@ def check_resumable(study, expected: Mapping[str, Any], url: str) -> None:
     stored = study.user_attrs
     shown = mask_url(url)
     if stored.get("labbench_format") is None:
-        if study._storage.get_all_trials(study._study_id, deepcopy=False):
+        if study.get_trials(deepcopy=False):
             how = "give another [search] name or storage (--storage / [search] storage)"
         else:
             how = ("give another [search] name or storage (--storage / [search] storage); if it "
@@ -244,9 +244,8 @@ def _wait_for_creator(study) -> None:
     """A study without labbench attrs and without trials may be one another process has just
     created: wait (up to ``JOIN_WAIT_S``) for its attrs, which it writes in one transaction."""
     end = time.monotonic() + JOIN_WAIT_S
-    storage = study._storage
-    while "labbench_format" not in storage.get_study_user_attrs(study._study_id):
-        if storage.get_all_trials(study._study_id, deepcopy=False) or time.monotonic() > end:
+    while "labbench_format" not in study.user_attrs:
+        if study.get_trials(deepcopy=False) or time.monotonic() > end:
             return
         time.sleep(0.2)
 

@@ -16,6 +16,7 @@ import math
 from typing import Any
 
 from labbench.errors import SpecError
+from labbench.search.optuna_adapter import grid_points_started, prune_decision
 
 log = logging.getLogger("labbench.search.strategy")
 
@@ -64,15 +65,7 @@ def _grid_sampler(grid: dict, seed: int):
         def all_started(self, study) -> bool:
             """Every grid point has a trial (running or finished). Optuna's ``is_exhausted``
             counts running points as open, which would repeat a point queued behind another."""
-            from optuna.trial import TrialState
-
-            started = {
-                t.system_attrs["grid_id"]
-                for t in study._storage.get_all_trials(study._study_id, deepcopy=False)
-                if "grid_id" in t.system_attrs and t.state != TrialState.WAITING
-                and self._same_search_space(t.system_attrs["search_space"])
-            }
-            return len(started) >= self._n_min_trials
+            return grid_points_started(self, study)
 
     return AskTellGridSampler(grid, seed=seed)
 
@@ -178,7 +171,7 @@ class PruneCheck:
             return self._complete
         return self.study.get_trials(deepcopy=deepcopy, states=states)
 
-    def __getattr__(self, name: str):          # direction, study_name, _storage, ...
+    def __getattr__(self, name: str):          # direction, study_name, the storage ...
         return getattr(self.study, name)
 
     def __call__(self, trial, epoch: int, max_epochs: int | None = None) -> bool:
@@ -186,7 +179,7 @@ class PruneCheck:
         if not self.enabled or epoch < warmup:
             return False
         if self.cached:
-            return bool(self.pruner.prune(self, trial._get_latest_trial()))
+            return prune_decision(self.pruner, self, trial)
         return bool(trial.should_prune())
 
 
