@@ -19,6 +19,9 @@ import json
 import logging
 from typing import Any, Callable, Mapping
 
+# optuna is imported inside the functions: ≈1 s (python -X importtime), and labbench.search.storage
+# (imported by the window for its URL and heartbeat helpers) imports this module.
+
 log = logging.getLogger("labbench.search.optuna_adapter")
 
 

@@ -30,6 +30,9 @@ from labbench.search.optuna_adapter import (claim_trial, rdb_backend, running_he
                                             starting_storage_class, study_id, study_storage,
                                             trial_id)
 
+# optuna is imported inside the functions: ≈1 s (python -X importtime), and labbench.search.storage
+# (imported by the window for its URL and heartbeat helpers) imports this module.
+
 log = logging.getLogger("labbench.search.orphans")
 
 OWNER_KEY = "labbench_owner"

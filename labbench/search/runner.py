@@ -35,6 +35,10 @@ import threading
 import time
 from typing import Any, Mapping
 
+import optuna
+from optuna.exceptions import UpdateFinishedTrialError
+from optuna.trial import TrialState
+
 from labbench import errors
 from labbench.errors import LabbenchError, SpecError
 from labbench.search import events as ev
@@ -43,11 +47,13 @@ from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight,
 from labbench.search.objective import curve_attr, cv_summary, one_line
 from labbench.search.optuna_adapter import note_intermediate_value, trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
+from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
                                      open_study, plain, resolve_url, write_intermediate_values,
                                      write_user_attrs)
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
+from labbench.search.workers import WorkerPool
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
@@ -86,9 +92,6 @@ class SearchRunner:
     # setup
 
     def run(self, cancel: threading.Event | None = None) -> SearchOutcome:
-        from labbench.search.prepare import prepare
-        from labbench.search.workers import WorkerPool
-
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
@@ -172,8 +175,6 @@ class SearchRunner:
     def _nothing_searched(self, existing) -> str:
         """With every setting fixed, more than one trial would train the same model again: the
         budget becomes one trial (none when one is already complete); returns the notice."""
-        from optuna.trial import TrialState
-
         if self.spec.space.searched_params():
             return ""
         done = any(t.state == TrialState.COMPLETE for t in existing)
@@ -260,8 +261,6 @@ class SearchRunner:
         return self._elapsed() + typical < 60.0 * self.minutes
 
     def _start_trial(self, slot) -> None:
-        import optuna
-
         now = time.monotonic()
         if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
             self.beats.beat_now()
@@ -383,8 +382,6 @@ class SearchRunner:
         flight.unsaved.append((step, value))
         now = time.monotonic()
         if now - flight.saved_at >= SAVE_EVERY_S:
-            from optuna.exceptions import UpdateFinishedTrialError
-
             flight.saved_at = now
             try:
                 self._save_values(flight)
@@ -427,9 +424,6 @@ class SearchRunner:
     def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
                 reason: str = "", fold_scores=(), epochs_run: int | None = None,
                 best_epoch: int | None = None) -> None:
-        from optuna.exceptions import UpdateFinishedTrialError
-        from optuna.trial import TrialState
-
         trial = flight.trial
         duration = time.monotonic() - flight.started if flight.training else 0.0
         points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]

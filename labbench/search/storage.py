@@ -19,19 +19,26 @@ from __future__ import annotations
 import logging
 import os
 import platform
+import random
 import re
 import time
 import warnings
 from dataclasses import dataclass
+from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any, Mapping
 
 from labbench.errors import SpecError
 from labbench.search.optuna_adapter import (write_intermediate_values,  # noqa: F401
                                             write_study_attrs, write_user_attrs)
+from labbench.search.orphans import RETRIES, claiming_storage_class, reclaim_orphans
 from labbench.search.trialstore import HeartbeatThread  # noqa: F401
 from labbench.search.urls import (_check_url, default_url, mask_password_text,  # noqa: F401
                                   mask_url, resolve_url)
+
+# optuna and sqlalchemy are imported inside the functions that use them: ≈1 s each (python -X
+# importtime, this machine), and the window imports this module for URL and heartbeat helpers
+# long before it opens a database.
 
 log = logging.getLogger("labbench.search.storage")
 
@@ -94,8 +101,6 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
     import optuna
     from optuna.storages import RetryHeartbeatStaleTrialCallback
 
-    from labbench.search.orphans import RETRIES, claiming_storage_class
-
     heartbeat = heartbeat or Heartbeat.from_env()
     quiet_optuna_warnings()
     shown = mask_url(url)
@@ -133,8 +138,6 @@ def _first_open(make, attempts: int = 4):
     """Several processes opening a new database at once race to create Optuna's tables (seen on
     PostgreSQL as a duplicate key in pg_type, or "relation ... already exists"): the losers try
     again once the tables are there."""
-    import random
-
     import sqlalchemy.exc
 
     for attempt in range(attempts):
@@ -253,8 +256,6 @@ def _wait_for_creator(study) -> None:
 def _delete_unless_busy(storage, name: str, url: str) -> None:
     import optuna
 
-    from labbench.search.orphans import reclaim_orphans
-
     study = optuna.load_study(study_name=name, storage=storage)
     reclaim_orphans(study)                   # trials of dead processes do not count as busy
     running = _running(study)
@@ -326,8 +327,6 @@ def open_study(
 
 def versions() -> dict[str, str]:
     """Package versions stored with a study (what it takes to reproduce a trial)."""
-    from importlib.metadata import PackageNotFoundError, version
-
     out = {"python": platform.python_version(), "platform": platform.platform(terse=True)}
     for package in ("labbench", "numpy", "pandas", "optuna", "sqlalchemy", "scipy"):
         try:

@@ -12,16 +12,19 @@ from __future__ import annotations
 from pathlib import Path
 
 from labbench.errors import SpecError
+from labbench.search.spec import load_spec
+from labbench.search.storage import quiet_optuna_warnings
 from labbench.search.storage_problems import first_line, storage_error
+from labbench.search.strategy import route_optuna_logging
 from labbench.search.urls import mask_url, resolve_url
+
+# optuna is imported inside the functions: ≈1 s (python -X importtime), and `labbench --help`
+# imports this module through labbench.search.commands.
 
 
 def read_storage(url: str):
     """An Optuna RDB storage at ``url`` for reading (no table creation, no heartbeat)."""
     import optuna
-
-    from labbench.search.storage import quiet_optuna_warnings
-    from labbench.search.strategy import route_optuna_logging
 
     route_optuna_logging()
     quiet_optuna_warnings()
@@ -67,8 +70,6 @@ def open_for_reading(source: str, study: str | None, storage: str | None):
     if "://" in source:
         url, name = source, study
     else:
-        from labbench.search.spec import load_spec
-
         spec = load_spec(source)
         url, name = resolve_url(spec, storage), study or spec.study_name()
     shown = mask_url(url)

@@ -13,10 +13,16 @@ from __future__ import annotations
 import importlib.util
 import logging
 import math
+import time
 from typing import Any
 
 from labbench.errors import SpecError
 from labbench.search.optuna_adapter import grid_points_started, prune_decision
+from labbench.search.space import Choices, Fixed, IntRange
+from labbench.search.storage import quiet_optuna_warnings
+
+# optuna is imported inside the functions: ≈1 s (python -X importtime); the spec reader and the
+# window use the warm-up rules here without a search.
 
 log = logging.getLogger("labbench.search.strategy")
 
@@ -78,8 +84,6 @@ def _needs(spec: Any, module: str, sampler: str) -> None:
 
 def epoch_range(spec: Any) -> tuple[int, int]:
     """(fewest, most) epochs a trial of this space can train."""
-    from labbench.search.space import Choices, Fixed, IntRange
-
     s = spec.space["epochs"]
     if isinstance(s, Fixed):
         return int(s.value), int(s.value)
@@ -160,8 +164,6 @@ class PruneCheck:
         self._complete = None
 
     def get_trials(self, deepcopy: bool = False, states=None):
-        import time
-
         from optuna.trial import TrialState
 
         if states is not None and tuple(states) == (TrialState.COMPLETE,) and not deepcopy:
@@ -196,8 +198,6 @@ def route_optuna_logging() -> None:
     attached to "labbench" receives them.
     """
     import optuna
-
-    from labbench.search.storage import quiet_optuna_warnings
 
     optuna.logging.disable_default_handler()
     optuna.logging.enable_propagation()
