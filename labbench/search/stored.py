@@ -60,6 +60,8 @@ def load_stored(url: str, name: str):
     except KeyError:
         raise SpecError(f"storage {mask_url(url)}: no search named '{name}' is stored "
                         "there yet") from None
+    except Exception as exc:
+        raise _unreadable(exc, mask_url(url)) from None
 
 
 def open_for_reading(source: str, study: str | None, storage: str | None):
