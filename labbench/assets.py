@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import filecmp
 import logging
+import os
 import shutil
 import sys
 from pathlib import Path
@@ -86,8 +87,6 @@ def demo_to_open(name: str = DEFAULT_DEMO) -> Path:
     """The demo spec ``labbench --demo`` opens: the one in place when its folder is writable (a
     checkout, a virtual environment), else a copy in ``~/labbench_demo`` (a read-only install),
     since a search writes its database and output folder beside its spec."""
-    import os
-
     if os.access(demo_dir(), os.W_OK):
         return demo_path(name)
     copy_demo(Path.home() / "labbench_demo")

@@ -19,9 +19,12 @@ from __future__ import annotations
 import argparse
 import importlib
 import logging
+import signal
 import sys
+import threading
 
 from labbench import __version__
+from labbench.assets import demo_to_open
 from labbench.errors import LabbenchError
 
 EXIT_OK = 0
@@ -88,9 +91,6 @@ def _terminate(signum, frame) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    import signal
-    import threading
-
     saved = None                     # the window keeps the default SIGTERM behaviour
     argv = list(sys.argv[1:] if argv is None else argv)
     subcommand = next((a for a in argv if not a.startswith("-")), None) in _SUBCOMMANDS
@@ -121,8 +121,6 @@ def _main(argv: list[str] | None = None) -> int:
         from labbench.gui.app import run_app  # Qt is loaded only here
 
         if args.demo:      # found through labbench.assets: also from an installed wheel
-            from labbench.assets import demo_to_open
-
             return int(run_app(spec=str(demo_to_open()), demo=False))
         return int(run_app(spec=args.spec, demo=args.demo))
     except LabbenchError as exc:

@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import sys
 
+from labbench.export.predict import predict_file
+from labbench.export.report import write_report
+
 
 def add_parser(subparsers) -> None:
     predict = subparsers.add_parser(
@@ -38,7 +41,6 @@ def add_parser(subparsers) -> None:
 
 
 def predict_command(args) -> int:
-    from labbench.export.predict import predict_file
 
     path, rows = predict_file(args.bundle, args.data, args.out)
     print(f"wrote {rows} prediction(s) to {path}", file=sys.stdout)
@@ -46,7 +48,6 @@ def predict_command(args) -> int:
 
 
 def report_command(args) -> int:
-    from labbench.export.report import write_report
 
     path = write_report(args.source, args.out, study=args.study)
     print(f"wrote the report to {path}", file=sys.stdout)

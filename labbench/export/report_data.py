@@ -141,7 +141,7 @@ def collect(source: Any, study: str | None = None) -> ReportData:
     if hasattr(source, "get_trials") and hasattr(source, "study_name"):
         opened, shown = source, "(a search opened in Python)"
     else:
-        from labbench.search.commands import open_for_reading
+        from labbench.search.stored import open_for_reading
 
         opened, shown = open_for_reading(str(source), study, None)
         shown = mask_url(shown)

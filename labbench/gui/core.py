@@ -85,8 +85,9 @@ def importance_of(url: str, name: str) -> tuple[dict[str, float], str]:
 
     route_optuna_logging()
     quiet_optuna_warnings()
-    storage = optuna.storages.RDBStorage(url, skip_table_creation=True)
-    return importance(optuna.load_study(study_name=name, storage=storage))
+    from labbench.search.stored import read_storage
+
+    return importance(optuna.load_study(study_name=name, storage=read_storage(url)))
 
 
 def importance(study) -> tuple[dict[str, float], str]:

@@ -62,7 +62,9 @@ class _Studies:
             from labbench.errors import SpecError
             from labbench.search.storage import mask_url
 
-            storage = optuna.storages.RDBStorage(url, skip_table_creation=True)
+            from labbench.search.stored import read_storage
+
+            storage = read_storage(url)
             try:
                 self.cache[key] = optuna.load_study(study_name=name, storage=storage)
             except KeyError:

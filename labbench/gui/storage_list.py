@@ -18,7 +18,9 @@ def study_names(url: str) -> list[str]:
         raise SpecError(f"{url!r} is not a database URL; write e.g. sqlite:///search.db or "
                         "postgresql+psycopg://user@host/db")
     try:
-        storage = optuna.storages.RDBStorage(url, skip_table_creation=True)
+        from labbench.search.stored import read_storage
+
+        storage = read_storage(url)
         return sorted(optuna.get_all_study_names(storage=storage))
     except Exception as exc:
         first = (str(exc).strip().splitlines() or [type(exc).__name__])[0]

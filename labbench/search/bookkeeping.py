@@ -13,9 +13,9 @@ from labbench.errors import SpecError
 from labbench.search import ranking, states
 from labbench.search.states import CANCELLED
 from labbench.search.storage import LABBENCH_FORMAT, plain, versions
+from labbench.search.orphans import LOST  # noqa: F401  (defined where trials are claimed)
 from labbench.search.strategy import intermediate_sign
 
-LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
 STATE_NAMES = states.KEY_OF_OPTUNA      # Optuna state name -> labbench key (labbench.search.states)
 
 

@@ -22,6 +22,7 @@ from labbench.errors import SpecError
 from labbench.numbers import duration, number, percent, setting
 from labbench.search import states
 from labbench.search.ending import OUTPUT_NAMES, out_dir
+from labbench.search.stored import open_for_reading  # noqa: F401  (also used by tests)
 
 log = logging.getLogger("labbench.search.commands")
 
@@ -291,49 +292,6 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
 # show
 
 
-def open_for_reading(source: str, study: str | None, storage: str | None):
-    """Open a stored search from a spec path or a database URL (``show``, ``report``, the window)."""
-    import optuna
-
-    from labbench.search.storage import mask_url, quiet_optuna_warnings, resolve_url
-    from labbench.search.strategy import route_optuna_logging
-
-    route_optuna_logging()
-    quiet_optuna_warnings()
-    if "://" in source:
-        url, name = source, study
-    else:
-        from labbench.search.spec import load_spec
-
-        spec = load_spec(source)
-        url, name = resolve_url(spec, storage), study or spec.study_name()
-    shown = mask_url(url)
-    if url.startswith("sqlite") and "///" in url:
-        path = url.split("///", 1)[1]
-        if path and not path.startswith(":memory:") and not Path(path).exists():
-            raise SpecError(f"storage {shown}: no search is stored there yet; run "
-                            f"`labbench run {source}` first")
-    try:
-        rdb = optuna.storages.RDBStorage(url, skip_table_creation=True)
-        names = [s.study_name for s in optuna.get_all_study_summaries(storage=rdb,
-                                                                      include_best_trial=False)]
-    except Exception as exc:
-        from labbench.search.storage_problems import first_line, storage_error
-
-        error = storage_error(exc, shown)
-        if isinstance(error, SpecError):
-            raise error from None
-        raise SpecError(f"storage {shown}: cannot read it ({first_line(exc)}); check the URL") \
-            from None
-    if name is None:
-        if len(names) != 1:
-            raise SpecError(f"storage {shown}: holds {len(names)} searches "
-                            f"({', '.join(names) or 'none'}); choose one with --study NAME")
-        name = names[0]
-    if name not in names:
-        raise SpecError(f"storage {shown}: no search named '{name}' (stored: "
-                        f"{', '.join(names) or 'none'}); run `labbench run` first or pick --study")
-    return optuna.load_study(study_name=name, storage=rdb), shown
 
 
 def param_label(name: str) -> str:

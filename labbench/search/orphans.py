@@ -20,18 +20,27 @@ grace period. Every reclaimed trial gets a one-line ``end_reason``.
 from __future__ import annotations
 
 import functools
-import json
 import logging
 import os
 import socket
-from datetime import datetime, timedelta
+from datetime import timedelta
 from typing import Any, Mapping
+
+from labbench.search.optuna_adapter import (claim_trial, rdb_backend, running_heartbeats,
+                                            starting_storage_class, study_id, study_storage,
+                                            trial_id)
+
+# optuna is imported inside the functions: ≈1 s (python -X importtime), and labbench.search.storage
+# (imported by the window for its URL and heartbeat helpers) imports this module.
 
 log = logging.getLogger("labbench.search.orphans")
 
 OWNER_KEY = "labbench_owner"
 #: A trial whose worker or process was killed is tried again this many times (same settings).
 RETRIES = 1
+#: The end reason a trial carries from its claim until it ends properly (a trial that is reclaimed
+#: keeps it: its process stopped).
+LOST = "the process running this trial stopped before it finished (no heartbeat); it is retried"
 
 
 def _read(path: str) -> str:
@@ -101,90 +110,35 @@ def owner_is_dead(owner: Any) -> bool:
 
 def claiming_storage_class():
     """``RDBStorage`` that claims every trial it starts (see the module text)."""
-    from optuna.storages import RDBStorage
-    from optuna.trial import TrialState
-
-    class ClaimingStorage(RDBStorage):
-        def _create_new_trial(self, study_id, template_trial=None):
-            # (Optuna's cached storage calls this one; ``create_new_trial`` goes through it too)
-            frozen = super()._create_new_trial(study_id, template_trial)
-            if template_trial is None or template_trial.state == TrialState.RUNNING:
-                self.claim(frozen._trial_id)
-            return frozen
-
-        def set_trial_state_values(self, trial_id, state, values=None):
-            changed = super().set_trial_state_values(trial_id, state, values)
-            if changed and state == TrialState.RUNNING:   # a queued trial taken over
-                self.claim(trial_id)
-            return changed
-
-        def claim(self, trial_id: int) -> None:
-            """First heartbeat, owner and a default end reason, in one transaction."""
-            from optuna.storages._rdb import models
-            from optuna.storages._rdb.storage import _create_scoped_session
-
-            from labbench.search.bookkeeping import LOST
-
-            try:
-                with _create_scoped_session(self.scoped_session) as session:
-                    session.add(models.TrialHeartbeatModel(trial_id=trial_id))
-                    _upsert(session, models.TrialSystemAttributeModel, trial_id,
-                            {OWNER_KEY: me()})
-                    _upsert(session, models.TrialUserAttributeModel, trial_id,
-                            {"end_reason": LOST})
-            except Exception as exc:  # e.g. a heartbeat row exists already: fall back
-                log.debug("claim in one go failed (%s); per call", exc)
-                self.record_heartbeat(trial_id)
-                self.set_trial_system_attr(trial_id, OWNER_KEY, me())
-                self.set_trial_user_attr(trial_id, "end_reason", LOST)
-
-    return ClaimingStorage
+    return starting_storage_class(claim)
 
 
-def _upsert(session, model, trial_id: int, attrs: Mapping[str, Any]) -> None:
-    existing = {a.key: a for a in model.where_trial_id(trial_id, session)}
-    for key, value in attrs.items():
-        text = json.dumps(value)
-        if key in existing:
-            existing[key].value_json = text
-        else:
-            session.add(model(trial_id=trial_id, key=key, value_json=text))
+def claim(storage, tid: int) -> None:
+    """First heartbeat, owner and a default end reason of a trial, in one transaction."""
+    try:
+        claim_trial(storage, tid, {OWNER_KEY: me()}, {"end_reason": LOST})
+    except Exception as exc:  # e.g. a heartbeat row exists already: fall back
+        log.debug("claim in one go failed (%s); per call", exc)
+        storage.record_heartbeat(tid)
+        storage.set_trial_system_attr(tid, OWNER_KEY, me())
+        storage.set_trial_user_attr(tid, "end_reason", LOST)
 
 
 # --------------------------------------------------------------------------------------------
 # Reclaiming
 
 
-def _heartbeats(backend, study_id: int) -> tuple[dict[int, datetime], datetime]:
-    """Last heartbeat of every RUNNING trial of the study, and the database's clock."""
-    import sqlalchemy
-    from optuna.storages._rdb import models
-    from optuna.storages._rdb.storage import _create_scoped_session
-    from optuna.trial import TrialState
-
-    with _create_scoped_session(backend.scoped_session) as session:
-        now = session.execute(sqlalchemy.func.now()).scalar()
-        rows = (session.query(models.TrialHeartbeatModel.trial_id,
-                              models.TrialHeartbeatModel.heartbeat)
-                .join(models.TrialModel,
-                      models.TrialModel.trial_id == models.TrialHeartbeatModel.trial_id)
-                .filter(models.TrialModel.study_id == study_id)
-                .filter(models.TrialModel.state == TrialState.RUNNING).all())
-    return {int(tid): beat for tid, beat in rows}, now.replace(tzinfo=None)
-
-
 def orphans(study) -> list[tuple[Any, str]]:
     """(frozen trial, reason) of every RUNNING trial of the study that can be reclaimed now."""
     from optuna.trial import TrialState
 
-    storage = study._storage
-    backend = getattr(storage, "_backend", storage)
-    if not hasattr(backend, "scoped_session"):
+    backend = rdb_backend(study_storage(study))
+    if backend is None:
         return []
-    running = backend.get_all_trials(study._study_id, deepcopy=False, states=(TrialState.RUNNING,))
+    running = study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
     if not running:
         return []
-    beats, now = _heartbeats(backend, study._study_id)
+    beats, now = running_heartbeats(backend, study_id(study))
     grace = timedelta(seconds=int(getattr(backend, "grace_period", None) or 120))
     found = []
     for trial in running:
@@ -192,7 +146,7 @@ def orphans(study) -> list[tuple[Any, str]]:
         if owner_is_dead(owner):
             found.append((trial, f"the process running it ({owner_text(owner)}) ended before "
                                  "the trial finished; it is retried"))
-        elif (trial._trial_id not in beats and owner is None and trial.datetime_start is not None
+        elif (trial_id(trial) not in beats and owner is None and trial.datetime_start is not None
               and now - trial.datetime_start.replace(tzinfo=None) > grace):
             found.append((trial, "the process that started it never recorded a heartbeat "
                                  "(it stopped or is not labbench); it is retried"))
@@ -206,24 +160,24 @@ def fail_and_retry(study, trial, reason: str) -> bool:
     from optuna.exceptions import UpdateFinishedTrialError
     from optuna.trial import TrialState
 
-    storage = study._storage
+    storage, tid = study_storage(study), trial_id(trial)
     try:
-        storage.set_trial_user_attr(trial._trial_id, "end_reason", reason)
-        if not storage.set_trial_state_values(trial._trial_id, state=TrialState.FAIL):
+        storage.set_trial_user_attr(tid, "end_reason", reason)
+        if not storage.set_trial_state_values(tid, state=TrialState.FAIL):
             return False
     except UpdateFinishedTrialError:
         return False
     retry = getattr(storage, "get_heartbeat_stale_trial_callback", lambda: None)()
     if retry is not None:
-        retry(study, storage.get_trial(trial._trial_id))
+        retry(study, storage.get_trial(tid))
     return True
 
 
-def retry_later(study, trial_id: int, *, queue: bool = False) -> bool:
+def retry_later(study, tid: int, *, queue: bool = False) -> bool:
     """Whether a failed trial is within its ``RETRIES`` retries; with ``queue`` (once it is
     FAIL), queue the copy with the same settings through the storage's retry callback."""
-    storage = study._storage
-    trial = storage.get_trial(trial_id)
+    storage = study_storage(study)
+    trial = storage.get_trial(tid)
     if len(trial.system_attrs.get("retry_history", ())) >= RETRIES:
         return False
     retry = getattr(storage, "get_heartbeat_stale_trial_callback", lambda: None)()

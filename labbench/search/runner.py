@@ -35,6 +35,10 @@ import threading
 import time
 from typing import Any, Mapping
 
+import optuna
+from optuna.exceptions import UpdateFinishedTrialError
+from optuna.trial import TrialState
+
 from labbench import errors
 from labbench.errors import LabbenchError, SpecError
 from labbench.search import events as ev
@@ -42,12 +46,15 @@ from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight,
                                          best_of, count_states, eta, positive, study_attrs)
 from labbench.search.states import key_of
 from labbench.search.objective import curve_attr, cv_summary, one_line
+from labbench.search.optuna_adapter import note_intermediate_value, trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
+from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
                                      open_study, plain, resolve_url, write_intermediate_values,
                                      write_user_attrs)
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
+from labbench.search.workers import WorkerPool
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
@@ -86,9 +93,6 @@ class SearchRunner:
     # setup
 
     def run(self, cancel: threading.Event | None = None) -> SearchOutcome:
-        from labbench.search.prepare import prepare
-        from labbench.search.workers import WorkerPool
-
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
@@ -172,8 +176,6 @@ class SearchRunner:
     def _nothing_searched(self, existing) -> str:
         """With every setting fixed, more than one trial would train the same model again: the
         budget becomes one trial (none when one is already complete); returns the notice."""
-        from optuna.trial import TrialState
-
         if self.spec.space.searched_params():
             return ""
         done = any(t.state == TrialState.COMPLETE for t in existing)
@@ -260,8 +262,6 @@ class SearchRunner:
         return self._elapsed() + typical < 60.0 * self.minutes
 
     def _start_trial(self, slot) -> None:
-        import optuna
-
         now = time.monotonic()
         if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
             self.beats.beat_now()
@@ -277,7 +277,7 @@ class SearchRunner:
                 f"{self.spec.source_path or 'spec'}: space: {one_line(str(exc))}; the stored search "
                 "used this name differently, run with --fresh or set another [search] name"
             ) from None
-        self.beats.add(trial._trial_id)
+        self.beats.add(trial_id(trial))
         write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
                                  "end_reason": LOST})   # overwritten when the trial ends here
         self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
@@ -336,11 +336,11 @@ class SearchRunner:
         restarted = self.pool.restart(slot)
         if mine:
             first = mine[0]
-            again = first.stopping is None and retry_later(self.study, first.trial._trial_id)
+            again = first.stopping is None and retry_later(self.study, trial_id(first.trial))
             self._finish(first, "FAIL", reason=why + ("; it is retried with the same settings"
                                                       if again else ""))
             if again:
-                retry_later(self.study, first.trial._trial_id, queue=True)
+                retry_later(self.study, trial_id(first.trial), queue=True)
         for queued in mine[1:]:                     # not begun: hand them over again
             if restarted and queued.stopping is None:
                 self.pool.assign(slot, queued.number, plain(queued.settings))
@@ -348,7 +348,7 @@ class SearchRunner:
                 self._finish(queued, "FAIL", reason=CANCELLED)
             else:                                   # never trained: queue it for whoever is left
                 self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
-                retry_later(self.study, queued.trial._trial_id, queue=True)
+                retry_later(self.study, trial_id(queued.trial), queue=True)
         number = slot.index + 1
         if restarted:
             text = (f"worker process {number} stopped unexpectedly (exit code {exitcode}"
@@ -379,12 +379,10 @@ class SearchRunner:
         """``trial.report`` in batches: the trial's own copy (what the pruner reads) now, the
         storage at most every ``SAVE_EVERY_S`` seconds and before the trial is told; pruning
         decisions are the same, a watcher of the database sees the values a second later."""
-        flight.trial._cached_frozen_trial.intermediate_values[step] = value
+        note_intermediate_value(flight.trial, step, value)
         flight.unsaved.append((step, value))
         now = time.monotonic()
         if now - flight.saved_at >= SAVE_EVERY_S:
-            from optuna.exceptions import UpdateFinishedTrialError
-
             flight.saved_at = now
             try:
                 self._save_values(flight)
@@ -396,7 +394,7 @@ class SearchRunner:
 
     def _save_values(self, flight: InFlight) -> None:
         values, flight.unsaved = flight.unsaved, []
-        write_intermediate_values(self.study, flight.trial._trial_id, values)
+        write_intermediate_values(self.study, trial_id(flight.trial), values)
 
     def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
         self.worker_cpu_s += float(result.get("cpu_s", 0.0))
@@ -427,9 +425,6 @@ class SearchRunner:
     def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
                 reason: str = "", fold_scores=(), epochs_run: int | None = None,
                 best_epoch: int | None = None) -> None:
-        from optuna.exceptions import UpdateFinishedTrialError
-        from optuna.trial import TrialState
-
         trial = flight.trial
         duration = time.monotonic() - flight.started if flight.training else 0.0
         points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
@@ -450,7 +445,7 @@ class SearchRunner:
                         state=getattr(TrialState, state), skip_if_finished=True)
         self.should_prune.invalidate()
         self.in_flight.pop(trial.number, None)
-        self.beats.discard(trial._trial_id)
+        self.beats.discard(trial_id(trial))
         self.finished += 1
         if flight.training:
             self.durations.append(duration)

@@ -19,18 +19,26 @@ from __future__ import annotations
 import logging
 import os
 import platform
+import random
 import re
 import time
 import warnings
 from dataclasses import dataclass
+from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any, Mapping
 
 from labbench.errors import SpecError
-from labbench.search.trialstore import (HeartbeatThread, write_intermediate_values,  # noqa: F401
-                                        write_study_attrs, write_user_attrs)
+from labbench.search.optuna_adapter import (write_intermediate_values,  # noqa: F401
+                                            write_study_attrs, write_user_attrs)
+from labbench.search.orphans import RETRIES, claiming_storage_class, reclaim_orphans
+from labbench.search.trialstore import HeartbeatThread  # noqa: F401
 from labbench.search.urls import (_check_url, default_url, mask_password_text,  # noqa: F401
                                   mask_url, resolve_url)
+
+# optuna and sqlalchemy are imported inside the functions that use them: ≈1 s each (python -X
+# importtime, this machine), and the window imports this module for URL and heartbeat helpers
+# long before it opens a database.
 
 log = logging.getLogger("labbench.search.storage")
 
@@ -93,8 +101,6 @@ def open_storage(url: str, heartbeat: Heartbeat | None = None, *, max_retry: int
     import optuna
     from optuna.storages import RetryHeartbeatStaleTrialCallback
 
-    from labbench.search.orphans import RETRIES, claiming_storage_class
-
     heartbeat = heartbeat or Heartbeat.from_env()
     quiet_optuna_warnings()
     shown = mask_url(url)
@@ -132,8 +138,6 @@ def _first_open(make, attempts: int = 4):
     """Several processes opening a new database at once race to create Optuna's tables (seen on
     PostgreSQL as a duplicate key in pg_type, or "relation ... already exists"): the losers try
     again once the tables are there."""
-    import random
-
     import sqlalchemy.exc
 
     for attempt in range(attempts):
@@ -190,8 +194,7 @@ JOIN_WAIT_S = 10.0
 def _running(study) -> int:
     from optuna.trial import TrialState
 
-    return len(study._storage.get_all_trials(study._study_id, deepcopy=False,
-                                             states=(TrialState.RUNNING,)))
+    return len(study.get_trials(deepcopy=False, states=(TrialState.RUNNING,)))
 
 
 def _advice(study) -> str:
@@ -210,7 +213,7 @@ def check_resumable(study, expected: Mapping[str, Any], url: str) -> None:
     stored = study.user_attrs
     shown = mask_url(url)
     if stored.get("labbench_format") is None:
-        if study._storage.get_all_trials(study._study_id, deepcopy=False):
+        if study.get_trials(deepcopy=False):
             how = "give another [search] name or storage (--storage / [search] storage)"
         else:
             how = ("give another [search] name or storage (--storage / [search] storage); if it "
@@ -244,17 +247,14 @@ def _wait_for_creator(study) -> None:
     """A study without labbench attrs and without trials may be one another process has just
     created: wait (up to ``JOIN_WAIT_S``) for its attrs, which it writes in one transaction."""
     end = time.monotonic() + JOIN_WAIT_S
-    storage = study._storage
-    while "labbench_format" not in storage.get_study_user_attrs(study._study_id):
-        if storage.get_all_trials(study._study_id, deepcopy=False) or time.monotonic() > end:
+    while "labbench_format" not in study.user_attrs:
+        if study.get_trials(deepcopy=False) or time.monotonic() > end:
             return
         time.sleep(0.2)
 
 
 def _delete_unless_busy(storage, name: str, url: str) -> None:
     import optuna
-
-    from labbench.search.orphans import reclaim_orphans
 
     study = optuna.load_study(study_name=name, storage=storage)
     reclaim_orphans(study)                   # trials of dead processes do not count as busy
@@ -327,8 +327,6 @@ def open_study(
 
 def versions() -> dict[str, str]:
     """Package versions stored with a study (what it takes to reproduce a trial)."""
-    from importlib.metadata import PackageNotFoundError, version
-
     out = {"python": platform.python_version(), "platform": platform.platform(terse=True)}
     for package in ("labbench", "numpy", "pandas", "optuna", "sqlalchemy", "scipy"):
         try:

@@ -9,7 +9,8 @@ database. ``shown`` is the storage URL with its password masked. Used by ``labbe
 
 from __future__ import annotations
 
-from labbench.errors import SpecError
+from labbench.errors import LabbenchError, SpecError
+from labbench.search.urls import mask_password_text
 
 
 def _chain_text(exc: BaseException) -> str:
@@ -48,7 +49,6 @@ _STORAGE_PROBLEMS = (
 
 def storage_error(exc: BaseException, shown: str) -> BaseException:
     """A one-line SpecError for a database problem the user can fix; other errors unchanged."""
-    from labbench.errors import LabbenchError
 
     ours = isinstance(exc, SpecError) and str(exc).startswith("storage ")
     if not (ours or _is_database_error(exc)):
@@ -76,7 +76,6 @@ def _chain(exc: BaseException):
 
 
 def first_line(exc: BaseException) -> str:
-    from labbench.search.storage import mask_password_text
 
     lines = str(getattr(exc, "orig", None) or exc).strip().splitlines()
     return mask_password_text(lines[0] if lines else type(exc).__name__)[:200]

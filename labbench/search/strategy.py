@@ -13,9 +13,16 @@ from __future__ import annotations
 import importlib.util
 import logging
 import math
+import time
 from typing import Any
 
 from labbench.errors import SpecError
+from labbench.search.optuna_adapter import grid_points_started, prune_decision
+from labbench.search.space import Choices, Fixed, IntRange
+from labbench.search.storage import quiet_optuna_warnings
+
+# optuna is imported inside the functions: ≈1 s (python -X importtime); the spec reader and the
+# window use the warm-up rules here without a search.
 
 log = logging.getLogger("labbench.search.strategy")
 
@@ -64,15 +71,7 @@ def _grid_sampler(grid: dict, seed: int):
         def all_started(self, study) -> bool:
             """Every grid point has a trial (running or finished). Optuna's ``is_exhausted``
             counts running points as open, which would repeat a point queued behind another."""
-            from optuna.trial import TrialState
-
-            started = {
-                t.system_attrs["grid_id"]
-                for t in study._storage.get_all_trials(study._study_id, deepcopy=False)
-                if "grid_id" in t.system_attrs and t.state != TrialState.WAITING
-                and self._same_search_space(t.system_attrs["search_space"])
-            }
-            return len(started) >= self._n_min_trials
+            return grid_points_started(self, study)
 
     return AskTellGridSampler(grid, seed=seed)
 
@@ -85,8 +84,6 @@ def _needs(spec: Any, module: str, sampler: str) -> None:
 
 def epoch_range(spec: Any) -> tuple[int, int]:
     """(fewest, most) epochs a trial of this space can train."""
-    from labbench.search.space import Choices, Fixed, IntRange
-
     if "epochs" not in spec.space:        # a family without epochs trains one (families.base)
         return 1, 1
     s = spec.space["epochs"]
@@ -169,8 +166,6 @@ class PruneCheck:
         self._complete = None
 
     def get_trials(self, deepcopy: bool = False, states=None):
-        import time
-
         from optuna.trial import TrialState
 
         if states is not None and tuple(states) == (TrialState.COMPLETE,) and not deepcopy:
@@ -180,7 +175,7 @@ class PruneCheck:
             return self._complete
         return self.study.get_trials(deepcopy=deepcopy, states=states)
 
-    def __getattr__(self, name: str):          # direction, study_name, _storage, ...
+    def __getattr__(self, name: str):          # direction, study_name, the storage ...
         return getattr(self.study, name)
 
     def __call__(self, trial, epoch: int, max_epochs: int | None = None) -> bool:
@@ -188,7 +183,7 @@ class PruneCheck:
         if not self.enabled or epoch < warmup:
             return False
         if self.cached:
-            return bool(self.pruner.prune(self, trial._get_latest_trial()))
+            return prune_decision(self.pruner, self, trial)
         return bool(trial.should_prune())
 
 
@@ -205,8 +200,6 @@ def route_optuna_logging() -> None:
     attached to "labbench" receives them.
     """
     import optuna
-
-    from labbench.search.storage import quiet_optuna_warnings
 
     optuna.logging.disable_default_handler()
     optuna.logging.enable_propagation()

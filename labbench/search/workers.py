@@ -47,6 +47,10 @@ import traceback
 from dataclasses import dataclass, field
 from typing import Any
 
+from labbench.errors import DataError, LabbenchError
+from labbench.search.objective import run_trial
+from labbench.search.prepare import prepare
+
 log = logging.getLogger("labbench.search.workers")
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
@@ -81,10 +85,6 @@ def worker_main(index: int, spec_blob: bytes, data_sha256: str, conn, stop, halt
 
 def _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level) -> None:
     try:
-        from labbench.errors import DataError, LabbenchError
-        from labbench.search.objective import run_trial
-        from labbench.search.prepare import prepare
-
         spec = pickle.loads(spec_blob)
         root = logging.getLogger("labbench")
         root.setLevel(max(log_level, logging.ERROR))   # the controller already said its warnings

@@ -1,0 +1,210 @@
+"""labbench.search.optuna_adapter (Optuna's private API) against Optuna's public API.
+
+Each function of the adapter is run next to the public call that does the same thing, on the same
+SQLite storage, and what the storage holds afterwards (read back through ``study.get_trials()``,
+``study.user_attrs``, the storage's public getters) must be identical. An Optuna release that
+moves an internal the adapter uses fails here, not in a user's search. Reference: Optuna's own
+public API (``Trial.report``, ``Trial.set_user_attr``, ``Study.set_user_attr``,
+``Trial.should_prune``, ``BaseStorage`` getters, ``GridSampler.is_exhausted``).
+"""
+
+from __future__ import annotations
+
+import math
+
+import optuna
+import pytest
+from optuna.exceptions import UpdateFinishedTrialError
+from optuna.trial import TrialState
+
+from labbench.search import optuna_adapter as oa
+
+optuna.logging.set_verbosity(optuna.logging.WARNING)
+
+
+@pytest.fixture
+def storage(tmp_path):
+    return optuna.storages.RDBStorage(f"sqlite:///{tmp_path}/adapter.db")
+
+
+def _study(storage, name="s", **kwargs):
+    return optuna.create_study(study_name=name, storage=storage, **kwargs)
+
+
+def test_optuna_is_the_pinned_release():
+    # the adapter is written for (and tested on) the release pyproject.toml pins
+    assert optuna.__version__.startswith("5.0.")
+
+
+def test_identities_match_the_storage_public_getters(storage):
+    study = _study(storage)
+    trial = study.ask()
+    other = study.ask()
+    stored = study_storage = oa.study_storage(study)
+    assert oa.study_id(study) == storage.get_study_id_from_name("s")
+    assert study_storage.get_study_name_from_id(oa.study_id(study)) == "s"
+    for asked in (trial, other):
+        assert stored.get_trial(oa.trial_id(asked)).number == asked.number
+    frozen = {t.number: oa.trial_id(t) for t in study.get_trials()}
+    assert frozen == {trial.number: oa.trial_id(trial), other.number: oa.trial_id(other)}
+    assert oa.rdb_backend(study_storage) is storage          # under Optuna's cache wrapper
+    assert oa.rdb_backend(optuna.storages.InMemoryStorage()) is None
+
+
+@pytest.mark.parametrize("make", ["rdb", "memory"])
+def test_batched_values_read_back_as_reported(storage, make):
+    store = storage if make == "rdb" else optuna.storages.InMemoryStorage()
+    study = _study(store)
+    values = [(1, 0.9), (2, 0.7), (3, float("inf")), (4, float("-inf")), (5, float("nan")),
+              (7, -1e-300)]
+    ours, theirs = study.ask(), study.ask()
+    oa.write_intermediate_values(study, oa.trial_id(ours), values[:2])
+    oa.write_intermediate_values(study, oa.trial_id(ours), values[2:])    # a second batch
+    oa.write_intermediate_values(study, oa.trial_id(ours), [])
+    for step, value in values:
+        theirs.report(value, step=step)
+    study.tell(ours, 1.0)
+    study.tell(theirs, 1.0)
+    a, b = study.get_trials()
+    assert a.intermediate_values.keys() == b.intermediate_values.keys() == {s for s, _ in values}
+    for step in a.intermediate_values:
+        x, y = a.intermediate_values[step], b.intermediate_values[step]
+        assert x == y or (math.isnan(x) and math.isnan(y))
+    with pytest.raises(UpdateFinishedTrialError):           # as Trial.report after the tell
+        oa.write_intermediate_values(study, oa.trial_id(ours), [(9, 1.0)])
+
+
+@pytest.mark.parametrize("make", ["rdb", "memory"])
+def test_batched_trial_attrs_read_back_as_set(storage, make):
+    store = storage if make == "rdb" else optuna.storages.InMemoryStorage()
+    study = _study(store)
+    attrs = {"curve": {"epoch": [1, 2], "val_loss": [0.5, None]}, "end_reason": "", "n": 3,
+             "text": "ü ✓", "flag": True}
+    ours, theirs = study.ask(), study.ask()
+    oa.write_user_attrs(ours, {"end_reason": "placeholder", "n": 1})
+    oa.write_user_attrs(ours, attrs)                 # overwrites two keys, adds the others
+    theirs.set_user_attr("end_reason", "placeholder")
+    theirs.set_user_attr("n", 1)
+    for key, value in attrs.items():
+        theirs.set_user_attr(key, value)
+    assert ours.user_attrs == theirs.user_attrs == attrs       # the asked trial's own copy
+    study.tell(ours, 1.0)
+    study.tell(theirs, 1.0)
+    a, b = study.get_trials()
+    assert a.user_attrs == b.user_attrs == attrs
+    with pytest.raises(UpdateFinishedTrialError):
+        oa.write_user_attrs(ours, {"late": 1})
+
+
+def test_batched_study_attrs_read_back_as_set(storage, tmp_path):
+    ours, theirs = _study(storage, "ours"), _study(storage, "theirs")
+    attrs = {"spec_toml": "[data]\npath = 'x.csv'\n", "labbench_format": 1, "space": [1, 2.5]}
+    oa.write_study_attrs(ours, {"labbench_format": 0})
+    oa.write_study_attrs(ours, attrs)
+    theirs.set_user_attr("labbench_format", 0)
+    for key, value in attrs.items():
+        theirs.set_user_attr(key, value)
+    fresh = optuna.storages.RDBStorage(f"sqlite:///{tmp_path}/adapter.db")   # another reader
+    read = {n: optuna.load_study(study_name=n, storage=fresh).user_attrs for n in ("ours", "theirs")}
+    assert read["ours"] == read["theirs"] == attrs
+
+
+def _history(study, curves):
+    for curve in curves:
+        trial = study.ask()
+        for step, value in enumerate(curve, start=1):
+            trial.report(value, step=step)
+        study.tell(trial, curve[-1])
+
+
+@pytest.mark.parametrize("curve, expected", [([0.5, 0.4, 0.3], False), ([2.0, 1.9, 1.8], True)])
+def test_prune_decision_on_noted_values_equals_should_prune(storage, curve, expected):
+    pruner = optuna.pruners.MedianPruner(n_startup_trials=2, n_warmup_steps=0)
+    study = _study(storage, pruner=pruner)
+    _history(study, [[1.0, 0.8, 0.6], [1.1, 0.9, 0.7], [0.9, 0.7, 0.5]])
+    ours, theirs = study.ask(), study.ask()
+    for step, value in enumerate(curve, start=1):
+        oa.note_intermediate_value(ours, step, value)
+        theirs.report(value, step=step)
+        assert oa.prune_decision(study.pruner, study, ours) == theirs.should_prune()
+    assert bool(theirs.should_prune()) is expected
+    # noted values are the asked trial's own copy only: nothing reached the storage
+    assert oa.study_storage(study).get_trial(oa.trial_id(ours)).intermediate_values == {}
+    # and they are the copy Trial.report keeps: reporting a noted step again is ignored
+    with pytest.warns(UserWarning, match="already reported"):
+        ours.report(99.0, step=1)
+
+
+def test_claim_stores_what_the_public_calls_store(storage):
+    study = _study(storage)
+    ours, theirs = study.ask(), study.ask()
+    owner = {"host": "h", "pid": 12, "start": "34"}
+    oa.claim_trial(storage, oa.trial_id(ours), {"labbench_owner": owner}, {"end_reason": "lost"})
+    storage.record_heartbeat(oa.trial_id(theirs))
+    storage.set_trial_system_attr(oa.trial_id(theirs), "labbench_owner", owner)
+    storage.set_trial_user_attr(oa.trial_id(theirs), "end_reason", "lost")
+    a, b = (storage.get_trial(oa.trial_id(t)) for t in (ours, theirs))
+    assert a.system_attrs == b.system_attrs and a.system_attrs["labbench_owner"] == owner
+    assert a.user_attrs == b.user_attrs == {"end_reason": "lost"}
+    beats, now = oa.running_heartbeats(storage, oa.study_id(study))
+    assert set(beats) == {oa.trial_id(ours), oa.trial_id(theirs)}
+    assert all(abs((now - beat).total_seconds()) < 60 for beat in beats.values())
+    with pytest.raises(Exception):                    # a second first heartbeat: one row only
+        oa.claim_trial(storage, oa.trial_id(ours), {}, {})
+    study.tell(theirs, 1.0)                           # only RUNNING trials have a heartbeat here
+    beats, _ = oa.running_heartbeats(storage, oa.study_id(study))
+    assert set(beats) == {oa.trial_id(ours)}
+
+
+def test_starting_storage_sees_every_trial_that_starts(tmp_path):
+    started = []
+    cls = oa.starting_storage_class(lambda store, tid: started.append(tid))
+    store = cls(f"sqlite:///{tmp_path}/start.db")
+    study = _study(store)
+    first = study.ask()
+    study.enqueue_trial({"x": 1.0})                   # WAITING: not started yet
+    assert started == [oa.trial_id(first)]
+    second = study.ask()                              # takes the queued trial over
+    assert second.params == {} and oa.trial_id(second) != oa.trial_id(first)
+    running = [oa.trial_id(t) for t in study.get_trials(states=(TrialState.RUNNING,))]
+    assert sorted(started) == sorted(running) and len(started) == 2
+
+
+def test_grid_points_started_against_is_exhausted(storage):
+    from labbench.search.strategy import _grid_sampler
+
+    grid = {"a": [0, 1], "b": [0, 1]}
+    sampler = _grid_sampler(grid, seed=0)
+    study = _study(storage, sampler=sampler)
+    trials = []
+    for _ in range(4):
+        assert not oa.grid_points_started(sampler, study)
+        trial = study.ask()
+        trial.suggest_categorical("a", grid["a"])
+        trial.suggest_categorical("b", grid["b"])
+        trials.append(trial)
+    # all four points started: Optuna's public check still counts the running ones as open
+    assert oa.grid_points_started(sampler, study) and not sampler.is_exhausted(study)
+    for trial in trials:
+        study.tell(trial, 0.0)
+    assert oa.grid_points_started(sampler, study) and sampler.is_exhausted(study)
+    seen = {(t.params["a"], t.params["b"]) for t in study.get_trials()}
+    assert seen == {(a, b) for a in grid["a"] for b in grid["b"]}
+
+
+def test_no_other_module_uses_optuna_private_api():
+    """The adapter rule of DEVELOPERS.md: private Optuna names only in optuna_adapter.py."""
+    import re
+    from pathlib import Path
+
+    import labbench
+
+    private = re.compile(r"\._trial_id\b|_cached_frozen_trial|_get_latest_trial|\._study_id\b|"
+                         r"\._storage\b|optuna\.storages\._|_same_search_space|_n_min_trials|"
+                         r"\._create_new_trial\b")
+    root = Path(labbench.__file__).parent
+    found = [f"{path.relative_to(root)}:{n}: {line.strip()}"
+             for path in sorted(root.rglob("*.py")) if path.name != "optuna_adapter.py"
+             for n, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1)
+             if private.search(line)]
+    assert found == []
