@@ -1,32 +1,71 @@
 """The thread bridge: the search controller and storage reads run off the GUI thread.
 
 * ``SearchThread`` runs one search (the same ``SearchRunner`` and winner step ``labbench run``
-  uses) in a ``QThread``; the runner's ``emit`` is the thread's ``event`` signal, so every event
-  (a frozen dataclass) is queued to the GUI thread. Stop sets the cancel event and returns at
-  once; the GUI never blocks in ``wait()`` (see PLATFORM.md: a blocked GUI thread cannot run the
-  queued ``finished`` handler).
-* ``Background`` runs short jobs (storage polls, importance) on one Python worker thread and
-  hands the result back through a queued signal; at most one job per key is in flight.
+  uses) in a ``QThread``. Stop sets the cancel event and returns at once; the GUI never blocks
+  in ``wait()`` (see PLATFORM.md: a blocked GUI thread cannot run the queued ``finished``
+  handler).
+* ``Background`` runs short jobs (storage polls, importance) on one Python worker thread; at most
+  one job per key is in flight.
+
+No Qt signal is emitted from a thread other than the GUI thread. Work threads put what they have
+(events, results, errors) into a ``Mailbox``, a plain ``queue.SimpleQueue``, and a timer on the
+GUI thread empties it every ``Mailbox.EVERY_MS`` and emits the signals there. Emitting from a
+work thread takes a Qt lock and then needs the interpreter lock to copy the arguments, while the
+GUI thread, deleting a widget during garbage collection, holds the interpreter lock and waits
+for Qt locks of the same pool: the two threads then wait for each other forever (seen in the
+test suite: a window of an earlier test collected while 50,000 events crossed).
 """
 
 from __future__ import annotations
 
 import logging
 import os
+import queue
 import threading
 import traceback
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any, Callable
 
-from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtCore import QObject, QThread, QTimer, Signal
 
 from labbench.errors import LabbenchError
 
 log = logging.getLogger("labbench.gui")
 
 
+class Mailbox:
+    """What work threads hand to the GUI thread: ``post(signal, *args)`` from any thread; a timer
+    on the GUI thread (the owner's) emits them there, in order (see the module text)."""
+
+    EVERY_MS = 20
+
+    def __init__(self, owner: QObject):
+        self._box: queue.SimpleQueue = queue.SimpleQueue()
+        self._timer = QTimer(owner)
+        self._timer.setInterval(self.EVERY_MS)
+        self._timer.timeout.connect(self.deliver)
+        self._timer.start()
+
+    def post(self, signal, *args: Any) -> None:
+        self._box.put((signal, args))
+
+    def deliver(self) -> None:
+        """Emit everything posted so far (GUI thread only)."""
+        while True:
+            try:
+                signal, args = self._box.get_nowait()
+            except queue.Empty:
+                return
+            signal.emit(*args)
+
+    def stop(self) -> None:
+        self._timer.stop()
+
+
 class SearchThread(QThread):
-    """Runs ``job(emit, cancel)`` on its own thread; events and the end come back as signals."""
+    """Runs ``job(emit, cancel)`` on its own thread; events and the end come back as signals,
+    emitted on the GUI thread (``Mailbox``). Everything the job posted is delivered before the
+    thread's ``finished`` reaches any handler connected after construction."""
 
     event = Signal(object)          # a labbench.search.events.Event
     failed = Signal(str)            # one-line message (a LabbenchError's text, or what broke)
@@ -36,17 +75,27 @@ class SearchThread(QThread):
         super().__init__(parent)
         self.job = job
         self.cancel = threading.Event()
+        self.mail = Mailbox(self)
+        self.finished.connect(self._last_delivery)     # first: before the owner's handler
+
+    def _last_delivery(self) -> None:
+        self.mail.deliver()
+        self.mail.stop()
+
+    def _emit_event(self, event: Any) -> None:        # the job's ``emit``, on the work thread
+        self.mail.post(self.event, event)
 
     def run(self) -> None:  # the worker thread
         try:
-            result = self.job(self.event.emit, self.cancel)
+            result = self.job(self._emit_event, self.cancel)
         except LabbenchError as exc:
-            self.failed.emit(str(exc))
+            self.mail.post(self.failed, str(exc))
         except Exception as exc:  # a bug, not a user error: keep the details in the log
             log.error("the search stopped with an error:\n%s", traceback.format_exc())
-            self.failed.emit(f"the search stopped with an unexpected error: {type(exc).__name__}: {exc}")
+            self.mail.post(self.failed, f"the search stopped with an unexpected error: "
+                                        f"{type(exc).__name__}: {exc}")
         else:
-            self.outcome.emit(result)
+            self.mail.post(self.outcome, result)
 
     def stop(self) -> None:
         """Ask the search to stop (it finishes the epoch in progress); never blocks."""
@@ -64,6 +113,7 @@ class Background(QObject):
         self._busy: set[str] = set()
         self._lock = threading.Lock()
         self._closed = False
+        self.mail = Mailbox(self)
 
     def busy(self, key: str) -> bool:
         with self._lock:
@@ -84,12 +134,10 @@ class Background(QObject):
             except Exception as exc:
                 log.warning("background %s failed: %s", key, traceback.format_exc())
                 result, error = None, f"{type(exc).__name__}: {exc}"
-            # emit under the lock: close() takes it too, so nothing is emitted from this thread
-            # once the owner has closed (and may delete) this object
             with self._lock:
                 self._busy.discard(key)
-                if not self._closed:
-                    self.done.emit(key, result, error)
+                if not self._closed:      # delivered on the GUI thread (Mailbox)
+                    self.mail.post(self.done, key, result, error)
 
         self._pool.submit(work)
         return True
@@ -124,12 +172,10 @@ class Background(QObject):
                 result, error = None, str(exc)
             except Exception as exc:
                 result, error = None, f"{type(exc).__name__}: {exc}"
-            # emit under the lock: close() takes it too, so nothing is emitted from this thread
-            # once the owner has closed (and may delete) this object
             with self._lock:
                 self._busy.discard(key)
-                if not self._closed:
-                    self.done.emit(key, result, error)
+                if not self._closed:      # delivered on the GUI thread (Mailbox)
+                    self.mail.post(self.done, key, result, error)
 
         future.add_done_callback(finished)
         return True
@@ -137,6 +183,7 @@ class Background(QObject):
     def close(self) -> None:
         with self._lock:
             self._closed = True
+        self.mail.stop()
         self._pool.shutdown(wait=False, cancel_futures=True)
         procs = getattr(self, "_procs", None)
         if procs is not None:      # an importance job takes well under a second: let it end
@@ -237,7 +284,8 @@ class SearchProcess(SearchThread):
         try:
             self._proc.start()
         except Exception as exc:
-            self.failed.emit(f"the search process could not start: {type(exc).__name__}: {exc}")
+            self.mail.post(self.failed, f"the search process could not start: "
+                                        f"{type(exc).__name__}: {exc}")
             return
         ended = False
         while not ended:
@@ -248,18 +296,19 @@ class SearchProcess(SearchThread):
                     try:
                         kind, payload = self._queue.get(timeout=1.0)
                     except queue_mod.Empty:
-                        self.failed.emit(f"the search process stopped unexpectedly (exit code "
-                                         f"{self._proc.exitcode}); the trials so far are stored")
+                        self.mail.post(self.failed, f"the search process stopped unexpectedly "
+                                                    f"(exit code {self._proc.exitcode}); the "
+                                                    "trials so far are stored")
                         break
                 else:
                     continue
             if kind == "event":
-                self.event.emit(payload)
+                self.mail.post(self.event, payload)
             elif kind == "done":
-                self.outcome.emit(pickle.loads(payload))
+                self.mail.post(self.outcome, pickle.loads(payload))
                 ended = True
             else:
-                self.failed.emit(str(payload))
+                self.mail.post(self.failed, str(payload))
                 ended = True
         self._proc.join(30.0)
         self._queue.close()
