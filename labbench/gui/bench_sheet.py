@@ -213,7 +213,7 @@ class BenchSheet(Panel):
         from labbench.gui.winner_view import winner_html
 
         if book.winner is not None:
-            return winner_html(book.winner, book.metric)
+            return winner_html(book.winner, book.metric, book.winner_files)
         if book.stage is not None and book.ended is not None:
             return f"<p><i>Checking the winner: {html.escape(book.stage.text)}</i></p>"
         return ""

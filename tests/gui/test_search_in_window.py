@@ -65,6 +65,10 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     assert f"{summary['holdout_score']:.4g}" in panel.final_html
     out = tmp_path / "orchard_out"
     assert json.loads((out / "winner.json").read_text())["trial_number"] == best.number
+    # the window leaves the files labbench run leaves, and says where
+    for name in ("winner.json", "winner.toml", "model.npz", "predict_with_numpy.py"):
+        assert (out / name).exists(), name
+    assert "Written to" in panel.final_html and str(out) in panel.final_html
 
     # the table: every trial, sortable, filterable; picking a row highlights it in the plots
     table = w.watch.table
