@@ -97,12 +97,13 @@ def test_a_wheel_carries_the_resources_and_runs_the_demo(tmp_path):
     purelib = _run([str(python), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"])
     deps = [p for p in sys.path if p.endswith("site-packages") and "__editable__" not in p]
     Path(purelib.strip(), "_labbench_test_deps.pth").write_text("\n".join(deps) + "\n")
+    # without PYTHONPATH: a labbench found there would count as "already installed" for pip
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
     _run([sys.executable, "-m", "pip", "--python", str(python), "install", "--no-deps", "--no-index",
-          "--quiet", str(wheel)])
+          "--quiet", str(wheel)], env=env)
 
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
     env["QT_QPA_PLATFORM"] = "offscreen"
     site = _run([str(python), "-c", "import labbench, sysconfig; print(labbench.__file__); "
                  "print(sysconfig.get_paths()['purelib'])"], cwd=elsewhere, env=env).split("\n")

@@ -184,6 +184,14 @@ def test_a_silent_worker_is_stopped_by_the_watchdog(tmp_path):
     trial = _wait_for(lambda: _training(db), 240, proc)
     worker = int(trial.user_attrs["worker"].rsplit(":", 1)[1])
     os.kill(worker, signal.SIGSTOP)                    # alive, but silent
+    # the trial it holds now (the one seen above may have finished between the read and the
+    # stop); a second for the controller to take in what the worker sent before it froze
+    time.sleep(1.0)
+    held = sorted((t for t in load(db).get_trials(deepcopy=False) if t.state.name == "RUNNING"
+                   and str(t.user_attrs.get("worker", "")).endswith(f":{worker}")),
+                  key=lambda t: t.number)
+    assert held, "the stopped worker holds no trial"
+    trial = held[0]
     try:
         out, err = proc.communicate(timeout=120)
     except subprocess.TimeoutExpired:
