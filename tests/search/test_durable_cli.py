@@ -176,7 +176,9 @@ def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_pa
 @pytest.mark.slow
 def test_a_silent_worker_is_stopped_by_the_watchdog(tmp_path):
     iris_csv(tmp_path)
-    spec = write_spec(tmp_path, trials=3, space=SPACE, sampler="random")
+    # trials of several seconds, so that one is seen training (values are stored after 1 s)
+    spec = write_spec(tmp_path, trials=3, space=SPACE.replace("epochs = 1500", "epochs = 8000"),
+                      sampler="random")
     db = tmp_path / "exp.db"
     env = {**os.environ, "LABBENCH_WATCHDOG": "3"}
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")), env=env,
