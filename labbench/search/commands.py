@@ -273,8 +273,8 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
         lines.append("  settings: " + ", ".join(f"{k} {setting(v)}" for k, v in settings.items()))
     imp = s.get("importance") or {}
     if imp.get("values"):
-        lines.append(f"  importance ({imp.get('method')}): " + ", ".join(
-            f"{k} {percent(v)}" for k, v in imp["values"].items()))
+        lines.append("  what moved the score: " + ", ".join(
+            f"{param_label(k)} {percent(v)}" for k, v in imp["values"].items()))
     if imp.get("message"):
         lines.append(f"    {imp['message']}")
     counts = s.get("trials") or {}

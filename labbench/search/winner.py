@@ -263,7 +263,7 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
             if lead["inside"]:
                 warnings.append(lead["text"])
 
-    stage("importance", f"Parameter importance ({importance})")
+    stage("importance", "What moved the score: each setting's share of the score's variation")
     imp = param_importance(study, importance, seed=seed)
 
     model = dataclasses.replace(model, scores={
