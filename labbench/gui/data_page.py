@@ -6,16 +6,21 @@ from pathlib import Path
 from typing import Any, Mapping
 
 import pandas as pd
-from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, Signal
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, QTimer, Signal
 from PySide6.QtGui import QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QFormLayout, QGroupBox,
-                               QHBoxLayout, QHeaderView, QLabel, QPushButton, QSplitter,
+                               QHBoxLayout, QHeaderView, QLabel, QLineEdit, QPushButton, QScrollArea, QSplitter,
                                QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from labbench.gui import core, theme
+from labbench.gui.bridge import Background
+from labbench.gui.profile import ProfileView
+from labbench.gui.traps import TrapList
 
 PREVIEW_ROWS = 200
 AUTO = "auto"
+CHECK_DELAY_MS = 150     # the profile and the traps are recomputed this long after the last change
+TARGET_SCALINGS = ("standard", "log", "none")
 
 
 class PreviewModel(QAbstractTableModel):
@@ -87,6 +92,20 @@ class DataPage(QWidget):
         self.read_warnings: list[str] = []
         self._explicit_kinds: set[str] = set()
         self._loading = False
+        # [data] keys without a field of their own, carried through a rebuilt spec
+        self.keep: list[str] = []
+        self.thousands: str | None = None
+        self.decimal: str | None = None
+        self.markers: list[str] = []          # the missing markers the file was read with
+        self.profiles: dict = {}
+        self.traps: list = []
+        self.checks = Background(self)
+        self.checks.done.connect(self._checked)
+        self._check_timer = QTimer(self)
+        self._check_timer.setSingleShot(True)
+        self._check_timer.setInterval(CHECK_DELAY_MS)
+        self._check_timer.timeout.connect(self._check_now)
+        self._check_serial = 0
 
         outer = QVBoxLayout(self)
         top = QHBoxLayout()
@@ -109,7 +128,13 @@ class DataPage(QWidget):
         self.preview.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
         self.preview.verticalHeader().setDefaultSectionSize(22)
         self.preview.setToolTip(f"The first {PREVIEW_ROWS} rows of the file, as read")
-        split.addWidget(self.preview)
+        left = QWidget()
+        left_layout = QVBoxLayout(left)
+        left_layout.setContentsMargins(0, 0, 0, 0)
+        left_layout.addWidget(self.preview, 1)
+        self.profile = ProfileView()
+        left_layout.addWidget(self.profile)
+        split.addWidget(left)
 
         side = QWidget()
         side_layout = QVBoxLayout(side)
@@ -128,21 +153,36 @@ class DataPage(QWidget):
         self.scaling_box = QComboBox()
         self.scaling_box.addItems(["standard", "minmax"])
         self.scaling_box.setToolTip("How numeric columns are scaled: to mean 0 and spread 1, or into 0…1")
+        self.target_scaling_box = QComboBox()
+        self.target_scaling_box.addItems(list(TARGET_SCALINGS))
+        self.target_scaling_box.setToolTip("Regression only: how the target is scaled while training "
+                                           "(log for positive amounts spread over many magnitudes)")
+        self.markers_edit = QLineEdit()
+        self.markers_edit.setPlaceholderText("e.g. n/a, unknown, -")
+        self.markers_edit.setToolTip("Cells holding one of these words (comma separated) are read as "
+                                     "missing, besides empty cells and the usual NA markers")
         form.addRow("Target column", self.target_box)
         form.addRow("Task", self.task_box)
         form.addRow("Score by", self.metric_box)
         form.addRow("Missing values", self.missing_box)
+        form.addRow("Also missing", self.markers_edit)
         form.addRow("Scaling", self.scaling_box)
+        form.addRow("Target scaling", self.target_scaling_box)
         self.task_note = QLabel("")
         self.task_note.setWordWrap(True)
         self.task_note.setObjectName("errorText")
+        # the space is kept whether or not there is a message: nothing below moves
+        self.task_note.setFixedHeight(2 * self.task_note.fontMetrics().lineSpacing() + 4)
         form.addRow(self.task_note)
         side_layout.addWidget(goal)
+        self.trap_list = TrapList()
+        self.trap_list.remedy.connect(self.apply_remedy)
+        side_layout.addWidget(self.trap_list)
 
         cols = QGroupBox("Columns used as inputs")
         cols_layout = QVBoxLayout(cols)
-        self.columns = QTableWidget(0, 3)
-        self.columns.setHorizontalHeaderLabels(["Column", "Kind", "Use"])
+        self.columns = QTableWidget(0, 4)
+        self.columns.setHorizontalHeaderLabels(["Column", "Kind", "Use", "Flags"])
         self.columns.verticalHeader().hide()
         self.columns.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.columns.setToolTip("Untick a column to leave it out (an id, a leak of the answer); "
@@ -154,24 +194,36 @@ class DataPage(QWidget):
         self.column_notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         cols_layout.addWidget(self.column_notes)
         side_layout.addWidget(cols, 1)
-        split.addWidget(side)
+        self.columns.currentCellChanged.connect(lambda row, *_a: self._show_profile_row(row))
+        self.preview.horizontalHeader().sectionClicked.connect(self._show_profile_section)
+        side_scroll = QScrollArea()          # fits a 768-pixel screen: the side scrolls, never clips
+        side_scroll.setWidgetResizable(True)
+        side_scroll.setFrameShape(QScrollArea.Shape.NoFrame)
+        side.setMinimumHeight(560)
+        side_scroll.setWidget(side)
+        split.addWidget(side_scroll)
         split.setStretchFactor(0, 3)
         split.setStretchFactor(1, 2)
         outer.addWidget(split, 1)
 
         self.target_box.currentTextChanged.connect(self._target_changed)
         self.task_box.currentIndexChanged.connect(self._task_changed)
-        for box in (self.metric_box, self.missing_box, self.scaling_box):
+        for box in (self.metric_box, self.missing_box, self.scaling_box, self.target_scaling_box):
             box.currentIndexChanged.connect(self._emit)
+        self.markers_edit.editingFinished.connect(self._markers_edited)
 
     # ------------------------------------------------------------------ loading
-    def load(self, path: str) -> None:
+    def load(self, path: str, *, missing_markers=(), thousands: str | None = None,
+             decimal: str | None = None) -> None:
         """Read the file (raises the core's DataError) and fill the page."""
         from labbench.data import infer_kinds
         from labbench.data.reading import read_file
 
-        read = read_file(path)
+        read = read_file(path, missing_markers=tuple(missing_markers), thousands=thousands, decimal=decimal)
         frame = read.frame
+        self.markers, self.thousands, self.decimal = list(missing_markers), thousands, decimal
+        self.keep = []
+        self.markers_edit.setText(", ".join(self.markers))
         self.read_warnings = [w.replace(str(path), Path(path).name) for w in read.warnings]
         kinds = infer_kinds(frame)
         self._loading = True
@@ -212,6 +264,9 @@ class DataPage(QWidget):
             use.setToolTip(f"Use “{name}” as an input")
             use.toggled.connect(self._kinds_changed)
             self.columns.setCellWidget(row, 2, use)
+            flags = QTableWidgetItem("")
+            flags.setFlags(flags.flags() & ~Qt.ItemFlag.ItemIsEditable)
+            self.columns.setItem(row, 3, flags)
         self.columns.resizeColumnToContents(1)
         self.columns.resizeColumnToContents(2)
         self._sync_roles()
@@ -231,6 +286,8 @@ class DataPage(QWidget):
             roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
         self.preview_model.set_roles(roles)
         self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
+        self.target_scaling_box.setEnabled(self.effective_task() in (None, "regression"))
+        self._check_timer.start()
 
     def _show_column_notes(self, target: str, features: list[str]) -> None:
         """The notices ``labbench run`` prints for these columns (one shared rule in the core)."""
@@ -242,7 +299,7 @@ class DataPage(QWidget):
             rows = self.frame[self.frame[target].notna()]
             try:
                 notes += screen_columns(rows, features, Path(self.path or "").name,
-                                        forced=self._explicit_kinds)[1]
+                                        forced=self._explicit_kinds | set(self.keep))[1]
             except LabbenchError as exc:
                 notes.append(str(exc))
         self.column_notes.setText("\n".join(notes))
@@ -333,21 +390,43 @@ class DataPage(QWidget):
             d["kinds"] = kinds
         d["missing"] = self.missing_box.currentText()
         d["scaling"] = self.scaling_box.currentText()
+        d["target_scaling"] = self.target_scaling_box.currentText()
+        if self.markers:
+            d["missing_markers"] = list(self.markers)
+        if self.thousands is not None:
+            d["thousands"] = self.thousands
+        if self.decimal is not None:
+            d["decimal"] = self.decimal
+        keep = [c for c in self.keep if c not in ignore and c != target]
+        if keep:
+            d["keep"] = keep
         return d
 
     def set_from_spec(self, data, metric: str | None) -> None:
         """Show a loaded spec's [data] (the file is read again; DataError propagates)."""
-        self.load(data.path)
-        self._explicit_kinds = set(data.kinds)
+        self.set_data({"path": data.path, "target": data.target, "ignore": list(data.ignore),
+                       "task": data.task, "kinds": dict(data.kinds), "missing": data.missing,
+                       "scaling": data.scaling, "target_scaling": data.target_scaling,
+                       "missing_markers": list(data.missing_markers), "thousands": data.thousands,
+                       "decimal": data.decimal, "keep": list(data.keep)}, metric)
+
+    def set_data(self, d: Mapping[str, Any], metric: str | None = None) -> None:
+        """Show a [data] section (a dict with the spec's keys; the file is read again)."""
+        self.load(d["path"], missing_markers=tuple(d.get("missing_markers") or ()),
+                  thousands=d.get("thousands"), decimal=d.get("decimal"))
+        kinds = dict(d.get("kinds") or {})
+        self._explicit_kinds = set(kinds)
+        self.keep = list(d.get("keep") or ())
         self._loading = True
-        self.target_box.setCurrentText(data.target)
+        self.target_box.setCurrentText(d["target"])
         self._loading = False
-        self._target_changed(data.target)
+        self._target_changed(d["target"])
         self._loading = True
-        self._fill_columns(list(data.ignore), dict(data.kinds))
-        self.task_box.setCurrentIndex(max(self.task_box.findData(data.task or AUTO), 0))
-        self.missing_box.setCurrentText(data.missing)
-        self.scaling_box.setCurrentText(data.scaling)
+        self._fill_columns(list(d.get("ignore") or ()), kinds)
+        self.task_box.setCurrentIndex(max(self.task_box.findData(d.get("task") or AUTO), 0))
+        self.missing_box.setCurrentText(d.get("missing", "impute"))
+        self.scaling_box.setCurrentText(d.get("scaling", "standard"))
+        self.target_scaling_box.setCurrentText(d.get("target_scaling", "standard"))
         self._loading = False
         self._task_changed()
         self._loading = True
@@ -355,3 +434,84 @@ class DataPage(QWidget):
         self._loading = False
         self._sync_roles()
         self._emit()
+
+    # ------------------------------------------------------------------ traps and profiles
+    def apply_remedy(self, change: Mapping[str, Any]) -> None:
+        """One click on a trap's remedy: the [data] section changes, the page shows it."""
+        from labbench.data.profile import apply_remedy
+
+        d = self.data_dict()
+        if d is None:
+            return
+        d = apply_remedy(d, dict(change))
+        if "kinds" in change:
+            self._explicit_kinds |= set(change["kinds"])
+        self.set_data(d, self.metric())
+
+    def _markers_edited(self) -> None:
+        words = [w.strip() for w in self.markers_edit.text().split(",") if w.strip()]
+        if words == self.markers or self.frame is None:
+            return
+        d = self.data_dict()
+        d.pop("missing_markers", None)
+        if words:
+            d["missing_markers"] = words
+        self.set_data(d, self.metric())
+
+    def _check_now(self) -> None:
+        """Profiles and traps of the current choice, computed on the reader thread."""
+        if self.frame is None or not self.target_box.currentText():
+            return
+        from labbench.data.profile import find_traps, profile_columns
+
+        frame, target = self.frame, self.target_box.currentText()
+        kinds = {name: kind.currentText() for name, kind, _use in self._row_widgets()}
+        features = [n for n, _k, use in self._row_widgets() if n != target and use.isChecked()]
+        task, effective = self.task(), self.effective_task()
+        forced = set(self._explicit_kinds) | set(self.keep)
+        where = Path(self.path or "table").name
+        self._check_serial += 1
+        serial = self._check_serial
+
+        def work():
+            profiles = profile_columns(frame, kinds, target, effective, features=features, forced=forced)
+            traps = find_traps(frame, target, features, task=task, forced=forced, where=where,
+                               profiles=profiles)
+            return serial, profiles, traps
+
+        if not self.checks.submit("check", work):
+            self._check_timer.start()          # one is still running: try again shortly
+
+    def _checked(self, key: str, result, error) -> None:
+        if key != "check" or error is not None or result is None:
+            return
+        serial, profiles, traps = result
+        if serial != self._check_serial:
+            return                               # an older choice; a newer check is coming
+        self.profiles, self.traps = profiles, traps
+        self.trap_list.show_traps(traps)
+        for row in range(self.columns.rowCount()):
+            name = self.columns.item(row, 0).text()
+            p = profiles.get(name)
+            item = self.columns.item(row, 3)
+            if item is not None:
+                item.setText(", ".join(p.flags) if p else "")
+                item.setToolTip("\n".join(p.why) if p else "")
+        self.columns.resizeColumnToContents(3)
+        shown = self.profile.shown
+        if shown is None and self.columns.rowCount():
+            shown = self.target_box.currentText()
+        self.profile.show_profile(profiles.get(shown) if shown else None)
+
+    def _show_profile_row(self, row: int) -> None:
+        item = self.columns.item(row, 0) if row >= 0 else None
+        if item is not None:
+            self.profile.show_profile(self.profiles.get(item.text()))
+
+    def _show_profile_section(self, section: int) -> None:
+        if self.frame is not None and 0 <= section < self.frame.shape[1]:
+            self.profile.show_profile(self.profiles.get(str(self.frame.columns[section])))
+
+    def close(self) -> bool:
+        self.checks.close()
+        return super().close()
