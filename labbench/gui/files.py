@@ -59,6 +59,7 @@ class FilesMixin:
             self.data.load(path)
         finally:
             self.unsetCursor()
+        self.space.use_default_space()      # a new table starts from a searched space, as the CLI does
         self.spec_path = None
         self.dirty = True
         self.steps.setCurrentRow(0)

@@ -28,13 +28,61 @@ IMPORTANCE_S = 4.0      # importance is recomputed at most this often
 SYNC_MS = 5000          # during a run, finished trials are checked against storage this often
 
 
-def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
-    """What ``labbench run`` does: the search, then the winner check (in the search process)."""
+def budget_used(spec) -> int:
+    """Trials of this search already stored that count against its trial budget: the finished
+    ones (complete, pruned, failed); a trial stopped by the user is not counted, it is run again."""
+    from labbench.gui.storage_list import storage_exists
+    from labbench.search.storage import resolve_url
+
+    url = resolve_url(spec)
+    if not storage_exists(url):
+        return 0
+    import optuna
+    from optuna.trial import TrialState
+
+    from labbench.search.storage import quiet_optuna_warnings
+    from labbench.search.strategy import route_optuna_logging
+
+    route_optuna_logging()
+    quiet_optuna_warnings()
+    try:
+        study = optuna.load_study(study_name=spec.study_name(),
+                                  storage=optuna.storages.RDBStorage(url, skip_table_creation=True))
+    except Exception:           # no such search (yet), or no tables: nothing is used
+        return 0
+    used = 0
+    for t in study.get_trials(deepcopy=False, states=(TrialState.COMPLETE, TrialState.PRUNED,
+                                                      TrialState.FAIL)):
+        reason = str(t.user_attrs.get("end_reason", "") or "").lower()
+        if not (t.state == TrialState.FAIL and reason.startswith("cancel")):
+            used += 1
+    return used
+
+
+def trials_to_run(spec, *, fresh: bool, more: int | None) -> int | None:
+    """How many trials this run adds: ``more`` when asked for explicitly; otherwise what is left
+    of the spec's budget (stopped at 20 of 30, Start runs 10 more). None: the spec's own budget."""
+    if more is not None:
+        return int(more)
+    if fresh or spec.search.trials is None:
+        return None
+    return spec.search.trials - budget_used(spec)
+
+
+def run_search(spec, emit, cancel, *, fresh: bool = False, more: int | None = None) -> dict[str, Any]:
+    """What ``labbench run`` does: the search, then the winner check (in the search process).
+
+    A search resumed from the window continues the same budget; ``more`` adds that many trials."""
+    from labbench.errors import SpecError
     from labbench.search.commands import out_dir
     from labbench.search.runner import SearchRunner
     from labbench.search.winner import finalize
 
-    runner = SearchRunner(spec, emit, fresh=fresh)
+    trials = trials_to_run(spec, fresh=fresh, more=more)
+    if trials is not None and trials <= 0:
+        raise SpecError(f"all {spec.search.trials} trials of this search's budget are stored; "
+                        "choose Search ▸ Run more trials… to add some, or Start afresh")
+    runner = SearchRunner(spec, emit, fresh=fresh, trials=trials)
     outcome = runner.run(cancel)
     result: dict[str, Any] = {"outcome": outcome, "summary": None, "model": None, "files": ()}
     if outcome.cancelled or outcome.best_number is None or cancel.is_set():
@@ -83,6 +131,7 @@ class SearchSession(QObject):
     changed = Signal()            # running / watching / winner state changed
     failed = Signal(str)          # a one-line message for a dialog
     finished = Signal(object)     # the run_search result (dict) or None after an error
+    notice = Signal(str, str)     # text, "info" | "warning": for the window's notice strip
 
     def __init__(self, view, parent=None):
         super().__init__(parent)
@@ -140,7 +189,8 @@ class SearchSession(QObject):
         self.synced = False          # True once the book was checked against storage at the end
 
     # ------------------------------------------------------------------ running
-    def start(self, spec, *, fresh: bool = False, in_process: bool | None = None) -> None:
+    def start(self, spec, *, fresh: bool = False, in_process: bool | None = None,
+              more: int | None = None) -> None:
         """Run the search. By default the controller runs in a child process (``SearchProcess``)
         so its Python work never competes with the event loop; ``in_process=True`` runs it in a
         worker QThread of this process instead."""
@@ -149,12 +199,18 @@ class SearchSession(QObject):
         if self.running:
             return
         self.stop_watching()
-        self._reset()
+        url, name = resolve_url(spec), spec.study_name()
+        if fresh or (url, name) != (self.url, self.study_name) or self.book.study_name != name:
+            self._reset()
+        else:
+            # the same search continues: its stored trials stay on show while it restarts (the
+            # new run's events and the "earlier" read bring them up to date)
+            self.result = None
+            self.book.winner = None
         self.spec = spec
-        self.url = resolve_url(spec)
-        self.study_name = spec.study_name()
+        self.url, self.study_name = url, name
         in_process = self.in_process if in_process is None else in_process
-        job = functools.partial(run_search, spec, fresh=fresh)
+        job = functools.partial(run_search, spec, fresh=fresh, more=more)
         self.thread = SearchThread(job, self) if in_process else SearchProcess(job, self)
         self.thread.event.connect(self._on_event)
         self.thread.failed.connect(self._on_failed)
@@ -175,6 +231,10 @@ class SearchSession(QObject):
 
     def _on_event(self, event: ev.Event) -> None:
         self.book.apply(event)
+        if isinstance(event, ev.Notice):
+            self.notice.emit(event.text, event.level)
+        elif isinstance(event, ev.TrialEnded) and event.state == "failed":
+            self.notice.emit(f"trial {event.number} failed: {event.reason or 'no reason given'}", "warning")
         if isinstance(event, ev.SearchStarted) and event.existing_trials and self.url:
             url, name = self.url, event.study_name
             # the trials of earlier runs come from storage (new ones arrive as events)
@@ -191,6 +251,7 @@ class SearchSession(QObject):
 
     def _on_failed(self, message: str) -> None:
         self.result = None
+        self.notice.emit(f"the search stopped: {message}", "warning")
         self.failed.emit(message)
 
     def _on_outcome(self, result: dict) -> None:
