@@ -106,7 +106,8 @@ class FilesMixin:
             if not path.endswith(".toml"):
                 path += ".toml"
         try:
-            save_spec(spec, path)
+            if not self._save_in_place(spec, path):
+                save_spec(spec, path)
         except OSError as exc:
             QMessageBox.warning(self, "Cannot save", f"{path}: {exc.strerror or exc}")
             return None
@@ -116,6 +117,30 @@ class FilesMixin:
         self._remember(path)
         self.statusBar().showMessage(f"Experiment saved to {path}", 6000)
         return self.spec_path
+
+    def _save_in_place(self, spec, path: str) -> bool:
+        """Save over an existing spec file changing only the keys that changed (comments, order
+        and style survive: ``labbench.search.spec_edit``). False when there is no such file or it
+        does not read as a spec (then the whole file is written)."""
+        from labbench.errors import LabbenchError
+        from labbench.fileio import write_text
+        from labbench.search.spec import load_spec
+        from labbench.search.spec_edit import updated_text
+
+        p = Path(path)
+        if not p.is_file():
+            return False
+        try:
+            text = p.read_text(encoding="utf-8-sig")
+            old = load_spec(p)
+        except (LabbenchError, OSError, UnicodeDecodeError):
+            return False
+        base = p.resolve().parent
+        new_text = updated_text(text, old.to_dict(base, keep_password=True),
+                                spec.to_dict(base, keep_password=True))
+        if new_text != text:
+            write_text(p, new_text)
+        return True
 
     # ------------------------------------------------------------------ storage
     def watch_dialog(self) -> None:

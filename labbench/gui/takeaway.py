@@ -9,12 +9,11 @@ import logging
 from pathlib import Path
 from typing import Any, Callable
 
-from PySide6.QtCore import Qt, QUrl
+from PySide6.QtCore import QEventLoop, QObject, Qt, QTimer, QUrl, Signal
 from PySide6.QtGui import QDesktopServices, QGuiApplication
-from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
+from PySide6.QtWidgets import QFileDialog, QMessageBox, QProgressDialog, QWidget
 
 from labbench.errors import LabbenchError
-from labbench.gui.best_panel import settings_text
 
 log = logging.getLogger("labbench.gui")
 
@@ -32,6 +31,60 @@ def has(name: str) -> bool:
     return api is not None and callable(getattr(api, name, None))
 
 
+def space_text(settings: dict, *, trial: int | None = None, score: str = "") -> str:
+    """The winning settings as a ``[space]`` section ``labbench run`` reads as is: every setting
+    fixed, in the spec's own keys (hidden_layers / hidden_units, not the resolved list)."""
+    import tomlkit
+
+    from labbench.search.space import SearchSpace
+
+    fixed = SearchSpace.default().fixed_at(settings).to_dict()
+    head = "# the winning settings" + (f" (trial {trial}{', ' + score if score else ''})" if trial is not None
+                                       else "") + "; every setting fixed\n"
+    return head + tomlkit.dumps({"space": fixed})
+
+
+class _Done(QObject):
+    finished = Signal(object, object)       # result, exception
+
+
+def off_thread(window: QWidget, title: str, text: str, fn: Callable[[], Any]) -> Any:
+    """Run ``fn`` on a helper thread while the event loop keeps running; a progress dialog shows
+    after a moment. Returns ``fn``'s result or raises its exception (for ``_guard``)."""
+    import threading
+
+    done = _Done()
+    loop = QEventLoop()
+    box: dict[str, Any] = {}
+
+    def finished(result, exc) -> None:
+        box["result"], box["exc"] = result, exc
+        loop.quit()
+
+    done.finished.connect(finished, Qt.ConnectionType.QueuedConnection)
+
+    def work() -> None:
+        try:
+            result, exc = fn(), None
+        except BaseException as e:     # handed back to the GUI thread and raised there
+            result, exc = None, e
+        done.finished.emit(result, exc)
+
+    progress = QProgressDialog(text, "", 0, 0, window)
+    progress.setWindowTitle(title)
+    progress.setCancelButton(None)
+    progress.setMinimumDuration(300)
+    progress.setWindowModality(Qt.WindowModality.WindowModal)
+    threading.Thread(target=work, name="labbench-save", daemon=True).start()
+    if "exc" not in box:
+        loop.exec()
+    progress.reset()
+    progress.deleteLater()
+    if box.get("exc") is not None:
+        raise box["exc"]
+    return box.get("result")
+
+
 class Takeaway:
     """The actions' bodies; ``window`` gives the session, dialogs' parent and the status bar."""
 
@@ -39,6 +92,7 @@ class Takeaway:
         self.window = window
         self.last_dir = ""
         self.report_path: str | None = None
+        self.busy = ""
 
     # ------------------------------------------------------------------ helpers
     @property
@@ -80,6 +134,16 @@ class Takeaway:
             QMessageBox.warning(self.window, what, f"{exc.filename or ''}: {exc.strerror or exc}")
         return None
 
+    def _off(self, title: str, text: str, fn: Callable[[], Any]) -> Any:
+        """``fn`` off the GUI thread with progress; one such job at a time."""
+        if self.busy:
+            raise LabbenchError(f"{self.busy} is still being written; wait for it to finish")
+        self.busy = title
+        try:
+            return off_thread(self.window, title, text, fn)
+        finally:
+            self.busy = ""
+
     # ------------------------------------------------------------------ winner
     def summary(self) -> dict | None:
         return self.session.book.winner
@@ -94,7 +158,8 @@ class Takeaway:
         folder = folder or self._ask_dir("Folder for winner.json and winner.toml")
         if not folder:
             return None
-        files = self._guard("Save winner files", lambda: write_winner_files(spec, summary, Path(folder)))
+        files = self._guard("Save winner files", lambda: self._off("Save winner files", "Writing winner.json and winner.toml…",
+            lambda: write_winner_files(spec, summary, Path(folder))))
         if files and not self.window.quiet_dialogs:
             self._wrote("Winner files saved", files)
         return files
@@ -105,7 +170,8 @@ class Takeaway:
         settings = (summary or {}).get("settings") or (best.settings if best else None)
         if not settings:
             return None
-        text = settings_text(settings)
+        number = (summary or {}).get("trial_number", best.number if best else None)
+        text = space_text(dict(settings), trial=number)
         QGuiApplication.clipboard().setText(text)
         self._status("The winning settings are on the clipboard")
         return text
@@ -152,7 +218,7 @@ class Takeaway:
             bundle = api.save_bundle(model, path)
             return [bundle, api.write_snippet(bundle)]   # the numpy-only loader beside it
 
-        out = self._guard("Save model bundle", write)
+        out = self._guard("Save model bundle", lambda: self._off("Save model bundle", f"Writing {Path(path).name}…", write))
         return self._report_written("Model bundle saved", out, path)
 
     def export_onnx(self, path: str | None = None) -> list[str] | None:
@@ -162,7 +228,8 @@ class Takeaway:
         path = path or self._ask_file("Export ONNX", "winner.onnx", "ONNX model (*.onnx)")
         if not path:
             return None
-        out = self._guard("Export ONNX", lambda: api.export_onnx(model, path))
+        out = self._guard("Export ONNX", lambda: self._off("Export ONNX", f"Building and checking {Path(path).name}…",
+            lambda: api.export_onnx(model, path)))
         return self._report_written("ONNX model written", out, path)
 
     def write_report(self, path: str | None = None) -> list[str] | None:
