@@ -144,13 +144,15 @@ class FilesMixin:
 
     # ------------------------------------------------------------------ storage
     def watch_dialog(self) -> None:
-        url, ok = QInputDialog.getText(self, "Watch a stored search",
-                                       "Storage URL (e.g. sqlite:///path/search.db or postgresql+psycopg://user@host/db):")
-        if ok and url.strip():
-            try:
-                self.watch_storage(url.strip())
-            except LabbenchError as exc:
-                QMessageBox.warning(self, "Cannot open the storage", str(exc))
+        from labbench.gui.storage_dialog import StorageDialog
+
+        dlg = StorageDialog(self.settings, self._start_dir(), self)
+        if dlg.exec() != StorageDialog.DialogCode.Accepted or not dlg.url():
+            return
+        try:
+            self.watch_storage(dlg.url())
+        except LabbenchError as exc:
+            QMessageBox.warning(self, "Cannot open the storage", str(exc))
 
     def watch_storage(self, url: str, name: str | None = None) -> None:
         from labbench.gui.storage_list import study_names
@@ -164,7 +166,10 @@ class FilesMixin:
                 name, ok = QInputDialog.getItem(self, "Which search?", "Searches in this storage:", names, 0, False)
                 if not ok:
                     return
+        from labbench.gui.storage_dialog import remember_storage
+
         self.session.watch(url, name)
+        remember_storage(self.settings, url)
         self.steps.setCurrentRow(2)
         self.statusBar().showMessage(f"Watching search “{name}”: refreshed every few seconds", 8000)
 

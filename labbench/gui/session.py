@@ -100,6 +100,33 @@ def run_search(spec, emit, cancel, *, fresh: bool = False, more: int | None = No
     return result
 
 
+def stored_winner(url: str | None, name: str, spec=None) -> tuple[dict | None, tuple[str, ...]]:
+    """The winner check of an earlier run, when it was computed: ``winner.json`` in the folder
+    ``labbench run`` writes it to (``<spec>_out``), or beside a SQLite storage
+    (``<name>_out`` / ``<storage>_out``). Only a file for this search counts."""
+    import json
+    from pathlib import Path
+
+    places = []
+    if spec is not None:
+        from labbench.search.commands import out_dir
+
+        places.append(out_dir(spec, None))
+    if url and url.startswith("sqlite") and ":///" in url:
+        db = Path(url.split(":///", 1)[1])
+        places += [db.parent / f"{name}_out", db.parent / f"{db.stem}_out"]
+    for folder in places:
+        path = folder / "winner.json"
+        try:
+            summary = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if isinstance(summary, dict) and summary.get("study_name") == name and "settings" in summary:
+            files = tuple(str(folder / f) for f in ("winner.json", "winner.toml") if (folder / f).exists())
+            return summary, files
+    return None, ()
+
+
 class _Studies:
     """Optuna studies opened for reading, cached per (url, name); used on the reader thread only."""
 
@@ -291,6 +318,7 @@ class SearchSession(QObject):
         self.studies.cache.pop((url, name), None)
         self._poll()
         self.poll.start()
+        self.reader.submit("winner", lambda: stored_winner(url, name, spec))
         self.changed.emit()
 
     def stop_watching(self) -> None:
@@ -304,6 +332,18 @@ class SearchSession(QObject):
 
     def _read_done(self, key: str, result, error: str | None) -> None:
         if key == "warm":
+            return
+        if key == "winner":
+            summary, files = result if error is None and result else (None, ())
+            if summary is not None and not self.running and self.book.winner is None:
+                self.book.winner, self.book.winner_files = summary, files
+                self.book.version += 1
+                self.book.finished_version += 1
+                self._drawn = None
+                imp = dict(summary.get("importance") or {})
+                if imp.get("values") and hasattr(self.view, "importance"):
+                    self.view.importance.show_result(dict(imp["values"]), str(imp.get("message") or ""))
+                self.changed.emit()
             return
         if key == "importance":
             values, message = result if error is None else ({}, f"Importance could not be read: {error}")
