@@ -32,12 +32,29 @@ class PreviewModel(QAbstractTableModel):
         self.frame = pd.DataFrame()
         self.kinds: dict[str, str] = {}
         self.roles: dict[str, str] = {}
+        self.text: list[list[str]] = []          # the shown cells, made once per file
+        self.names: list[str] = []
+        self.dim = QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
 
     def set_frame(self, frame: pd.DataFrame, kinds: Mapping[str, str]) -> None:
         self.beginResetModel()
         self.frame = frame.head(PREVIEW_ROWS)
         self.kinds = dict(kinds)
+        self.names = [str(c) for c in self.frame.columns]
+        missing = self.frame.isna().to_numpy()
+        cells = self.frame.astype(str).to_numpy()
+        cells[missing] = ""
+        self.text = cells.tolist()
         self.endResetModel()
+
+    def widths(self, metrics, limit: int = 260) -> list[int]:
+        """Column widths from the longest shown text (instead of asking every cell)."""
+        out = []
+        for j, name in enumerate(self.names):
+            longest = max((row[j] for row in self.text), key=len, default="")
+            head = max(name, f"{self.kinds.get(name, '')} · ignored", key=len)
+            out.append(min(limit, max(metrics.horizontalAdvance(longest), metrics.horizontalAdvance(head)) + 18))
+        return out
 
     def set_roles(self, roles: Mapping[str, str]) -> None:
         self.roles = dict(roles)
@@ -54,15 +71,14 @@ class PreviewModel(QAbstractTableModel):
     def data(self, index: QModelIndex, role: int = Qt.ItemDataRole.DisplayRole) -> Any:
         if not index.isValid():
             return None
-        col = str(self.frame.columns[index.column()])
-        value = self.frame.iat[index.row(), index.column()]
         if role == Qt.ItemDataRole.DisplayRole:
-            return "" if pd.isna(value) else str(value)
+            return self.text[index.row()][index.column()]
+        col = self.names[index.column()]
         if role == Qt.ItemDataRole.TextAlignmentRole and self.kinds.get(col) == "numeric":
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == Qt.ItemDataRole.ForegroundRole and self.roles.get(col) == "ignored":
-            return QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
-        if role == Qt.ItemDataRole.ToolTipRole and pd.isna(value):
+            return self.dim
+        if role == Qt.ItemDataRole.ToolTipRole and self.text[index.row()][index.column()] == "":
             return "missing value"
         return None
 
@@ -220,7 +236,11 @@ class DataPage(ChecksMixin, QWidget):
         from labbench.data import infer_kinds
         from labbench.data.reading import read_file
 
-        read = read_file(path, missing_markers=tuple(missing_markers), thousands=thousands, decimal=decimal)
+        from labbench.gui.offthread import off_thread
+
+        read = off_thread(self.window(), "Open a table", f"Reading {Path(path).name}…",
+                          lambda: read_file(path, missing_markers=tuple(missing_markers),
+                                            thousands=thousands, decimal=decimal))
         frame = read.frame
         self.markers, self.thousands, self.decimal = list(missing_markers), thousands, decimal
         self.keep = []
@@ -234,7 +254,8 @@ class DataPage(ChecksMixin, QWidget):
             self._explicit_kinds = set()
             self.inferred_kinds = dict(kinds)
             self.preview_model.set_frame(frame, kinds)
-            self.preview.resizeColumnsToContents()
+            for j, width in enumerate(self.preview_model.widths(self.preview.fontMetrics())):
+                self.preview.setColumnWidth(j, width)
             self.file_label.setText(f"<b>{Path(path).name}</b> — {len(frame):,} rows × {frame.shape[1]} columns"
                                     f" <span style='color:gray'>({self.path})</span>")
             self.target_box.clear()
@@ -286,7 +307,8 @@ class DataPage(ChecksMixin, QWidget):
             kind.setEnabled(not is_target)
             roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
         self.preview_model.set_roles(roles)
-        self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
+        if not getattr(self, "_batch", False):     # set_data shows the notes once, at its end
+            self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
         self.target_scaling_box.setEnabled(self.effective_task() in (None, "regression"))
         self._check_timer.start()
 
@@ -361,7 +383,7 @@ class DataPage(ChecksMixin, QWidget):
             self._emit()
 
     def _emit(self, *_a) -> None:
-        if not self._loading:
+        if not self._loading and not getattr(self, "_batch", False):
             self.changed.emit()
 
     # ------------------------------------------------------------------ spec
@@ -413,8 +435,22 @@ class DataPage(ChecksMixin, QWidget):
 
     def set_data(self, d: Mapping[str, Any], metric: str | None = None) -> None:
         """Show a [data] section (a dict with the spec's keys; the file is read again)."""
-        self.load(d["path"], missing_markers=tuple(d.get("missing_markers") or ()),
-                  thousands=d.get("thousands"), decimal=d.get("decimal"))
+        self._batch = True
+        try:
+            self._set_data(d, metric)
+        finally:
+            self._batch = False
+        self._sync_roles()
+        self._emit()
+
+    def _set_data(self, d: Mapping[str, Any], metric: str | None) -> None:
+        markers = list(d.get("missing_markers") or ())
+        same_file = (self.frame is not None and self.path == str(Path(d["path"]).resolve())
+                     and (markers, d.get("thousands"), d.get("decimal"))
+                     == (self.markers, self.thousands, self.decimal))
+        if not same_file:       # read again only when the file or how it is read changed
+            self.load(d["path"], missing_markers=tuple(markers), thousands=d.get("thousands"),
+                      decimal=d.get("decimal"))
         kinds = dict(d.get("kinds") or {})
         self._explicit_kinds = set(kinds)
         self.keep = list(d.get("keep") or ())
@@ -433,5 +469,3 @@ class DataPage(ChecksMixin, QWidget):
         self._loading = True
         self.metric_box.setCurrentIndex(max(self.metric_box.findData(metric or AUTO), 0))
         self._loading = False
-        self._sync_roles()
-        self._emit()

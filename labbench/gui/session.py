@@ -333,7 +333,8 @@ class SearchSession(QObject):
             import optuna  # noqa: F401
             import sqlalchemy  # noqa: F401
 
-            from labbench.search import commands, insight, runner, storage, winner  # noqa: F401
+            from labbench.search import commands, insight, runner, spec_edit, storage, winner  # noqa: F401
+            from labbench.gui import search_job  # noqa: F401
             try:
                 import labbench.export  # noqa: F401
             except ImportError:

@@ -9,11 +9,12 @@ import logging
 from pathlib import Path
 from typing import Any, Callable
 
-from PySide6.QtCore import QEventLoop, QObject, Qt, QTimer, QUrl, Signal
+from PySide6.QtCore import Qt, QUrl
 from PySide6.QtGui import QDesktopServices, QGuiApplication
-from PySide6.QtWidgets import QFileDialog, QMessageBox, QProgressDialog, QWidget
+from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
 from labbench.errors import LabbenchError
+from labbench.gui.offthread import off_process, off_thread
 
 log = logging.getLogger("labbench.gui")
 
@@ -44,47 +45,6 @@ def space_text(settings: dict, *, trial: int | None = None, score: str = "") -> 
     return head + tomlkit.dumps({"space": fixed})
 
 
-class _Done(QObject):
-    finished = Signal(object, object)       # result, exception
-
-
-def off_thread(window: QWidget, title: str, text: str, fn: Callable[[], Any]) -> Any:
-    """Run ``fn`` on a helper thread while the event loop keeps running; a progress dialog shows
-    after a moment. Returns ``fn``'s result or raises its exception (for ``_guard``)."""
-    import threading
-
-    done = _Done()
-    loop = QEventLoop()
-    box: dict[str, Any] = {}
-
-    def finished(result, exc) -> None:
-        box["result"], box["exc"] = result, exc
-        loop.quit()
-
-    done.finished.connect(finished, Qt.ConnectionType.QueuedConnection)
-
-    def work() -> None:
-        try:
-            result, exc = fn(), None
-        except BaseException as e:     # handed back to the GUI thread and raised there
-            result, exc = None, e
-        done.finished.emit(result, exc)
-
-    progress = QProgressDialog(text, "", 0, 0, window)
-    progress.setWindowTitle(title)
-    progress.setCancelButton(None)
-    progress.setMinimumDuration(300)
-    progress.setWindowModality(Qt.WindowModality.WindowModal)
-    threading.Thread(target=work, name="labbench-save", daemon=True).start()
-    if "exc" not in box:
-        loop.exec()
-    progress.reset()
-    progress.deleteLater()
-    if box.get("exc") is not None:
-        raise box["exc"]
-    return box.get("result")
-
-
 class Takeaway:
     """The actions' bodies; ``window`` gives the session, dialogs' parent and the status bar."""
 
@@ -93,6 +53,7 @@ class Takeaway:
         self.last_dir = ""
         self.report_path: str | None = None
         self.busy = ""
+        self.use_processes = True      # a script without a main guard cannot spawn: False
 
     # ------------------------------------------------------------------ helpers
     @property
@@ -134,12 +95,15 @@ class Takeaway:
             QMessageBox.warning(self.window, what, f"{exc.filename or ''}: {exc.strerror or exc}")
         return None
 
-    def _off(self, title: str, text: str, fn: Callable[[], Any]) -> Any:
-        """``fn`` off the GUI thread with progress; one such job at a time."""
+    def _off(self, title: str, text: str, fn: Callable[[], Any], process: tuple | None = None) -> Any:
+        """``fn`` off the GUI thread with progress; one such job at a time. ``process``:
+        (function, *args) to run in a helper process instead, when that can start here."""
         if self.busy:
             raise LabbenchError(f"{self.busy} is still being written; wait for it to finish")
         self.busy = title
         try:
+            if process is not None and self.use_processes:
+                return off_process(self.window, title, text, *process)
             return off_thread(self.window, title, text, fn)
         finally:
             self.busy = ""
