@@ -86,7 +86,7 @@ class CostEstimate(QObject):
         self.text = result.words()
         w = self.window
         w.space.estimate.setText(self.text[0].upper() + self.text[1:])
-        self.label.setText(f"⏱ {self.text.split(' for ')[0]}")
+        self.label.setText(f"Expected time: {self.text.split(' for ')[0]}")
         tip = "Start the search (or continue the one stored for this experiment)"
         w.act_start.setToolTip(f"{tip}; expected time {self.text}")
         w.act_start.setStatusTip(f"{tip}; expected time {self.text}")

@@ -333,13 +333,13 @@ class SpacePage(QWidget):
             try:
                 SearchSpace.from_dict({name: value})
             except SpecError as exc:
-                problems[f"space.{name}"] = str(exc)
+                problems[f"space.{name}"] = plain(str(exc))     # the window's words everywhere
         if not problems:
             try:
                 SearchSpace.from_dict(raw)
             except SpecError as exc:
                 k = key_of(str(exc))
-                problems[f"{k[0]}.{k[1]}" if k else "space"] = str(exc)
+                problems[f"{k[0]}.{k[1]}" if k else "space"] = plain(str(exc))
         return problems
 
     def show_problems(self, problems: dict[str, str]) -> None:

@@ -7,8 +7,8 @@ only shows them. Its height is fixed, so a trap appearing never moves the rows u
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QFrame, QGroupBox, QHBoxLayout, QLabel, QPushButton, QScrollArea,
-                               QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QFrame, QGridLayout, QGroupBox, QLabel, QPushButton, QScrollArea,
+                               QSizePolicy, QVBoxLayout, QWidget)
 
 HEIGHT = 120
 
@@ -25,6 +25,7 @@ class TrapList(QGroupBox):
         self.scroll.setWidgetResizable(True)
         self.scroll.setFrameShape(QFrame.Shape.NoFrame)
         self.scroll.setFixedHeight(HEIGHT)
+        self.scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         outer.addWidget(self.scroll)
         self.inner = QWidget()
         self.rows = QVBoxLayout(self.inner)
@@ -59,14 +60,23 @@ class TrapList(QGroupBox):
             reason.setWordWrap(True)
             reason.setTextFormat(Qt.TextFormat.RichText)
             lay.addWidget(reason)
-            line = QHBoxLayout()
+            line = QGridLayout()          # two buttons a row: a narrow side panel never clips one
+            line.setContentsMargins(0, 0, 0, 0)
+            row = col = 0
             for r in trap.remedies:
                 b = QPushButton(r.label)
                 b.setToolTip(f"{r.label} (changes the data settings; Start uses them)")
+                b.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
                 b.clicked.connect(lambda _c=False, ch=r.change: self.remedy.emit(dict(ch)))
-                line.addWidget(b)
+                if len(r.label) > 24:           # a long label gets a row of its own
+                    if col:
+                        row, col = row + 1, 0
+                    line.addWidget(b, row, 0, 1, 2)
+                    row += 1
+                else:
+                    line.addWidget(b, row, col)
+                    row, col = (row + 1, 0) if col else (row, 1)
                 self.buttons.append(b)
-            line.addStretch(1)
             lay.addLayout(line)
             self.rows.addWidget(card)
         self.rows.addStretch(1)
