@@ -44,9 +44,11 @@ def off_thread(window: QWidget, title: str, text: str, fn: Callable[[], Any]) ->
     progress.setCancelButton(None)
     progress.setMinimumDuration(300)
     progress.setWindowModality(Qt.WindowModality.WindowModal)
-    threading.Thread(target=work, name="labbench-save", daemon=True).start()
+    worker = threading.Thread(target=work, name="labbench-save", daemon=True)
+    worker.start()
     if "exc" not in box:
         loop.exec()
+    worker.join()       # it ends right after its signal; then ``done`` is let go on this thread
     progress.reset()
     progress.deleteLater()
     if box.get("exc") is not None:

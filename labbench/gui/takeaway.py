@@ -192,8 +192,9 @@ class Takeaway:
         path = path or self._ask_file("Export ONNX", "winner.onnx", "ONNX model (*.onnx)")
         if not path:
             return None
-        out = self._guard("Export ONNX", lambda: self._off("Export ONNX", f"Building and checking {Path(path).name}…",
-            lambda: api.export_onnx(model, path)))
+        out = self._guard("Export ONNX", lambda: self._off(
+            "Export ONNX", f"Building and checking {Path(path).name}…",
+            lambda: api.export_onnx(model, path), process=(api.export_onnx, model, path)))
         return self._report_written("ONNX model written", out, path)
 
     def write_report(self, path: str | None = None) -> list[str] | None:
