@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from PySide6.QtCore import QSize, Qt
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import QToolBar
+from PySide6.QtWidgets import QDialog, QDialogButtonBox, QInputDialog, QMessageBox, QTableWidget, \
+    QTableWidgetItem, QToolBar, QVBoxLayout
 
 from labbench.gui import theme
 from labbench.gui.storage_list import masked
@@ -43,6 +44,17 @@ class ActionsMixin:
         self.act_fresh = A("Start afresh…", lambda: self.start(fresh=True), "start", "Ctrl+Shift+R",
                            "Delete the stored trials of this experiment and start over")
         self.act_stop = A("Stop", self.stop, "stop", "Ctrl+.", "Stop after the current epoch; the trials so far stay stored")
+        self.act_more = A("Run more trials…", self.run_more, "start", "Ctrl+Shift+M",
+                          "Add trials beyond the budget to the stored search")
+        self.act_undo = self.space.undo.createUndoAction(self, "Undo")
+        self.act_undo.setShortcut(QKeySequence(QKeySequence.StandardKey.Undo))
+        self.act_redo = self.space.undo.createRedoAction(self, "Redo")
+        self.act_redo.setShortcut(QKeySequence(QKeySequence.StandardKey.Redo))
+        for a in (self.act_undo, self.act_redo):
+            a.setShortcutContext(Qt.ShortcutContext.ApplicationShortcut)
+            a.setStatusTip(f"{a.text().split()[0]} the last change of a network setting on the Search page")
+        self.act_shortcuts = A("Keyboard shortcuts", self.show_shortcuts, None, "F1",
+                               "Every action with its keys")
         self.act_copy = A("Copy winning settings", self.take.copy_settings, "copy", "Ctrl+Shift+C",
                           "Put the best settings on the clipboard as TOML lines")
         self.act_winner = A("Save winner files…", self.take.save_winner, "winner", None,
@@ -71,8 +83,11 @@ class ActionsMixin:
         f.addAction(self.act_save_as)
         f.addSeparator()
         f.addAction(self.act_quit)
+        e = mb.addMenu("&Edit")
+        e.addAction(self.act_undo)
+        e.addAction(self.act_redo)
         s = mb.addMenu("&Search")
-        for a in (self.act_start, self.act_stop, self.act_fresh):
+        for a in (self.act_start, self.act_stop, self.act_more, self.act_fresh):
             s.addAction(a)
         w = mb.addMenu("&Winner")
         for a in (self.act_copy, self.act_winner, self.act_table, self.act_pictures):
@@ -86,7 +101,19 @@ class ActionsMixin:
             a.setShortcut(QKeySequence(f"Ctrl+{num}"))
             a.triggered.connect(lambda _c=False, i=i: self.steps.setCurrentRow(i))
             v.addAction(a)
+        from labbench.gui.cost import CostEstimate
+        from labbench.gui.notices import make_dock
+
+        self.notice_dock, self.notices = make_dock(self)
+        self.session.notice.connect(self.notices.add)
+        toggle = self.notice_dock.toggleViewAction()
+        toggle.setText("Notices from the search")
+        toggle.setShortcut(QKeySequence("Ctrl+Shift+N"))
+        v.addSeparator()
+        v.addAction(toggle)
+        self.cost = CostEstimate(self)
         h = mb.addMenu("&Help")
+        h.addAction(self.act_shortcuts)
         h.addAction(self._action("About labbench", self._about))
 
         tb = QToolBar("Main")
@@ -113,6 +140,7 @@ class ActionsMixin:
         self.act_start.setEnabled(ok and not running)
         self.act_fresh.setEnabled(ok and not running)
         self.act_stop.setEnabled(running and not self.session.stopping)
+        self.act_more.setEnabled(ok and not running and bool(book.records))
         self.watch.start_button.setEnabled(self.act_start.isEnabled())
         self.watch.stop_button.setEnabled(self.act_stop.isEnabled())
         for a in (self.act_open_csv, self.act_open_spec, self.act_watch):
@@ -137,3 +165,62 @@ class ActionsMixin:
             self.where_label.setText(f"storage: {masked(where)}" if where else "")
 
     # ------------------------------------------------------------------ editing and validation
+
+    def run_more(self, n: int | None = None) -> bool:
+        """Add ``n`` trials to the stored search (asked for when not given): the explicit choice
+        beside Start, which only continues the spec's own budget."""
+        if self.session.running or self.validate():
+            return False
+        if n is None:
+            n, ok = QInputDialog.getInt(self, "Run more trials", "Trials to add to the stored search:",
+                                        10, 1, 100_000)
+            if not ok:
+                return False
+        if (self.dirty or not self.spec_path) and not self.save_spec():
+            return False
+        from labbench.errors import LabbenchError
+
+        try:
+            self.session.start(self.current_spec(), more=int(n))
+        except LabbenchError as exc:
+            QMessageBox.warning(self, "Cannot start", str(exc))
+            return False
+        self.steps.setCurrentRow(2)
+        self.update_actions()
+        return True
+
+    def shortcut_rows(self) -> list[tuple[str, str]]:
+        """(action, keys) for every action of the menus that has keys, in menu order."""
+        rows, seen = [], set()
+        for top in self.menuBar().actions():
+            menu = top.menu()
+            if menu is None:
+                continue
+            for a in menu.actions():
+                keys = a.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+                if keys and id(a) not in seen:
+                    seen.add(id(a))
+                    rows.append((f"{top.text().replace('&', '')} ▸ {a.text().replace('&', '')}", keys))
+        return rows
+
+    def show_shortcuts(self) -> None:
+        rows = self.shortcut_rows()
+        dlg = QDialog(self)
+        dlg.setWindowTitle("Keyboard shortcuts")
+        lay = QVBoxLayout(dlg)
+        table = QTableWidget(len(rows), 2)
+        table.setHorizontalHeaderLabels(["Action", "Keys"])
+        table.verticalHeader().hide()
+        table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        for i, (what, keys) in enumerate(rows):
+            table.setItem(i, 0, QTableWidgetItem(what))
+            table.setItem(i, 1, QTableWidgetItem(keys))
+        table.resizeColumnsToContents()
+        table.horizontalHeader().setStretchLastSection(True)
+        lay.addWidget(table)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Close)
+        buttons.rejected.connect(dlg.reject)
+        lay.addWidget(buttons)
+        dlg.resize(520, 480)
+        self.shortcuts_dialog = dlg
+        dlg.open()

@@ -216,6 +216,8 @@ def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawn
 
     _be_nice()
     cancel = threading.Event()
+    _forward_warnings(queue)
+    _stop_on_sigterm(cancel)
 
     def watch() -> None:
         while not cancel.is_set():
@@ -243,6 +245,43 @@ def _child_main(job, queue, stop, parent_pid: int) -> None:  # runs in the spawn
         queue.put(("failed", f"the search stopped with an unexpected error: {type(exc).__name__}: {exc}"))
     finally:
         time.sleep(0.05)
+
+
+class _NoticeHandler(logging.Handler):
+    """The core's warnings (rows dropped, a fold too small, a column left out) as Notice events:
+    in the window they belong in its notice strip, not only in a terminal nobody watches."""
+
+    def __init__(self, queue):
+        super().__init__(logging.WARNING)
+        self.queue = queue
+
+    def emit(self, record: logging.LogRecord) -> None:
+        try:
+            from labbench.search import events as ev
+
+            text = record.getMessage().strip().splitlines()[0] if record.getMessage().strip() else ""
+            if text:
+                self.queue.put(("event", ev.Notice(text, "warning")))
+        except Exception:       # a notice must never stop the search
+            pass
+
+
+def _forward_warnings(queue) -> None:
+    root = logging.getLogger("labbench")
+    root.addHandler(_NoticeHandler(queue))
+    if root.level == logging.NOTSET or root.level > logging.WARNING:
+        root.setLevel(logging.WARNING)
+
+
+def _stop_on_sigterm(cancel: threading.Event) -> None:
+    """SIGTERM (a desktop logout signals every process of the session) ends the trials in flight
+    as stopped, like the window's Stop, instead of killing the search with them RUNNING."""
+    import signal
+
+    try:
+        signal.signal(signal.SIGTERM, lambda _s, _f: cancel.set())
+    except (ValueError, OSError, AttributeError):    # not the main thread / not this platform
+        pass
 
 
 class _EitherSet:

@@ -9,9 +9,8 @@ from __future__ import annotations
 from typing import Any, Iterable, Mapping, Sequence
 
 from labbench.gui.trialbook import TrialBook, TrialRecord, TrialSnapshot
+from labbench.search import ranking, states
 
-STATE_OF = {"COMPLETE": "complete", "PRUNED": "pruned", "FAIL": "failed",
-            "RUNNING": "running", "WAITING": "waiting"}
 
 
 # ---------------------------------------------------------------------------------- names
@@ -106,10 +105,8 @@ def snapshot(trial, sign: float = 1.0) -> TrialSnapshot:
     the pruner always minimises); the finished trial's ``curve`` attr holds the plain loss.
     """
     attrs = trial.user_attrs
-    state = STATE_OF.get(trial.state.name, trial.state.name.lower())
+    state = states.trial_key(trial)            # the one table of states (cancelled included)
     reason = str(attrs.get("end_reason", "") or "")
-    if state == "failed" and reason.lower().startswith("cancel"):
-        state = "cancelled"
     curve = attrs.get("curve") or {}
     if curve.get("epoch") and curve.get("val_loss"):
         epochs = tuple(int(e) for e in curve["epoch"])
@@ -149,12 +146,8 @@ def read_study(study) -> tuple[list[TrialSnapshot], int | None, Mapping[str, Any
     attrs = dict(study.user_attrs)
     sign = float(attrs.get("intermediate_sign", 1.0) or 1.0)
     snaps = [snapshot(t, sign) for t in trials]
-    best = None
-    try:
-        best = study.best_trial.number
-    except ValueError:
-        best = None
-    return snaps, best, attrs
+    best = ranking.best_trial(trials, attrs.get("direction") or study.direction.name.lower())
+    return snaps, (None if best is None else best.number), attrs
 
 
 def changed_only(snaps: Iterable[TrialSnapshot], seen: dict[int, tuple]) -> list[TrialSnapshot]:

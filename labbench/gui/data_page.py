@@ -6,16 +6,22 @@ from pathlib import Path
 from typing import Any, Mapping
 
 import pandas as pd
-from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, Signal
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, QTimer, Signal
 from PySide6.QtGui import QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QFormLayout, QGroupBox,
-                               QHBoxLayout, QHeaderView, QLabel, QPushButton, QSplitter,
+                               QHBoxLayout, QHeaderView, QLabel, QLineEdit, QPushButton, QScrollArea, QSplitter,
                                QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from labbench.gui import core, theme
+from labbench.gui.bridge import Background
+from labbench.gui.data_checks import ChecksMixin
+from labbench.gui.profile import ProfileView
+from labbench.gui.traps import TrapList
 
 PREVIEW_ROWS = 200
 AUTO = "auto"
+CHECK_DELAY_MS = 150     # the profile and the traps are recomputed this long after the last change
+TARGET_SCALINGS = ("standard", "log", "none")
 
 
 class PreviewModel(QAbstractTableModel):
@@ -26,12 +32,29 @@ class PreviewModel(QAbstractTableModel):
         self.frame = pd.DataFrame()
         self.kinds: dict[str, str] = {}
         self.roles: dict[str, str] = {}
+        self.text: list[list[str]] = []          # the shown cells, made once per file
+        self.names: list[str] = []
+        self.dim = QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
 
     def set_frame(self, frame: pd.DataFrame, kinds: Mapping[str, str]) -> None:
         self.beginResetModel()
         self.frame = frame.head(PREVIEW_ROWS)
         self.kinds = dict(kinds)
+        self.names = [str(c) for c in self.frame.columns]
+        missing = self.frame.isna().to_numpy()
+        cells = self.frame.astype(str).to_numpy()
+        cells[missing] = ""
+        self.text = cells.tolist()
         self.endResetModel()
+
+    def widths(self, metrics, limit: int = 260) -> list[int]:
+        """Column widths from the longest shown text (instead of asking every cell)."""
+        out = []
+        for j, name in enumerate(self.names):
+            longest = max((row[j] for row in self.text), key=len, default="")
+            head = max(name, f"{self.kinds.get(name, '')} · ignored", key=len)
+            out.append(min(limit, max(metrics.horizontalAdvance(longest), metrics.horizontalAdvance(head)) + 18))
+        return out
 
     def set_roles(self, roles: Mapping[str, str]) -> None:
         self.roles = dict(roles)
@@ -48,15 +71,14 @@ class PreviewModel(QAbstractTableModel):
     def data(self, index: QModelIndex, role: int = Qt.ItemDataRole.DisplayRole) -> Any:
         if not index.isValid():
             return None
-        col = str(self.frame.columns[index.column()])
-        value = self.frame.iat[index.row(), index.column()]
         if role == Qt.ItemDataRole.DisplayRole:
-            return "" if pd.isna(value) else str(value)
+            return self.text[index.row()][index.column()]
+        col = self.names[index.column()]
         if role == Qt.ItemDataRole.TextAlignmentRole and self.kinds.get(col) == "numeric":
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == Qt.ItemDataRole.ForegroundRole and self.roles.get(col) == "ignored":
-            return QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
-        if role == Qt.ItemDataRole.ToolTipRole and pd.isna(value):
+            return self.dim
+        if role == Qt.ItemDataRole.ToolTipRole and self.text[index.row()][index.column()] == "":
             return "missing value"
         return None
 
@@ -71,7 +93,7 @@ class PreviewModel(QAbstractTableModel):
         return f"{col}\n{self.kinds.get(col, '')}{tail}"
 
 
-class DataPage(QWidget):
+class DataPage(ChecksMixin, QWidget):
     """Reads the file with ``labbench.data.read_csv`` and asks the core for kinds and task."""
 
     changed = Signal()
@@ -87,6 +109,20 @@ class DataPage(QWidget):
         self.read_warnings: list[str] = []
         self._explicit_kinds: set[str] = set()
         self._loading = False
+        # [data] keys without a field of their own, carried through a rebuilt spec
+        self.keep: list[str] = []
+        self.thousands: str | None = None
+        self.decimal: str | None = None
+        self.markers: list[str] = []          # the missing markers the file was read with
+        self.profiles: dict = {}
+        self.traps: list = []
+        self.checks = Background(self)
+        self.checks.done.connect(self._checked)
+        self._check_timer = QTimer(self)
+        self._check_timer.setSingleShot(True)
+        self._check_timer.setInterval(CHECK_DELAY_MS)
+        self._check_timer.timeout.connect(self._check_now)
+        self._check_serial = 0
 
         outer = QVBoxLayout(self)
         top = QHBoxLayout()
@@ -109,7 +145,13 @@ class DataPage(QWidget):
         self.preview.horizontalHeader().setDefaultAlignment(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter)
         self.preview.verticalHeader().setDefaultSectionSize(22)
         self.preview.setToolTip(f"The first {PREVIEW_ROWS} rows of the file, as read")
-        split.addWidget(self.preview)
+        left = QWidget()
+        left_layout = QVBoxLayout(left)
+        left_layout.setContentsMargins(0, 0, 0, 0)
+        left_layout.addWidget(self.preview, 1)
+        self.profile = ProfileView()
+        left_layout.addWidget(self.profile)
+        split.addWidget(left)
 
         side = QWidget()
         side_layout = QVBoxLayout(side)
@@ -128,21 +170,36 @@ class DataPage(QWidget):
         self.scaling_box = QComboBox()
         self.scaling_box.addItems(["standard", "minmax"])
         self.scaling_box.setToolTip("How numeric columns are scaled: to mean 0 and spread 1, or into 0…1")
+        self.target_scaling_box = QComboBox()
+        self.target_scaling_box.addItems(list(TARGET_SCALINGS))
+        self.target_scaling_box.setToolTip("Regression only: how the target is scaled while training "
+                                           "(log for positive amounts spread over many magnitudes)")
+        self.markers_edit = QLineEdit()
+        self.markers_edit.setPlaceholderText("e.g. n/a, unknown, -")
+        self.markers_edit.setToolTip("Cells holding one of these words (comma separated) are read as "
+                                     "missing, besides empty cells and the usual NA markers")
         form.addRow("Target column", self.target_box)
         form.addRow("Task", self.task_box)
         form.addRow("Score by", self.metric_box)
         form.addRow("Missing values", self.missing_box)
+        form.addRow("Also missing", self.markers_edit)
         form.addRow("Scaling", self.scaling_box)
+        form.addRow("Target scaling", self.target_scaling_box)
         self.task_note = QLabel("")
         self.task_note.setWordWrap(True)
         self.task_note.setObjectName("errorText")
+        # the space is kept whether or not there is a message: nothing below moves
+        self.task_note.setFixedHeight(2 * self.task_note.fontMetrics().lineSpacing() + 4)
         form.addRow(self.task_note)
         side_layout.addWidget(goal)
+        self.trap_list = TrapList()
+        self.trap_list.remedy.connect(self.apply_remedy)
+        side_layout.addWidget(self.trap_list)
 
         cols = QGroupBox("Columns used as inputs")
         cols_layout = QVBoxLayout(cols)
-        self.columns = QTableWidget(0, 3)
-        self.columns.setHorizontalHeaderLabels(["Column", "Kind", "Use"])
+        self.columns = QTableWidget(0, 4)
+        self.columns.setHorizontalHeaderLabels(["Column", "Kind", "Use", "Flags"])
         self.columns.verticalHeader().hide()
         self.columns.horizontalHeader().setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         self.columns.setToolTip("Untick a column to leave it out (an id, a leak of the answer); "
@@ -154,24 +211,40 @@ class DataPage(QWidget):
         self.column_notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         cols_layout.addWidget(self.column_notes)
         side_layout.addWidget(cols, 1)
-        split.addWidget(side)
+        self.columns.currentCellChanged.connect(lambda row, *_a: self._show_profile_row(row))
+        self.preview.horizontalHeader().sectionClicked.connect(self._show_profile_section)
+        side_scroll = QScrollArea()          # fits a 768-pixel screen: the side scrolls, never clips
+        side_scroll.setWidgetResizable(True)
+        side_scroll.setFrameShape(QScrollArea.Shape.NoFrame)
+        side.setMinimumHeight(560)
+        side_scroll.setWidget(side)
+        split.addWidget(side_scroll)
         split.setStretchFactor(0, 3)
         split.setStretchFactor(1, 2)
         outer.addWidget(split, 1)
 
         self.target_box.currentTextChanged.connect(self._target_changed)
         self.task_box.currentIndexChanged.connect(self._task_changed)
-        for box in (self.metric_box, self.missing_box, self.scaling_box):
+        for box in (self.metric_box, self.missing_box, self.scaling_box, self.target_scaling_box):
             box.currentIndexChanged.connect(self._emit)
+        self.markers_edit.editingFinished.connect(self._markers_edited)
 
     # ------------------------------------------------------------------ loading
-    def load(self, path: str) -> None:
+    def load(self, path: str, *, missing_markers=(), thousands: str | None = None,
+             decimal: str | None = None) -> None:
         """Read the file (raises the core's DataError) and fill the page."""
         from labbench.data import infer_kinds
         from labbench.data.reading import read_file
 
-        read = read_file(path)
+        from labbench.gui.offthread import off_thread
+
+        read = off_thread(self.window(), "Open a table", f"Reading {Path(path).name}…",
+                          lambda: read_file(path, missing_markers=tuple(missing_markers),
+                                            thousands=thousands, decimal=decimal))
         frame = read.frame
+        self.markers, self.thousands, self.decimal = list(missing_markers), thousands, decimal
+        self.keep = []
+        self.markers_edit.setText(", ".join(self.markers))
         self.read_warnings = [w.replace(str(path), Path(path).name) for w in read.warnings]
         kinds = infer_kinds(frame)
         self._loading = True
@@ -181,7 +254,8 @@ class DataPage(QWidget):
             self._explicit_kinds = set()
             self.inferred_kinds = dict(kinds)
             self.preview_model.set_frame(frame, kinds)
-            self.preview.resizeColumnsToContents()
+            for j, width in enumerate(self.preview_model.widths(self.preview.fontMetrics())):
+                self.preview.setColumnWidth(j, width)
             self.file_label.setText(f"<b>{Path(path).name}</b> — {len(frame):,} rows × {frame.shape[1]} columns"
                                     f" <span style='color:gray'>({self.path})</span>")
             self.target_box.clear()
@@ -212,6 +286,9 @@ class DataPage(QWidget):
             use.setToolTip(f"Use “{name}” as an input")
             use.toggled.connect(self._kinds_changed)
             self.columns.setCellWidget(row, 2, use)
+            flags = QTableWidgetItem("")
+            flags.setFlags(flags.flags() & ~Qt.ItemFlag.ItemIsEditable)
+            self.columns.setItem(row, 3, flags)
         self.columns.resizeColumnToContents(1)
         self.columns.resizeColumnToContents(2)
         self._sync_roles()
@@ -230,7 +307,10 @@ class DataPage(QWidget):
             kind.setEnabled(not is_target)
             roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
         self.preview_model.set_roles(roles)
-        self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
+        if not getattr(self, "_batch", False):     # set_data shows the notes once, at its end
+            self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
+        self.target_scaling_box.setEnabled(self.effective_task() in (None, "regression"))
+        self._check_timer.start()
 
     def _show_column_notes(self, target: str, features: list[str]) -> None:
         """The notices ``labbench run`` prints for these columns (one shared rule in the core)."""
@@ -242,7 +322,7 @@ class DataPage(QWidget):
             rows = self.frame[self.frame[target].notna()]
             try:
                 notes += screen_columns(rows, features, Path(self.path or "").name,
-                                        forced=self._explicit_kinds)[1]
+                                        forced=self._explicit_kinds | set(self.keep))[1]
             except LabbenchError as exc:
                 notes.append(str(exc))
         self.column_notes.setText("\n".join(notes))
@@ -303,7 +383,7 @@ class DataPage(QWidget):
             self._emit()
 
     def _emit(self, *_a) -> None:
-        if not self._loading:
+        if not self._loading and not getattr(self, "_batch", False):
             self.changed.emit()
 
     # ------------------------------------------------------------------ spec
@@ -333,25 +413,59 @@ class DataPage(QWidget):
             d["kinds"] = kinds
         d["missing"] = self.missing_box.currentText()
         d["scaling"] = self.scaling_box.currentText()
+        d["target_scaling"] = self.target_scaling_box.currentText()
+        if self.markers:
+            d["missing_markers"] = list(self.markers)
+        if self.thousands is not None:
+            d["thousands"] = self.thousands
+        if self.decimal is not None:
+            d["decimal"] = self.decimal
+        keep = [c for c in self.keep if c not in ignore and c != target]
+        if keep:
+            d["keep"] = keep
         return d
 
     def set_from_spec(self, data, metric: str | None) -> None:
         """Show a loaded spec's [data] (the file is read again; DataError propagates)."""
-        self.load(data.path)
-        self._explicit_kinds = set(data.kinds)
+        self.set_data({"path": data.path, "target": data.target, "ignore": list(data.ignore),
+                       "task": data.task, "kinds": dict(data.kinds), "missing": data.missing,
+                       "scaling": data.scaling, "target_scaling": data.target_scaling,
+                       "missing_markers": list(data.missing_markers), "thousands": data.thousands,
+                       "decimal": data.decimal, "keep": list(data.keep)}, metric)
+
+    def set_data(self, d: Mapping[str, Any], metric: str | None = None) -> None:
+        """Show a [data] section (a dict with the spec's keys; the file is read again)."""
+        self._batch = True
+        try:
+            self._set_data(d, metric)
+        finally:
+            self._batch = False
+        self._sync_roles()
+        self._emit()
+
+    def _set_data(self, d: Mapping[str, Any], metric: str | None) -> None:
+        markers = list(d.get("missing_markers") or ())
+        same_file = (self.frame is not None and self.path == str(Path(d["path"]).resolve())
+                     and (markers, d.get("thousands"), d.get("decimal"))
+                     == (self.markers, self.thousands, self.decimal))
+        if not same_file:       # read again only when the file or how it is read changed
+            self.load(d["path"], missing_markers=tuple(markers), thousands=d.get("thousands"),
+                      decimal=d.get("decimal"))
+        kinds = dict(d.get("kinds") or {})
+        self._explicit_kinds = set(kinds)
+        self.keep = list(d.get("keep") or ())
         self._loading = True
-        self.target_box.setCurrentText(data.target)
+        self.target_box.setCurrentText(d["target"])
         self._loading = False
-        self._target_changed(data.target)
+        self._target_changed(d["target"])
         self._loading = True
-        self._fill_columns(list(data.ignore), dict(data.kinds))
-        self.task_box.setCurrentIndex(max(self.task_box.findData(data.task or AUTO), 0))
-        self.missing_box.setCurrentText(data.missing)
-        self.scaling_box.setCurrentText(data.scaling)
+        self._fill_columns(list(d.get("ignore") or ()), kinds)
+        self.task_box.setCurrentIndex(max(self.task_box.findData(d.get("task") or AUTO), 0))
+        self.missing_box.setCurrentText(d.get("missing", "impute"))
+        self.scaling_box.setCurrentText(d.get("scaling", "standard"))
+        self.target_scaling_box.setCurrentText(d.get("target_scaling", "standard"))
         self._loading = False
         self._task_changed()
         self._loading = True
         self.metric_box.setCurrentIndex(max(self.metric_box.findData(metric or AUTO), 0))
         self._loading = False
-        self._sync_roles()
-        self._emit()

@@ -59,6 +59,7 @@ class FilesMixin:
             self.data.load(path)
         finally:
             self.unsetCursor()
+        self.space.use_default_space()      # a new table starts from a searched space, as the CLI does
         self.spec_path = None
         self.dirty = True
         self.steps.setCurrentRow(0)
@@ -105,7 +106,8 @@ class FilesMixin:
             if not path.endswith(".toml"):
                 path += ".toml"
         try:
-            save_spec(spec, path)
+            if not self._save_in_place(spec, path):
+                save_spec(spec, path)
         except OSError as exc:
             QMessageBox.warning(self, "Cannot save", f"{path}: {exc.strerror or exc}")
             return None
@@ -116,15 +118,41 @@ class FilesMixin:
         self.statusBar().showMessage(f"Experiment saved to {path}", 6000)
         return self.spec_path
 
+    def _save_in_place(self, spec, path: str) -> bool:
+        """Save over an existing spec file changing only the keys that changed (comments, order
+        and style survive: ``labbench.search.spec_edit``). False when there is no such file or it
+        does not read as a spec (then the whole file is written)."""
+        from labbench.errors import LabbenchError
+        from labbench.fileio import write_text
+        from labbench.search.spec import load_spec
+        from labbench.search.spec_edit import updated_text
+
+        p = Path(path)
+        if not p.is_file():
+            return False
+        try:
+            text = p.read_text(encoding="utf-8-sig")
+            old = load_spec(p)
+        except (LabbenchError, OSError, UnicodeDecodeError):
+            return False
+        base = p.resolve().parent
+        new_text = updated_text(text, old.to_dict(base, keep_password=True),
+                                spec.to_dict(base, keep_password=True))
+        if new_text != text:
+            write_text(p, new_text)
+        return True
+
     # ------------------------------------------------------------------ storage
     def watch_dialog(self) -> None:
-        url, ok = QInputDialog.getText(self, "Watch a stored search",
-                                       "Storage URL (e.g. sqlite:///path/search.db or postgresql+psycopg://user@host/db):")
-        if ok and url.strip():
-            try:
-                self.watch_storage(url.strip())
-            except LabbenchError as exc:
-                QMessageBox.warning(self, "Cannot open the storage", str(exc))
+        from labbench.gui.storage_dialog import StorageDialog
+
+        dlg = StorageDialog(self.settings, self._start_dir(), self)
+        if dlg.exec() != StorageDialog.DialogCode.Accepted or not dlg.url():
+            return
+        try:
+            self.watch_storage(dlg.url())
+        except LabbenchError as exc:
+            QMessageBox.warning(self, "Cannot open the storage", str(exc))
 
     def watch_storage(self, url: str, name: str | None = None) -> None:
         from labbench.gui.storage_list import study_names
@@ -138,7 +166,10 @@ class FilesMixin:
                 name, ok = QInputDialog.getItem(self, "Which search?", "Searches in this storage:", names, 0, False)
                 if not ok:
                     return
+        from labbench.gui.storage_dialog import remember_storage
+
         self.session.watch(url, name)
+        remember_storage(self.settings, url)
         self.steps.setCurrentRow(2)
         self.statusBar().showMessage(f"Watching search “{name}”: refreshed every few seconds", 8000)
 

@@ -17,6 +17,7 @@ from labbench.gui import core, theme
 import functools
 
 from labbench.gui.bridge import Background, SearchProcess, SearchThread
+from labbench.gui.search_job import budget_used, run_search, stored_winner, trials_to_run  # noqa: F401
 from labbench.gui.trialbook import TrialBook
 from labbench.search import events as ev
 
@@ -26,22 +27,6 @@ REDRAW_MS = 40          # the plots redraw at most this often, never per event
 POLL_MS = 2000          # storage poll while watching a search run elsewhere
 IMPORTANCE_S = 4.0      # importance is recomputed at most this often
 SYNC_MS = 5000          # during a run, finished trials are checked against storage this often
-
-
-def run_search(spec, emit, cancel, *, fresh: bool = False) -> dict[str, Any]:
-    """What ``labbench run`` does: the search, then the one ending (in the search process):
-    ``labbench.search.ending.finish_search`` writes every file into ``<spec name>_out``."""
-    from labbench.search.ending import finish_search
-    from labbench.search.runner import SearchRunner
-
-    runner = SearchRunner(spec, emit, fresh=fresh)
-    outcome = runner.run(cancel)
-    result: dict[str, Any] = {"outcome": outcome, "summary": None, "model": None, "files": ()}
-    if outcome.cancelled or outcome.best_number is None or cancel.is_set():
-        return result
-    summary, model, files = finish_search(spec, runner.study, runner.prepared, None, emit)
-    result.update(summary=summary, model=model, files=tuple(files))
-    return result
 
 
 class _Studies:
@@ -77,6 +62,7 @@ class SearchSession(QObject):
     changed = Signal()            # running / watching / winner state changed
     failed = Signal(str)          # a one-line message for a dialog
     finished = Signal(object)     # the run_search result (dict) or None after an error
+    notice = Signal(str, str)     # text, "info" | "warning": for the window's notice strip
 
     def __init__(self, view, parent=None):
         super().__init__(parent)
@@ -134,7 +120,8 @@ class SearchSession(QObject):
         self.synced = False          # True once the book was checked against storage at the end
 
     # ------------------------------------------------------------------ running
-    def start(self, spec, *, fresh: bool = False, in_process: bool | None = None) -> None:
+    def start(self, spec, *, fresh: bool = False, in_process: bool | None = None,
+              more: int | None = None) -> None:
         """Run the search. By default the controller runs in a child process (``SearchProcess``)
         so its Python work never competes with the event loop; ``in_process=True`` runs it in a
         worker QThread of this process instead."""
@@ -143,12 +130,18 @@ class SearchSession(QObject):
         if self.running:
             return
         self.stop_watching()
-        self._reset()
+        url, name = resolve_url(spec), spec.study_name()
+        if fresh or (url, name) != (self.url, self.study_name) or self.book.study_name != name:
+            self._reset()
+        else:
+            # the same search continues: its stored trials stay on show while it restarts (the
+            # new run's events and the "earlier" read bring them up to date)
+            self.result = None
+            self.book.winner = None
         self.spec = spec
-        self.url = resolve_url(spec)
-        self.study_name = spec.study_name()
+        self.url, self.study_name = url, name
         in_process = self.in_process if in_process is None else in_process
-        job = functools.partial(run_search, spec, fresh=fresh)
+        job = functools.partial(run_search, spec, fresh=fresh, more=more)
         self.thread = SearchThread(job, self) if in_process else SearchProcess(job, self)
         self.thread.event.connect(self._on_event)
         self.thread.failed.connect(self._on_failed)
@@ -169,6 +162,10 @@ class SearchSession(QObject):
 
     def _on_event(self, event: ev.Event) -> None:
         self.book.apply(event)
+        if isinstance(event, ev.Notice):
+            self.notice.emit(event.text, event.level)
+        elif isinstance(event, ev.TrialEnded) and event.state == "failed":
+            self.notice.emit(f"trial {event.number} failed: {event.reason or 'no reason given'}", "warning")
         if isinstance(event, ev.SearchStarted) and event.existing_trials and self.url:
             url, name = self.url, event.study_name
             # the trials of earlier runs come from storage (new ones arrive as events)
@@ -185,6 +182,7 @@ class SearchSession(QObject):
 
     def _on_failed(self, message: str) -> None:
         self.result = None
+        self.notice.emit(f"the search stopped: {message}", "warning")
         self.failed.emit(message)
 
     def _on_outcome(self, result: dict) -> None:
@@ -224,6 +222,7 @@ class SearchSession(QObject):
         self.studies.cache.pop((url, name), None)
         self._poll()
         self.poll.start()
+        self.reader.submit("winner", lambda: stored_winner(url, name, spec))
         self.changed.emit()
 
     def stop_watching(self) -> None:
@@ -237,6 +236,18 @@ class SearchSession(QObject):
 
     def _read_done(self, key: str, result, error: str | None) -> None:
         if key == "warm":
+            return
+        if key == "winner":
+            summary, files = result if error is None and result else (None, ())
+            if summary is not None and not self.running and self.book.winner is None:
+                self.book.winner, self.book.winner_files = summary, files
+                self.book.version += 1
+                self.book.finished_version += 1
+                self._drawn = None
+                imp = dict(summary.get("importance") or {})
+                if imp.get("values") and hasattr(self.view, "importance"):
+                    self.view.importance.show_result(dict(imp["values"]), str(imp.get("message") or ""))
+                self.changed.emit()
             return
         if key == "importance":
             values, message = result if error is None else ({}, f"Importance could not be read: {error}")
@@ -324,7 +335,8 @@ class SearchSession(QObject):
             import optuna  # noqa: F401
             import sqlalchemy  # noqa: F401
 
-            from labbench.search import commands, insight, runner, storage, winner  # noqa: F401
+            from labbench.search import commands, insight, runner, spec_edit, storage, winner  # noqa: F401
+            from labbench.gui import search_job  # noqa: F401
             try:
                 import labbench.export  # noqa: F401
             except ImportError:

@@ -7,11 +7,13 @@ import re
 from typing import Any
 
 from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QUndoCommand, QUndoStack
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout,
-                               QGroupBox, QHBoxLayout, QLabel, QLineEdit, QScrollArea, QSpinBox,
-                               QVBoxLayout, QWidget)
+                               QGroupBox, QHBoxLayout, QLabel, QLineEdit, QScrollArea, QSizePolicy,
+                               QSpinBox, QVBoxLayout, QWidget)
 
 from labbench.gui.setting_row import SettingRow
+from labbench.gui.wording import plain
 
 KEY = re.compile(r"(?:^|: )(data|evaluation|search|space)\.([A-Za-z_0-9]+)")
 
@@ -30,6 +32,43 @@ TIPS = {
     "storage": "Database the trials are kept in; empty means a SQLite file next to the spec file.",
     "name": "Name of the search inside the storage; empty means the spec file's name.",
 }
+
+
+def error_label() -> QLabel:
+    """An inline message line whose space is always kept: a message appearing moves nothing."""
+    err = QLabel("")
+    err.setObjectName("errorText")
+    err.setWordWrap(False)
+    err.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
+    err.setFixedHeight(err.fontMetrics().lineSpacing() + 2)
+    return err
+
+
+class SpaceEdit(QUndoCommand):
+    """One change of one network setting; consecutive edits of the same setting merge."""
+
+    def __init__(self, page: "SpacePage", name: str, before, after):
+        super().__init__(f"change {page.rows[name].info.label.lower()}")
+        self.page, self.name, self.before, self.after = page, name, before, after
+        self.first = True
+
+    def id(self) -> int:
+        return 7301
+
+    def mergeWith(self, other) -> bool:
+        if not isinstance(other, SpaceEdit) or other.name != self.name:
+            return False
+        self.after = other.after
+        return True
+
+    def redo(self) -> None:
+        if self.first:          # the editor already shows it
+            self.first = False
+            return
+        self.page._put(self.name, self.after)
+
+    def undo(self) -> None:
+        self.page._put(self.name, self.before)
 
 
 def key_of(message: str) -> tuple[str, str] | None:
@@ -73,14 +112,11 @@ class SpacePage(QWidget):
             row = SettingRow(info)
             row.setToolTip(info.help)
             label.setBuddy(row.mode)
-            err = QLabel("")
-            err.setObjectName("errorText")
-            err.setWordWrap(True)
-            err.hide()
+            err = error_label()
             grid.addWidget(label, 2 * i, 0, Qt.AlignmentFlag.AlignTop)
             grid.addWidget(row, 2 * i, 1)
             grid.addWidget(err, 2 * i + 1, 1)
-            row.changed.connect(self._changed)
+            row.changed.connect(lambda name=name: self._row_changed(name))
             self.rows[name] = row
             self.errors[f"space.{name}"] = err
         page.addWidget(net)
@@ -139,21 +175,69 @@ class SpacePage(QWidget):
         self._add(g, "search", "workers", "Workers", self.workers)
         self._add(g, "search", "storage", "Storage URL", self.storage)
         self._add(g, "search", "name", "Search name", self.name)
+        self.estimate = QLabel("Open a table to see how long the search will take.")
+        self.estimate.setObjectName("costEstimate")
+        self.estimate.setWordWrap(True)
+        self.estimate.setToolTip("")
+        g.addRow("Expected time", self.estimate)
         lower.addWidget(se, 1)
         page.addLayout(lower)
         page.addStretch(1)
         self._quiet = False
+        self.undo = QUndoStack(self)
         self._defaults()
+        self._last = self.space_dict()
 
     def _defaults(self) -> None:
         """Start from the spec's own defaults (labbench.search.spec), not from guesses here."""
         from labbench.search.spec import EvaluationSpec, SearchSettings
 
+        from labbench.search.defaults import default_space_dict
+
         self._quiet = True
         try:
             self._show_run_fields(EvaluationSpec(), SearchSettings())
+            for name, raw in default_space_dict().items():
+                if name in self.rows:
+                    self.rows[name].set_raw(raw)
         finally:
             self._quiet = False
+
+    def use_default_space(self) -> None:
+        """A new table: the searched space the command line uses for a spec without [space]."""
+        from labbench.search.defaults import default_space_dict
+        from labbench.search.space import SearchSpace
+
+        self._quiet = True
+        try:
+            for name, raw in SearchSpace.from_dict(default_space_dict()).to_dict().items():
+                if name in self.rows:
+                    self.rows[name].set_raw(raw)
+        finally:
+            self._quiet = False
+        self._last = self.space_dict()
+        self.undo.clear()
+        self.changed.emit()
+
+    def _row_changed(self, name: str) -> None:
+        if self._quiet:
+            return
+        now = self.rows[name].raw()
+        before = self._last.get(name)
+        self._last[name] = now
+        if now != before:
+            self.undo.push(SpaceEdit(self, name, before, now))
+        self._changed()
+
+    def _put(self, name: str, raw) -> None:
+        """Undo / redo: show ``raw`` in the setting's editors."""
+        self._quiet = True
+        try:
+            self.rows[name].set_raw(raw)
+        finally:
+            self._quiet = False
+        self._last[name] = self.rows[name].raw()
+        self.changed.emit()
 
     def _show_run_fields(self, e, s) -> None:
         """Put evaluation settings ``e`` and search settings ``s`` into their fields."""
@@ -190,10 +274,7 @@ class SpacePage(QWidget):
         for child in w.findChildren(QWidget):
             child.setToolTip(tip)
         form.addRow(lab, w)
-        err = QLabel("")
-        err.setObjectName("errorText")
-        err.setWordWrap(True)
-        err.hide()
+        err = error_label()
         form.addRow(err)
         self.errors[f"{section}.{key}"] = err
 
@@ -236,6 +317,8 @@ class SpacePage(QWidget):
             self._show_run_fields(spec.evaluation, spec.search)
         finally:
             self._quiet = False
+        self._last = self.space_dict()
+        self.undo.clear()
         self.changed.emit()
 
     # ------------------------------------------------------------------ validation
@@ -250,24 +333,24 @@ class SpacePage(QWidget):
             try:
                 SearchSpace.from_dict({name: value})
             except SpecError as exc:
-                problems[f"space.{name}"] = str(exc)
+                problems[f"space.{name}"] = plain(str(exc))     # the window's words everywhere
         if not problems:
             try:
                 SearchSpace.from_dict(raw)
             except SpecError as exc:
                 k = key_of(str(exc))
-                problems[f"{k[0]}.{k[1]}" if k else "space"] = str(exc)
+                problems[f"{k[0]}.{k[1]}" if k else "space"] = plain(str(exc))
         return problems
 
     def show_problems(self, problems: dict[str, str]) -> None:
         loose = []
         for key, label in self.errors.items():
-            text = problems.get(key, "")
+            text = plain(problems.get(key, ""))
             label.setText(text)
-            label.setVisible(bool(text))
+            label.setToolTip(text)
         for key, text in problems.items():
             if key not in self.errors:
-                loose.append(text)
+                loose.append(plain(text))
         self.banner.setText("\n".join(loose))
         self.banner.setVisible(bool(loose))
 

@@ -14,7 +14,7 @@ from PySide6.QtGui import QDesktopServices, QGuiApplication
 from PySide6.QtWidgets import QFileDialog, QMessageBox, QWidget
 
 from labbench.errors import LabbenchError
-from labbench.gui.best_panel import settings_text
+from labbench.gui.offthread import off_process, off_thread
 
 log = logging.getLogger("labbench.gui")
 
@@ -32,6 +32,19 @@ def has(name: str) -> bool:
     return api is not None and callable(getattr(api, name, None))
 
 
+def space_text(settings: dict, *, trial: int | None = None, score: str = "") -> str:
+    """The winning settings as a ``[space]`` section ``labbench run`` reads as is: every setting
+    fixed, in the spec's own keys (hidden_layers / hidden_units, not the resolved list)."""
+    import tomlkit
+
+    from labbench.search.space import SearchSpace
+
+    fixed = SearchSpace.default().fixed_at(settings).to_dict()
+    head = "# the winning settings" + (f" (trial {trial}{', ' + score if score else ''})" if trial is not None
+                                       else "") + "; every setting fixed\n"
+    return head + tomlkit.dumps({"space": fixed})
+
+
 class Takeaway:
     """The actions' bodies; ``window`` gives the session, dialogs' parent and the status bar."""
 
@@ -39,6 +52,8 @@ class Takeaway:
         self.window = window
         self.last_dir = ""
         self.report_path: str | None = None
+        self.busy = ""
+        self.use_processes = True      # a script without a main guard cannot spawn: False
 
     # ------------------------------------------------------------------ helpers
     @property
@@ -80,6 +95,19 @@ class Takeaway:
             QMessageBox.warning(self.window, what, f"{exc.filename or ''}: {exc.strerror or exc}")
         return None
 
+    def _off(self, title: str, text: str, fn: Callable[[], Any], process: tuple | None = None) -> Any:
+        """``fn`` off the GUI thread with progress; one such job at a time. ``process``:
+        (function, *args) to run in a helper process instead, when that can start here."""
+        if self.busy:
+            raise LabbenchError(f"{self.busy} is still being written; wait for it to finish")
+        self.busy = title
+        try:
+            if process is not None and self.use_processes:
+                return off_process(self.window, title, text, *process)
+            return off_thread(self.window, title, text, fn)
+        finally:
+            self.busy = ""
+
     # ------------------------------------------------------------------ winner
     def summary(self) -> dict | None:
         return self.session.book.winner
@@ -94,7 +122,8 @@ class Takeaway:
         folder = folder or self._ask_dir("Folder for winner.json and winner.toml")
         if not folder:
             return None
-        files = self._guard("Save winner files", lambda: write_winner_files(spec, summary, Path(folder)))
+        files = self._guard("Save winner files", lambda: self._off("Save winner files", "Writing winner.json and winner.toml…",
+            lambda: write_winner_files(spec, summary, Path(folder))))
         if files and not self.window.quiet_dialogs:
             self._wrote("Winner files saved", files)
         return files
@@ -105,7 +134,8 @@ class Takeaway:
         settings = (summary or {}).get("settings") or (best.settings if best else None)
         if not settings:
             return None
-        text = settings_text(settings)
+        number = (summary or {}).get("trial_number", best.number if best else None)
+        text = space_text(dict(settings), trial=number)
         QGuiApplication.clipboard().setText(text)
         self._status("The winning settings are on the clipboard")
         return text
@@ -152,7 +182,7 @@ class Takeaway:
             bundle = api.save_bundle(model, path)
             return [bundle, api.write_snippet(bundle)]   # the numpy-only loader beside it
 
-        out = self._guard("Save model bundle", write)
+        out = self._guard("Save model bundle", lambda: self._off("Save model bundle", f"Writing {Path(path).name}…", write))
         return self._report_written("Model bundle saved", out, path)
 
     def export_onnx(self, path: str | None = None) -> list[str] | None:
@@ -162,7 +192,9 @@ class Takeaway:
         path = path or self._ask_file("Export ONNX", "winner.onnx", "ONNX model (*.onnx)")
         if not path:
             return None
-        out = self._guard("Export ONNX", lambda: api.export_onnx(model, path))
+        out = self._guard("Export ONNX", lambda: self._off(
+            "Export ONNX", f"Building and checking {Path(path).name}…",
+            lambda: api.export_onnx(model, path), process=(api.export_onnx, model, path)))
         return self._report_written("ONNX model written", out, path)
 
     def write_report(self, path: str | None = None) -> list[str] | None:

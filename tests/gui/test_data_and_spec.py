@@ -10,6 +10,7 @@ from PySide6.QtGui import QDropEvent
 
 from labbench.data import read_csv
 from labbench.errors import DataError, SpecError
+from labbench.gui.wording import plain
 from labbench.search.space import SearchSpace
 from labbench.search.spec import load_spec
 
@@ -76,10 +77,15 @@ def test_inline_validation_shows_the_space_error_next_to_the_setting(make_window
     with pytest.raises(SpecError) as expected:
         SearchSpace.from_dict({"learning_rate": {"low": 0.1, "high": 0.001}})
     label = w.space.errors["space.learning_rate"]
-    assert label.text() == str(expected.value) and not label.isHidden()
+    # the core's message in the window's words: the field's label, no spec-file syntax
+    assert label.text() == plain(str(expected.value))
+    assert label.text().startswith("Learning rate: ") and "low =" not in label.text()
     assert not w.act_start.isEnabled()
+    below = w.space.rows["hidden_layers"].mapTo(w, w.space.rows["hidden_layers"].rect().topLeft())
     row.set_raw({"low": 0.001, "high": 0.1, "log": True})
-    assert label.isHidden() and w.act_start.isEnabled()
+    assert label.text() == "" and w.act_start.isEnabled()
+    # the message line keeps its space: the rows below did not move when it went away
+    assert w.space.rows["hidden_layers"].mapTo(w, w.space.rows["hidden_layers"].rect().topLeft()) == below
     # text that is not a number goes to the core as text, and the core says what is wrong
     w.space.rows["epochs"].fixed.setText("ten")
     assert '"ten" is not a whole number' in w.space.errors["space.epochs"].text()

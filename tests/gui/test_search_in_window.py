@@ -106,7 +106,15 @@ def test_a_short_search_end_to_end(make_window, orchard_csv, tmp_path, qtbot):
     assert not fixed.space.searched_params()
     text = w.take.copy_settings()
     assert QGuiApplication.clipboard().text() == text
-    assert tomllib.loads(text) == summary["settings"]
+    # the clipboard is a [space] section `labbench run` reads as is (it once held `hidden = [128]`,
+    # which the spec reader refuses): pasted under the spec's [data], it fixes every setting to
+    # the winner's
+    pasted = (tmp_path / "orchard.toml").read_text(encoding="utf-8").split("[space]")[0] + text
+    (tmp_path / "pasted.toml").write_text(pasted, encoding="utf-8")
+    spec = load_spec(tmp_path / "pasted.toml")
+    assert not spec.space.searched_params()
+    assert spec.space == spec.space.fixed_at(summary["settings"])
+    assert spec.space.fixed_at(summary["settings"]).to_dict() == tomllib.loads(text)["space"]
 
     assert w.act_bundle.isEnabled() and w.act_onnx.isEnabled() and w.act_report.isEnabled()
     from labbench.data import read_csv
