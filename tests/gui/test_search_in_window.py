@@ -159,7 +159,12 @@ def test_stop_mid_search_leaves_nothing_running_and_resumes(make_window, orchard
     qtbot.waitUntil(lambda: again.session.synced, timeout=LONG)
     assert len(again.session.book.records) == before
     again.space.rows["epochs"].set_raw(2)
-    again.space.trials.setValue(2)
+    # resuming continues the same budget: the trials stored count against it (not the cancelled)
+    from labbench.gui.search_job import budget_used
+
+    used = budget_used(again.current_spec())
+    assert used == len([t for t in study.get_trials() if t not in stopped])
+    again.space.trials.setValue(used + 2)
     assert again.start()
     qtbot.waitUntil(lambda: not again.session.running and again.session.synced, timeout=LONG)
     numbers = sorted(t.number for t in study_of(tmp_path / "long.db", "long").get_trials())
