@@ -59,8 +59,12 @@ class Estimate:
         if self.at_most_minutes is None:
             return (f"about {_duration(self.seconds_per_epoch)} per epoch of a trial; "
                     "the time limit ends the search")
-        return (f"about {_minutes(self.typical_minutes)}, at most {_minutes(self.at_most_minutes)} "
-                f"for {self.trials} trial{'s' if self.trials != 1 else ''} on this machine")
+        most = _minutes(self.at_most_minutes)
+        if most == "under a minute":      # "about under a minute, at most under a minute" says it twice
+            span = "under a minute"
+        else:
+            span = f"about {_minutes(self.typical_minutes)}, at most {most}"
+        return f"{span} for {self.trials} trial{'s' if self.trials != 1 else ''} on this machine"
 
 
 def _duration(seconds: float) -> str:
