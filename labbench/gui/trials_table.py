@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import csv
-import math
 from pathlib import Path
 from typing import Any
 
@@ -14,16 +13,18 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QHBoxLayout, QHeade
 
 from labbench.gui import core, theme
 from labbench.gui.trialbook import TrialBook, TrialRecord
+from labbench.numbers import number
+from labbench.search import states
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-FILTERS = [("every state", None), ("finished", {"complete"}), ("stopped early", {"pruned"}),
-           ("failed or stopped by you", {"failed", "cancelled"}), ("training now", {"running", "waiting"})]
+_W = states.WORDS          # the one table of state words
+FILTERS = [("every state", None), (_W["complete"], {"complete"}), (_W["pruned"], {"pruned"}),
+           (f"{_W['failed']} or {_W['cancelled']}", {"failed", "cancelled"}),
+           (f"{_W['running']} now", {"running", "waiting"})]
 
 
 def _fmt(v: float | None, digits: int = 4) -> str:
-    if v is None or (isinstance(v, float) and math.isnan(v)):
-        return ""
-    return f"{v:.{digits}g}"
+    return number(v, digits, missing="")      # the one number format (labbench.numbers)
 
 
 class TrialsModel(QAbstractTableModel):
