@@ -29,40 +29,34 @@ user"; the run ends with ``SearchEnded(reason="cancelled")`` and returns normall
 from __future__ import annotations
 
 import logging
-import math
 import os
 import threading
 import time
-from typing import Any, Mapping
 
 import optuna
-from optuna.exceptions import UpdateFinishedTrialError
 from optuna.trial import TrialState
 
 from labbench import errors
 from labbench.errors import LabbenchError, SpecError
 from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
-                                         best_of, count_states, eta, positive, study_attrs)
-from labbench.search.states import key_of
-from labbench.search.objective import curve_attr, cv_summary, one_line
-from labbench.search.optuna_adapter import note_intermediate_value, trial_id
+                                         best_of, count_states, positive, study_attrs)
+from labbench.search.objective import one_line
+from labbench.search.optuna_adapter import trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
-                                     open_study, plain, resolve_url, write_intermediate_values,
-                                     write_user_attrs)
+                                     open_study, plain, resolve_url, write_user_attrs)
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
+from labbench.search.trial_end import TrialEndings
 from labbench.search.workers import WorkerPool
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
-SAVE_EVERY_S = 1.0        # per-epoch values reach the storage at least this often
-
 log = logging.getLogger("labbench.search.runner")
 
-class SearchRunner:
+class SearchRunner(TrialEndings):
     """One run of a search (see the module text). ``emit`` receives every event, in order.
 
     After ``run`` the runner keeps ``prepared`` (the spec's data, as the trials saw it) and
@@ -363,122 +357,6 @@ class SearchRunner:
         self.stop_reason = "error"
         self.message = (f"every worker process stopped unexpectedly, each {self.pool.max_restarts + 1}"
                         " times; the search ends here (see the log with labbench -v run ...)")
-
-    def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
-        flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
-        if math.isfinite(val_loss):
-            self._report(flight, int(epoch), self.sign * float(val_loss))
-        self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
-                                 float(val_metric), int(flight.settings["epochs"])))
-        most = int(flight.settings["epochs"])
-        if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch), most):
-            flight.stopping, flight.stop_epoch = "pruned", int(epoch)
-            self.pool.stop(flight.slot, flight.number)
-
-    def _report(self, flight: InFlight, step: int, value: float) -> None:
-        """``trial.report`` in batches: the trial's own copy (what the pruner reads) now, the
-        storage at most every ``SAVE_EVERY_S`` seconds and before the trial is told; pruning
-        decisions are the same, a watcher of the database sees the values a second later."""
-        note_intermediate_value(flight.trial, step, value)
-        flight.unsaved.append((step, value))
-        now = time.monotonic()
-        if now - flight.saved_at >= SAVE_EVERY_S:
-            flight.saved_at = now
-            try:
-                self._save_values(flight)
-            except UpdateFinishedTrialError:   # marked stale by another process meanwhile
-                log.warning("trial %d was ended elsewhere (its heartbeat went stale); stopping "
-                            "it here", flight.number)
-                flight.stopping = "lost"
-                self.pool.stop(flight.slot, flight.number)
-
-    def _save_values(self, flight: InFlight) -> None:
-        values, flight.unsaved = flight.unsaved, []
-        write_intermediate_values(self.study, trial_id(flight.trial), values)
-
-    def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
-        self.worker_cpu_s += float(result.get("cpu_s", 0.0))
-        if flight.stopping == "pruned":
-            last = flight.points[-1][2] if flight.points else float("nan")
-            reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "
-                      f"behind the other trials at that epoch ({self.spec.search.pruner} pruner)")
-            self._finish(flight, "PRUNED", reason=reason, epochs_run=flight.stop_epoch)
-        elif flight.stopping == "cancelled":
-            self._finish(flight, "FAIL", reason=CANCELLED)
-        elif flight.stopping == "lost":
-            self._finish(flight, "FAIL", reason=LOST)
-        elif result["end"] == "diverged":
-            self._finish(flight, "FAIL", reason=result["reason"], epochs_run=result["epochs_run"])
-        else:
-            scores = [float(s) for s in result["fold_scores"]]
-            mean, _ = cv_summary(scores)
-            if not scores or not math.isfinite(mean):
-                self._finish(flight, "FAIL", reason="the metric is not a finite number on every "
-                             "fold", fold_scores=scores, epochs_run=result["epochs_run"])
-            else:
-                self._finish(flight, "COMPLETE", value=mean, fold_scores=scores,
-                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"))
-
-    # ------------------------------------------------------------------------------------
-    # ending trials
-
-    def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
-                reason: str = "", fold_scores=(), epochs_run: int | None = None,
-                best_epoch: int | None = None) -> None:
-        trial = flight.trial
-        duration = time.monotonic() - flight.started if flight.training else 0.0
-        points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
-        runs = epochs_run if epochs_run is not None else (points[-1][0] if points else 0)
-        _, std = cv_summary(list(fold_scores))
-        attrs = {"curve": curve_attr(points), "fold_scores": [float(s) for s in fold_scores],
-                 "cv_std": float(std) if math.isfinite(std) else None,
-                 "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
-        if best_epoch is not None:             # the epoch the fold scores (and the refit) use
-            attrs["best_epoch"] = int(best_epoch)
-        try:
-            self._save_values(flight)
-            write_user_attrs(trial, plain(attrs))
-        except UpdateFinishedTrialError:       # failed as stale by another process meanwhile
-            log.warning("trial %d was already finished elsewhere; its result is dropped",
-                        trial.number)
-        self.study.tell(trial, values=value if state == "COMPLETE" else None,
-                        state=getattr(TrialState, state), skip_if_finished=True)
-        self.should_prune.invalidate()
-        self.in_flight.pop(trial.number, None)
-        self.beats.discard(trial_id(trial))
-        self.finished += 1
-        if flight.training:
-            self.durations.append(duration)
-        shown = key_of(state, reason)          # the one state table (labbench.search.states)
-        self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
-                                reason, dict(trial.params), int(runs)))
-        if state == "COMPLETE" and self._better(value):
-            self.best = (trial.number, float(value), attrs["cv_std"] or 0.0,
-                         tuple(attrs["fold_scores"]), dict(trial.params))
-            self._emit_best(self.best)
-        elapsed = self._elapsed()
-        self.emit(ev.Progress(self.finished, self.trials, elapsed, eta(self.trials, self.minutes, self.finished, elapsed)))
-
-    def _abandon_in_flight(self, reason: str) -> None:
-        """Tell every trial still in flight FAIL (cancel deadline passed, or an error)."""
-        for flight in list(self.in_flight.values()):
-            why = CANCELLED if flight.stopping == "cancelled" else reason
-            try:
-                self._finish(flight, "FAIL", reason=why)
-            except Exception as exc:  # keep going: the others must not stay RUNNING either
-                log.error("could not end trial %d: %s", flight.number, exc)
-
-    # ------------------------------------------------------------------------------------
-    # bookkeeping
-
-    def _better(self, value: float) -> bool:
-        if self.best is None:
-            return True
-        return value > self.best[1] if self.direction == "maximize" else value < self.best[1]
-
-    def _emit_best(self, best: tuple) -> None:
-        number, value, std, folds, params = best
-        self.emit(ev.NewBest(number, value, std, folds, params))
 
     def _outcome(self) -> SearchOutcome:
         trials = self.study.get_trials(deepcopy=False)
