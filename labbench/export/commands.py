@@ -1,7 +1,7 @@
 """``labbench predict`` and ``labbench report``.
 
 ``labbench predict BUNDLE DATA.csv [-o OUT.csv]``   predictions from a saved model bundle
-``labbench report SPEC|URL [--study NAME] [-o OUT.html]``   the HTML report of a search
+``labbench report SPEC|URL [--search NAME] [-o OUT.html]``   the HTML report of a search
 
 Bad input raises a ``LabbenchError``; ``labbench.cli`` prints its one line and exits 2.
 """
@@ -33,7 +33,7 @@ def add_parser(subparsers) -> None:
         "space, the trials, the winner and how sure we are, the environment, the cautions. "
         "Images are embedded; it opens without a network.")
     report.add_argument("source", metavar="SPEC.toml|URL", help="a spec file or a database URL")
-    report.add_argument("--study", metavar="NAME",
+    report.add_argument("--search", "--study", dest="study", metavar="NAME",
                         help="the search's name in the database (default: the spec's, or the only one)")
     report.add_argument("-o", "--out", metavar="OUT.html",
                         help="where to write (default: <spec name>_report.html in the output folder)")

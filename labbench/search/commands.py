@@ -65,7 +65,7 @@ def add_parser(subparsers) -> None:
         description="List the trials stored for SPEC.toml (or in a database URL) and the best "
         "so far. Works while a search is running, also from another machine.")
     show.add_argument("source", metavar="SPEC.toml|URL", help="a spec file or a database URL")
-    show.add_argument("--study", metavar="NAME",
+    show.add_argument("--search", "--study", dest="study", metavar="NAME",
                       help="the search's name in the database (default: the spec's, or the only one)")
     show.add_argument("--storage", metavar="URL", help="database URL to use with a spec file")
     show.add_argument("-v", "--verbose", action="count", default=argparse.SUPPRESS)

@@ -89,9 +89,9 @@ def open_for_reading(source: str, study: str | None, storage: str | None):
     if name is None:
         if len(names) != 1:
             raise SpecError(f"storage {shown}: holds {len(names)} searches "
-                            f"({', '.join(names) or 'none'}); choose one with --study NAME")
+                            f"({', '.join(names) or 'none'}); choose one with --search NAME")
         name = names[0]
     if name not in names:
         raise SpecError(f"storage {shown}: no search named '{name}' (stored: "
-                        f"{', '.join(names) or 'none'}); run `labbench run` first or pick --study")
+                        f"{', '.join(names) or 'none'}); run `labbench run` first or pick one with --search NAME")
     return optuna.load_study(study_name=name, storage=rdb), shown

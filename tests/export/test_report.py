@@ -194,7 +194,7 @@ def test_import_stays_light_and_pyplot_is_never_used(search, tmp_path):
 def test_report_from_url_and_without_winner_files(search, tmp_path):
     url = f"sqlite:///{(search / 'iris.db').as_posix()}"
     out = tmp_path / "by-url.html"
-    assert main(["report", url, "--study", "iris", "-o", str(out)]) == 0
+    assert main(["report", url, "--search", "iris", "-o", str(out)]) == 0
     assert "Trial " in out.read_text()      # winner.json found through the stored spec path
     moved = tmp_path / "kept"
     shutil.move(search / "iris_out", moved)

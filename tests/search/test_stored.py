@@ -42,7 +42,7 @@ def test_one_search_needs_no_name_several_do(tmp_path):
     _store(one, ("only",))
     _store(two, ("x", "y"))
     assert open_for_reading(one, None, None)[0].study_name == "only"
-    with pytest.raises(SpecError, match=r"holds 2 searches \(x, y\); choose one with --study"):
+    with pytest.raises(SpecError, match=r"holds 2 searches \(x, y\); choose one with --search"):
         open_for_reading(two, None, None)
     with pytest.raises(SpecError, match=r"no search named 'z' \(stored: x, y\)"):
         open_for_reading(two, "z", None)
