@@ -15,6 +15,7 @@ its models moved); the other functions have no fallback — their tests are the 
 
 from __future__ import annotations
 
+import contextlib
 import json
 import logging
 from typing import Any, Callable, Mapping
@@ -79,6 +80,21 @@ def _models():
     return models, _create_scoped_session
 
 
+@contextlib.contextmanager
+def _trial_transaction(storage, trial_id: int):
+    """``(session, models)`` of one transaction on a trial that may still be written (Optuna's
+    own check: a finished trial raises ``UpdateFinishedTrialError``). TypeError when the storage
+    is not a database one (the callers then take the public, per-value calls)."""
+    backend = rdb_backend(storage)
+    if backend is None:
+        raise TypeError("not an RDB storage")
+    models, scoped = _models()
+    with scoped(backend.scoped_session, True) as session:
+        row = models.TrialModel.find_or_raise_by_id(trial_id, session)
+        backend.check_trial_is_updatable(trial_id, row.state)
+        yield session, models
+
+
 def _upsert(session, model, owner: Mapping[str, int], rows, attrs: Mapping[str, Any]) -> None:
     existing = {a.key: a for a in rows}
     for key, value in attrs.items():
@@ -96,14 +112,8 @@ def write_intermediate_values(study, trial_id: int, values: list[tuple[int, floa
         return
     storage = study._storage
     try:
-        backend = rdb_backend(storage)
-        if backend is None:
-            raise TypeError("not an RDB storage")
-        models, scoped = _models()
-        value_model = models.TrialIntermediateValueModel
-        with scoped(backend.scoped_session, True) as session:
-            trial = models.TrialModel.find_or_raise_by_id(trial_id, session)
-            backend.check_trial_is_updatable(trial_id, trial.state)
+        with _trial_transaction(storage, trial_id) as (session, models):
+            value_model = models.TrialIntermediateValueModel
             rows = []
             for step, value in values:
                 stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
@@ -121,14 +131,8 @@ def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
     storage = trial.study._storage
     tid = trial._trial_id
     try:
-        backend = rdb_backend(storage)
-        if backend is None:
-            raise TypeError("not an RDB storage")
-        models, scoped = _models()
-        model = models.TrialUserAttributeModel
-        with scoped(backend.scoped_session, True) as session:
-            row = models.TrialModel.find_or_raise_by_id(tid, session)
-            backend.check_trial_is_updatable(tid, row.state)
+        with _trial_transaction(storage, tid) as (session, models):
+            model = models.TrialUserAttributeModel
             _upsert(session, model, {"trial_id": tid}, model.where_trial_id(tid, session), attrs)
         trial._cached_frozen_trial.user_attrs.update(attrs)
     except (ImportError, AttributeError, TypeError) as exc:

@@ -21,6 +21,7 @@ from labbench.search import events as ev
 from labbench.search.bookkeeping import CANCELLED, LOST, InFlight, eta
 from labbench.search.objective import curve_attr, cv_summary
 from labbench.search.optuna_adapter import note_intermediate_value, trial_id
+from labbench.search.ranking import is_better
 from labbench.search.states import key_of
 from labbench.search.storage import plain, write_intermediate_values, write_user_attrs
 
@@ -140,9 +141,7 @@ class TrialEndings:
     # bookkeeping
 
     def _better(self, value: float) -> bool:
-        if self.best is None:
-            return True
-        return value > self.best[1] if self.direction == "maximize" else value < self.best[1]
+        return is_better(value, None if self.best is None else self.best[1], self.direction)
 
     def _emit_best(self, best: tuple) -> None:
         number, value, std, folds, params = best
