@@ -20,12 +20,13 @@ from runner_support import cli, iris_csv, load, write_spec
 
 pytestmark = pytest.mark.skipif(os.name != "posix", reason="POSIX signals and /proc")
 
-# ≈ 1-3 s per trial here: long enough that a signal lands inside one.
+# ≈ 3 s or more per trial here (values reach the storage after 1 s): long enough that a trial is
+# seen training and a signal lands inside one, also on an idle machine.
 SPACE = """
 learning_rate = { low = 0.001, high = 0.01, log = true }
 hidden_layers = 1
 hidden_units = 8
-epochs = 1500
+epochs = 5000
 patience = 0
 batch_size = 8
 """
@@ -147,9 +148,7 @@ def test_trials_of_a_killed_process_are_reclaimed_as_soon_as_the_next_one_starts
 @pytest.mark.slow
 def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_path):
     iris_csv(tmp_path)
-    # trials of several seconds, so that one is seen training (values are stored after 1 s)
-    spec = write_spec(tmp_path, trials=3, space=SPACE.replace("epochs = 1500", "epochs = 6000"),
-                      workers=2, sampler="random")
+    spec = write_spec(tmp_path, trials=3, space=SPACE, workers=2, sampler="random")
     db = tmp_path / "exp.db"
     env = _inject(tmp_path, MID_MESSAGE)
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")), env=env,
@@ -178,9 +177,7 @@ def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_pa
 @pytest.mark.slow
 def test_a_silent_worker_is_stopped_by_the_watchdog(tmp_path):
     iris_csv(tmp_path)
-    # trials of several seconds, so that one is seen training (values are stored after 1 s)
-    spec = write_spec(tmp_path, trials=3, space=SPACE.replace("epochs = 1500", "epochs = 8000"),
-                      sampler="random")
+    spec = write_spec(tmp_path, trials=3, space=SPACE, sampler="random")
     db = tmp_path / "exp.db"
     env = {**os.environ, "LABBENCH_WATCHDOG": "3"}
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")), env=env,
