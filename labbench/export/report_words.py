@@ -101,6 +101,23 @@ def settings_in_words(settings: Mapping[str, Any]) -> str:
     return ", ".join(parts)
 
 
+def family_settings_in_words(family: str, settings: Mapping[str, Any]) -> str:
+    """The resolved settings of a family other than the network, named by its settings table
+    (``Family.settings[...].label``; a family labbench does not know: the key in words)."""
+    from labbench.errors import SpecError
+    from labbench.families import get_family
+
+    try:
+        table = get_family(family).settings
+    except SpecError:
+        table = {}
+    parts = []
+    for key, value in settings.items():
+        label = table[key].label if key in table else key.replace("_", " ").capitalize()
+        parts.append(f"{label} {value_words(key, value)}")
+    return ", ".join(parts)
+
+
 def params_in_words(params: Mapping[str, Any]) -> str:
     return "; ".join(f"{setting_label(k)}: {value_words(k, v)}" for k, v in params.items())
 

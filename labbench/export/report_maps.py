@@ -1,0 +1,377 @@
+"""The report's section about a map or group winner (self-organising map, competitive learning,
+neural gas, Hebbian features): what it was tuned for, its held-out measures, whether its groups
+come back with other seeds, the groups' sizes and profiles, and for a self-organising map its
+U-matrix.
+
+What it reads: the saved winner (``model.npz`` beside ``winner.json``, a
+``labbench.model.TrainedModel`` whose ``scores`` hold ``holdout_measures`` and ``stability`` as
+MAPS.md describes) and the rows of the data file.
+
+Group profiles are computed from ROWS: every row of the data file (training and hold-out rows
+alike) is placed by the saved model, and each group gets the mean of each numeric column (and the
+most frequent value of each categorical column) over its rows, in the columns' own units. These
+are the rows the groups are about, and means of real rows need no inverse of the scaling. Only
+when the data file cannot be read are the profiles taken from the prototypes instead (the mean of
+a group's unit prototypes through the inverse of the numeric scaling, the category with the
+largest one-hot value), and the page says so.
+"""
+
+from __future__ import annotations
+
+import html
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from labbench.families.maps_export import grid_neighbours, is_prototype, u_matrix
+from labbench.maps import grid_positions
+from labbench.export.report_style import PALETTE as C, axes, drawn_in_style, new_figure, svg_text
+from labbench.export.report_words import metric_label, num
+
+MAP_FAMILIES = ("som", "competitive", "neural_gas", "hebbian")
+FAMILY_WORDS = {"som": "a self-organising map (Kohonen)",
+                "competitive": "competitive learning (winner takes all)",
+                "neural_gas": "neural gas (winner takes most; Martinetz et al. 1993)",
+                "hebbian": "Hebbian features (Oja's rule / Sanger's generalised Hebbian algorithm)"}
+MEASURES = (("quantisation_error", "quantisation error",
+             "mean distance of a held-out row to its best-matching unit, in the scaled inputs"),
+            ("topographic_error", "topographic error",
+             "share of held-out rows whose two best units are not neighbours on the grid"),
+            ("reconstruction_error", "reconstruction error",
+             "share of the held-out rows' energy the components do not rebuild"),
+            ("relative_error", "relative error",
+             "quantisation error as a share of one prototype at the training mean"),
+            ("units", "units", "prototypes (or components) the model has"))
+MAX_PROFILE_COLUMNS = 40
+MAX_GROUPS_SHOWN = 16
+MAX_HIT_LABELS = 225          # write hit counts in the cells of maps up to 15 x 15
+
+
+def esc(value: Any) -> str:
+    return html.escape("" if value is None else str(value), quote=True)
+
+
+def family_of(data) -> str | None:
+    """The map family of a report's search, or None for any other search."""
+    candidates = [((data.spec or {}).get("model") or {}).get("family"),
+                  (data.winner or {}).get("family"), getattr(data.model, "family", None)]
+    for name in candidates:
+        if name in MAP_FAMILIES:
+            return name
+    if (data.attrs or {}).get("task") == "unsupervised":
+        return getattr(data.model, "family", None) or "som"
+    return None
+
+
+def family_words(name: str | None) -> str:
+    return FAMILY_WORDS.get(name or "", f"the {name} family")
+
+
+# -- numbers --------------------------------------------------------------------------------------
+
+def group_sizes(record, groups: np.ndarray | None) -> pd.DataFrame:
+    """Per group: units, rows (when rows were placed) and their share."""
+    g = record.n_groups
+    out = pd.DataFrame({"group": np.arange(g),
+                        "units": np.bincount(record.unit_group, minlength=g)})
+    if groups is not None:
+        rows = np.bincount(np.asarray(groups, dtype=np.int64), minlength=g)
+        out["rows"] = rows
+        out["share"] = rows / max(1, rows.sum())
+    return out
+
+
+def profiles_from_rows(model, frame: pd.DataFrame, groups: np.ndarray) -> pd.DataFrame:
+    """Column x group: numeric means (missing values left out), categorical most frequent value
+    with its share, over the rows of each group; in the columns' own units."""
+    from labbench.data.roles import as_float, category_text
+
+    g = model.record.n_groups
+    table = {}
+    for col in model.features:
+        cells = []
+        if model.kinds[col] == "numeric":
+            values = as_float(frame[col], col, where="the data")
+            for j in range(g):
+                v = values[groups == j]
+                v = v[np.isfinite(v)]
+                cells.append(num(float(v.mean())) if v.size else "-")
+        else:
+            text = category_text(frame[col])
+            for j in range(g):
+                v = pd.Series(text[groups == j]).dropna()
+                if v.empty:
+                    cells.append("-")
+                    continue
+                counts = v.value_counts()
+                cells.append(f"{counts.index[0]} ({100 * counts.iloc[0] / len(v):.0f} %)")
+        table[col] = cells
+    return pd.DataFrame(table, index=[f"group {j}" for j in range(g)]).T
+
+
+def profiles_from_prototypes(model) -> pd.DataFrame:
+    """Column x group from the prototypes (when no rows can be read): each group's mean unit
+    prototype, numeric columns back through the inverse of the scaling (x = x' * scale + center),
+    a categorical column's category with the largest one-hot value."""
+    record, state = model.record, model.preprocessor.to_state()
+    g = record.n_groups
+    means = np.vstack([record.prototypes[record.unit_group == j].mean(axis=0) for j in range(g)])
+    table, at = {}, 0
+    for i, col in enumerate(state["numeric"]):
+        values = means[:, i] * state["scale"][i] + state["center"][i]
+        table[col] = [num(float(v)) for v in values]
+    at = len(state["numeric"])
+    for col, cats in zip(state["categorical"], state["categories"]):
+        block = means[:, at:at + len(cats)]
+        at += len(cats)
+        table[col] = [cats[int(np.argmax(b))] if len(cats) else "-" for b in block]
+    ordered = {c: table[c] for c in model.features if c in table}
+    return pd.DataFrame(ordered, index=[f"group {j}" for j in range(g)]).T
+
+
+def place_rows(model, frame: pd.DataFrame | None) -> tuple[pd.DataFrame | None, str | None]:
+    """(the model's predict table of the rows, or None, and why not)."""
+    if frame is None:
+        return None, "the data file cannot be read from here"
+    missing = [c for c in model.features if c not in frame.columns]
+    if missing:
+        return None, f"the data file lacks the column(s) {', '.join(missing)}"
+    try:
+        return model.predict(frame), None
+    except Exception as exc:          # a changed file: say so, draw from the prototypes
+        return None, f"its rows cannot be placed ({exc})"
+
+
+# -- words ----------------------------------------------------------------------------------------
+
+def stability_words(stability: dict | None) -> str:
+    """The seed-stability result in plain words (MAPS.md scores["stability"])."""
+    if not stability:
+        return ("Stability across seeds: not measured, so nobody can yet say whether another seed "
+                "would give the same groups.")
+    seeds = stability.get("seeds") or []
+    parts = [f"The winning settings were retrained with {len(seeds)} seeds"
+             + (f" ({', '.join(str(s) for s in seeds)})" if seeds else "") + "."]
+    if stability.get("ari_mean") is not None:
+        parts.append(f"Between every pair of seeds the rows' groups agreed with an adjusted Rand "
+                     f"index of {num(stability['ari_mean'], 3)} on average (lowest pair "
+                     f"{num(stability.get('ari_min'), 3)}; 1 means the same groups, 0 no more "
+                     f"agreement than chance).")
+    if stability.get("layout_mean") is not None:
+        parts.append(f"The map's layout agreed with a correlation of "
+                     f"{num(stability['layout_mean'], 3)} on average (lowest "
+                     f"{num(stability.get('layout_min'), 3)}; 1 means the same layout up to "
+                     f"rotation or mirroring).")
+    verdict = stability.get("verdict")
+    if verdict:
+        parts.append(f"Verdict: {verdict} (index at least 0.9 reproducible, 0.7 to 0.9 mostly "
+                     f"reproducible, below 0.7 not: thresholds of common practice).")
+    if stability.get("message"):
+        parts.append(str(stability["message"]))
+    return " ".join(parts)
+
+
+def measures_rows(measures: dict | None) -> list[tuple[str, str, str]]:
+    rows = []
+    for key, label, what in MEASURES:
+        value = (measures or {}).get(key)
+        if value is not None:
+            rows.append((label, num(value), what))
+    return rows
+
+
+# -- pictures -------------------------------------------------------------------------------------
+
+def _cmap():
+    from matplotlib.colors import LinearSegmentedColormap
+
+    # labbench's ink on paper: low U-heights (inside a group) light, high ones (borders) dark;
+    # the light end is the rule colour, so a cell never vanishes into the paper
+    return LinearSegmentedColormap.from_list("labbench_u", [C["rule"], C["band"], C["ink"]])
+
+
+def _border_segments(record) -> list[tuple[tuple[float, float], tuple[float, float]]]:
+    """The cell edges between grid neighbours that lie in different groups."""
+    pos = record.positions
+    hexagonal = record.topology == "hexagonal"
+    half = 1 / (2 * np.sqrt(3)) if hexagonal else 0.5        # half the length of a shared edge
+    segments = []
+    for u, nb in enumerate(grid_neighbours(record.shape, record.topology or "rectangular")):
+        for v in nb:
+            if v <= u or record.unit_group[u] == record.unit_group[v]:
+                continue
+            step = pos[v] - pos[u]
+            if abs(np.hypot(*step) - 1.0) > 1e-9:       # a diagonal: no shared edge
+                continue
+            mid, perp = (pos[u] + pos[v]) / 2, np.array([-step[1], step[0]])
+            segments.append((tuple(mid - perp * half), tuple(mid + perp * half)))
+    return segments
+
+
+@drawn_in_style
+def u_matrix_picture(record, hits: np.ndarray | None = None) -> str:
+    """The U-matrix of a map as cells on its grid (squares or hexagons), group borders drawn as
+    ink lines, each group's number at its middle, and each unit's hit count when rows are given."""
+    from matplotlib.collections import LineCollection, PatchCollection
+    from matplotlib.patches import Rectangle, RegularPolygon
+
+    rows, cols = record.shape
+    heights = u_matrix(record).reshape(-1)
+    pos = grid_positions(rows, cols, record.topology or "rectangular")
+    hexagonal = record.topology == "hexagonal"
+    aspect_h = (rows - 1) * (np.sqrt(3) / 2 if hexagonal else 1.0) + 1.2
+    width = min(7.2, 1.6 + 0.42 * (cols + 1))
+    fig = new_figure(min(6.5, max(2.4, 0.42 * aspect_h + 0.8)), width)
+    ax = axes(fig)
+    if hexagonal:
+        cells = [RegularPolygon(p, numVertices=6, radius=1 / np.sqrt(3)) for p in pos]
+    else:
+        cells = [Rectangle((x - 0.5, y - 0.5), 1, 1) for x, y in pos]
+    patches = PatchCollection(cells, cmap=_cmap(), edgecolor=C["paper"], linewidth=0.6)
+    patches.set_array(heights)
+    ax.add_collection(patches)
+    ax.add_collection(LineCollection(_border_segments(record), colors=C["best"], linewidths=2.2))
+    norm = patches.norm
+    norm.autoscale(heights)
+    if hits is not None and len(heights) <= MAX_HIT_LABELS:
+        for (x, y), h, n in zip(pos, heights, hits):
+            dark = norm(h) > 0.55
+            ax.text(x, y, str(int(n)), ha="center", va="center", fontsize=7,
+                    color=C["paper"] if dark else C["ink"])
+    for j in range(record.n_groups):
+        members = pos[record.unit_group == j]
+        centre = members.mean(axis=0)
+        anchor = members[np.argmin(((members - centre) ** 2).sum(axis=1))]
+        ax.annotate(f"group {j}", anchor, xytext=(0, 9 if hits is not None else 0),
+                    textcoords="offset points", ha="center", va="center", fontsize=8,
+                    fontweight="bold", color=C["milestone"],
+                    bbox={"boxstyle": "round,pad=0.15", "fc": C["paper"], "ec": "none", "alpha": 0.85})
+    pad = 0.7
+    ax.set_xlim(pos[:, 0].min() - pad, pos[:, 0].max() + pad)
+    ax.set_ylim(pos[:, 1].max() + pad, pos[:, 1].min() - pad)       # row 0 at the top
+    ax.set_aspect("equal")
+    ax.set_xticks([])
+    ax.set_yticks([])
+    for side in ax.spines.values():
+        side.set_visible(False)
+    bar = fig.colorbar(patches, ax=ax, shrink=0.8, pad=0.02)
+    bar.set_label("U-height: mean distance to the\nneighbouring prototypes (scaled)", fontsize=8)
+    bar.outline.set_visible(False)
+    return svg_text(fig, "umatrix", "U-matrix of the map: mean distance of each unit's prototype "
+                    "to its grid neighbours, with the group borders")
+
+
+# -- the section ----------------------------------------------------------------------------------
+
+def _table(header, rows, numeric=()) -> str:
+    numeric = set(numeric)
+    head = "".join(f"<th>{esc(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f'<td class="num">{esc(c)}</td>' if i in numeric else
+                                    f"<td>{esc(c)}</td>" for i, c in enumerate(row)) + "</tr>"
+                   for row in rows)
+    return f"<table><tr>{head}</tr>{body}</table>"
+
+
+def _note(text: str) -> str:
+    return f'<p class="note">{esc(text)}</p>'
+
+
+def groups_title(data) -> str:
+    return "The features" if family_of(data) == "hebbian" else "The map and its groups"
+
+
+def groups_section(data) -> str:
+    """HTML of the map winner's section (see the module docstring)."""
+    model, family = data.model, family_of(data)
+    if model is None:
+        return _note("The saved winner (model.npz beside winner.json) was not found, so its groups "
+                     "cannot be shown; labbench run writes it when the search ends.")
+    scores = dict(model.scores or {})
+    metric = metric_label(model.metric)
+    parts = [f"<p>The winner is {esc(family_words(family))}, tuned on cross-validated "
+             f"{esc(metric)} (lower is better): {esc(num(scores.get('cv_mean')))} ± "
+             f"{esc(num(scores.get('cv_std')))} over the folds, {esc(num(scores.get('holdout_score')))} "
+             f"once on the hold-out rows. Every measure is computed on rows the model was not "
+             f"trained on.</p>"]
+    measures = measures_rows(scores.get("holdout_measures"))
+    if measures:
+        parts.append("<h3>Held-out measures</h3>")
+        parts.append(_table(("measure", "hold-out", "what it is"), measures, numeric=(1,)))
+    parts.append("<h3>Stability across seeds</h3>")
+    parts.append(f"<p>{esc(stability_words(scores.get('stability')))}</p>")
+    record = model.record
+    if not is_prototype(record):
+        parts.append(_components(model))
+        return "".join(parts)
+    frame = getattr(data, "rows", None)
+    placed, why = place_rows(model, frame)
+    groups = None if placed is None else placed["group"].to_numpy()
+    sizes = group_sizes(record, groups)
+    parts.append("<h3>Group sizes</h3>")
+    if groups is not None:
+        parts.append(f"<p>Every one of the {len(groups)} rows of the data file (training and "
+                     f"hold-out rows) placed by the saved model; groups and units are numbered "
+                     f"from 0, as in labbench predict.</p>")
+        rows = [(int(r.group), int(r.units), int(r.rows), f"{100 * r.share:.1f} %") for r in sizes.itertuples()]
+        parts.append(_table(("group", "units", "rows", "share of rows"), rows, numeric=(0, 1, 2, 3)))
+    else:
+        parts.append(_note(f"Rows per group not counted: {why}."))
+        parts.append(_table(("group", "units"), [(int(r.group), int(r.units)) for r in sizes.itertuples()],
+                            numeric=(0, 1)))
+    parts.append("<h3>Group profiles</h3>")
+    if groups is not None:
+        profile = profiles_from_rows(model, frame, groups)
+        parts.append("<p>Mean of each numeric column over each group's rows, in the column's own "
+                     "units (missing values left out); for a category column its most frequent "
+                     "value and that value's share of the group.</p>")
+        label = _label_column(data)
+        if label and label in frame.columns:
+            values = frame[label].astype("string")
+            tops = []
+            for j in range(record.n_groups):
+                v = values[groups == j].dropna()
+                counts = v.value_counts()
+                tops.append(f"{counts.index[0]} ({100 * counts.iloc[0] / len(v):.0f} %)" if len(v) else "-")
+            profile.loc[f"{label} (label, not used in training)"] = tops
+    else:
+        profile = profiles_from_prototypes(model)
+        parts.append(_note("These profiles come from the prototypes, not from rows: the mean "
+                           "prototype of each group's units through the inverse of the numeric "
+                           "scaling; for a category column, the category with the largest weight."))
+    shown = profile.iloc[:MAX_PROFILE_COLUMNS, :MAX_GROUPS_SHOWN]
+    if shown.shape != profile.shape:
+        parts.append(f"<p>The first {shown.shape[0]} columns and {shown.shape[1]} groups are shown.</p>")
+    parts.append(_table(["column"] + list(shown.columns),
+                        [[idx] + list(row) for idx, row in zip(shown.index, shown.to_numpy())],
+                        numeric=range(1, shown.shape[1] + 1)))
+    if record.shape is not None:
+        hits = None if placed is None else np.bincount(placed["unit"].to_numpy(), minlength=record.n_units)
+        caption = ("U-matrix (Ultsch 1990): each cell is one unit of the "
+                   f"{record.shape[0]} x {record.shape[1]} {record.topology} map, shaded by the mean "
+                   "distance of its prototype to those of its grid neighbours; dark cells separate, "
+                   "light cells sit inside a group. Green lines are the group borders"
+                   + ("; the number in a cell is how many rows of the data file it holds." if hits is not None else "."))
+        parts.append(f"<figure>{u_matrix_picture(record, hits)}<figcaption>{esc(caption)}"
+                     f"</figcaption></figure>")
+    else:
+        parts.append(_note("Competitive learning and neural gas have no grid, so there is no "
+                           "U-matrix: every unit is its own group."))
+    return "".join(parts)
+
+
+def _label_column(data) -> str | None:
+    label = ((data.spec or {}).get("data") or {}).get("label")
+    return str(label) if label else None
+
+
+def _components(model) -> str:
+    record, names = model.record, model.preprocessor.feature_names_
+    W = record.components
+    order = np.argsort(-np.abs(W).max(axis=0))[:MAX_PROFILE_COLUMNS]
+    rows = [[names[i]] + [num(float(W[j, i]), 3) for j in range(W.shape[0])] for i in order]
+    return ("<h3>The components</h3><p>The weight of each scaled input column in each learned "
+            "component (rows ordered by their largest weight); a row's feature is its projection "
+            f"on the component ({esc(record.rule)} rule).</p>"
+            + _table(["input"] + [f"component {j + 1}" for j in range(W.shape[0])], rows,
+                     numeric=range(1, W.shape[0] + 1)))
