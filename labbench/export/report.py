@@ -123,7 +123,7 @@ def summary_section(data: ReportData) -> str:
         pairs = [(f"cross-validated {metric}, {folds} folds",
                   f"{num(w.get('cv_mean'))} ± {num(w.get('cv_std'))}"),
                  (f"hold-out, {w.get('holdout_rows', '?')} unseen rows", num(w.get("holdout_score")))]
-        stability = (data.model.scores or {}).get("stability") if family and data.model else None
+        stability = maps.winner_scores(data).get("stability") if family else None
         if stability and stability.get("ari_mean") is not None:
             pairs.append((f"groups agree across {len(stability.get('seeds') or [])} seeds",
                           f"{num(stability['ari_mean'], 3)} ({stability.get('verdict', '')})"))
@@ -316,6 +316,9 @@ def checks_section(data: ReportData) -> str:
                             f"folds: cross-validated {metric} {num(spread.get('mean'))} ± "
                             f"{num(spread.get('std'))}, range {num(spread.get('range'))}; the open "
                             "diamond is the hold-out score.", "fewer than two seeds"))
+    elif maps.family_of(data):
+        parts.append("<p>Seeds: how far the groups come back with other seeds is in the section "
+                     "on the map and its groups above.</p>")
     else:
         parts.append("<p>Seed spread: not measured.</p>")
     runner = w.get("runner_up") or {}

@@ -281,25 +281,38 @@ def groups_title(data) -> str:
     return "The features" if family_of(data) == "hebbian" else "The map and its groups"
 
 
+def winner_scores(data) -> dict:
+    """The winner's scores: the saved model's (MAPS.md), each missing one from winner.json."""
+    scores = dict(getattr(data.model, "scores", None) or {})
+    for key in ("cv_mean", "cv_std", "holdout_score", "holdout_measures", "stability"):
+        if scores.get(key) is None and (data.winner or {}).get(key) is not None:
+            scores[key] = data.winner[key]
+    return scores
+
+
 def groups_section(data) -> str:
     """HTML of the map winner's section (see the module docstring)."""
     model, family = data.model, family_of(data)
-    if model is None:
-        return _note("The saved winner (model.npz beside winner.json) was not found, so its groups "
-                     "cannot be shown; labbench run writes it when the search ends.")
-    scores = dict(model.scores or {})
-    metric = metric_label(model.metric)
+    scores = winner_scores(data)
+    metric = metric_label(getattr(model, "metric", None) or (data.winner or {}).get("metric"))
     parts = [f"<p>The winner is {esc(family_words(family))}, tuned on cross-validated "
              f"{esc(metric)} (lower is better): {esc(num(scores.get('cv_mean')))} ± "
              f"{esc(num(scores.get('cv_std')))} over the folds, {esc(num(scores.get('holdout_score')))} "
              f"once on the hold-out rows. Every measure is computed on rows the model was not "
              f"trained on.</p>"]
+    if (data.winner or {}).get("picked"):
+        parts.append("<p>This is the trial you picked (for example from the trade-off front), "
+                     "not necessarily the one with the best score.</p>")
     measures = measures_rows(scores.get("holdout_measures"))
     if measures:
         parts.append("<h3>Held-out measures</h3>")
         parts.append(_table(("measure", "hold-out", "what it is"), measures, numeric=(1,)))
     parts.append("<h3>Stability across seeds</h3>")
     parts.append(f"<p>{esc(stability_words(scores.get('stability')))}</p>")
+    if model is None:
+        parts.append(_note("The saved winner (model.npz beside winner.json) was not found, so its "
+                           "groups cannot be shown; labbench run writes it when the search ends."))
+        return "".join(parts)
     record = model.record
     if not is_prototype(record):
         parts.append(_components(model))
@@ -361,7 +374,7 @@ def groups_section(data) -> str:
 
 
 def _label_column(data) -> str | None:
-    label = ((data.spec or {}).get("data") or {}).get("label")
+    label = ((data.spec or {}).get("data") or {}).get("label") or (data.winner or {}).get("label")
     return str(label) if label else None
 
 

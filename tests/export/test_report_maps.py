@@ -167,3 +167,16 @@ def test_report_of_a_map_search_without_its_model(tmp_path):
     visible = " ".join(_check(text).text)
     assert "The saved winner (model.npz beside winner.json) was not found" in visible
     assert stability_words(None).startswith("Stability across seeds: not measured")
+    assert "Stability across seeds: not measured" in visible     # winner.json holds none here
+
+
+def test_scores_missing_from_the_model_come_from_winner_json(tmp_path):
+    study, model, _ = _map_search(tmp_path)
+    out = tmp_path / "pumps_out"
+    save_bundle(dataclasses.replace(model, scores={"cv_mean": 0.40}), out / "model.npz")
+    summary = json.loads((out / "winner.json").read_text())
+    summary.update(stability=STABILITY, holdout_measures=MEASURES, picked=True)
+    (out / "winner.json").write_text(json.dumps(summary))
+    visible = " ".join(_check(write_report(study, tmp_path / "r.html").read_text()).text)
+    assert stability_words(STABILITY) in visible and number(0.412) in visible
+    assert "This is the trial you picked" in visible
