@@ -31,6 +31,12 @@ def setting_label(name: str) -> str:
         return f"{SETTINGS['l2'].label} used"
     if name == "hidden":
         return "Hidden layer sizes"
+    from labbench.families import family_names, get_family
+
+    for family in family_names():          # another family's setting: its own table's label
+        table = get_family(family).settings
+        if name in table:
+            return table[name].label
     return name.replace("_", " ").capitalize()
 
 

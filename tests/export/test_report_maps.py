@@ -98,6 +98,7 @@ def test_report_of_a_map_search(tmp_path):
     visible = " ".join(parsed.text)
     assert "Group the rows of pumps.csv without a target, with a self-organising map" in visible
     assert "The map and its groups" in visible
+    assert f"groups agree across 5 seeds {number(0.93, 3)} (reproducible)" in visible
     # the held-out measures and the stability result in words
     assert "quantisation error" in visible and number(0.412) in visible and "topographic error" in visible
     assert stability_words(STABILITY) in visible
