@@ -127,6 +127,8 @@ def summary_section(data: ReportData) -> str:
         if stability and stability.get("ari_mean") is not None:
             pairs.append((f"groups agree across {len(stability.get('seeds') or [])} seeds",
                           f"{num(stability['ari_mean'], 3)} ({stability.get('verdict', '')})"))
+        elif family:
+            pairs.append(("groups across seeds", "not measured"))
         elif spread.get("scores"):
             pairs.append((f"seed spread, {len(spread['scores'])} seeds",
                           f"± {num(spread.get('std'), 3)}"))

@@ -161,7 +161,10 @@ def predict(model, columns):
     target: ({output column: values}, None)."""
     out = forward(model, inputs(model, columns))
     if model["meta"]["task"] == "unsupervised":
-        return COLUMNS[model["meta"]["family"]](model, out), None
+        family = model["meta"]["family"]
+        if family not in COLUMNS:
+            raise SystemExit(f"this script cannot write the outputs of the family {family!r}")
+        return COLUMNS[family](model, out), None
     classes = model["meta"]["classes"]
     if classes is None:
         return target_units(model, out), None
