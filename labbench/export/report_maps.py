@@ -46,6 +46,13 @@ MEASURES = (("quantisation_error", "quantisation error",
 MAX_PROFILE_COLUMNS = 40
 MAX_GROUPS_SHOWN = 16
 MAX_HIT_LABELS = 225          # write hit counts in the cells of maps up to 15 x 15
+MAX_GROUP_LABELS = 12         # name the groups on the map up to this many
+MAX_SIZE_ROWS = 40            # groups listed in the sizes table
+
+
+def merged(record) -> bool:
+    """Whether the map's units were merged into fewer groups (else every unit is its own)."""
+    return record.n_groups < record.n_units
 
 
 def esc(value: Any) -> str:
@@ -231,7 +238,8 @@ def u_matrix_picture(record, hits: np.ndarray | None = None) -> str:
     patches = PatchCollection(cells, cmap=_cmap(), edgecolor=C["paper"], linewidth=0.6)
     patches.set_array(heights)
     ax.add_collection(patches)
-    ax.add_collection(LineCollection(_border_segments(record), colors=C["best"], linewidths=2.2))
+    if merged(record):
+        ax.add_collection(LineCollection(_border_segments(record), colors=C["best"], linewidths=2.2))
     norm = patches.norm
     norm.autoscale(heights)
     if hits is not None and len(heights) <= MAX_HIT_LABELS:
@@ -239,7 +247,7 @@ def u_matrix_picture(record, hits: np.ndarray | None = None) -> str:
             dark = norm(h) > 0.55
             ax.text(x, y, str(int(n)), ha="center", va="center", fontsize=7,
                     color=C["paper"] if dark else C["ink"])
-    for j in range(record.n_groups):
+    for j in range(record.n_groups if merged(record) and record.n_groups <= MAX_GROUP_LABELS else 0):
         members = pos[record.unit_group == j]
         centre = members.mean(axis=0)
         anchor = members[np.argmin(((members - centre) ** 2).sum(axis=1))]
@@ -326,11 +334,15 @@ def groups_section(data) -> str:
         parts.append(f"<p>Every one of the {len(groups)} rows of the data file (training and "
                      f"hold-out rows) placed by the saved model; groups and units are numbered "
                      f"from 0, as in labbench predict.</p>")
-        rows = [(int(r.group), int(r.units), int(r.rows), f"{100 * r.share:.1f} %") for r in sizes.itertuples()]
+        rows = [(int(r.group), int(r.units), int(r.rows), f"{100 * r.share:.1f} %")
+                for r in sizes.itertuples()][:MAX_SIZE_ROWS]
+        if len(sizes) > MAX_SIZE_ROWS:
+            parts.append(f"<p>The first {MAX_SIZE_ROWS} of {len(sizes)} groups are listed.</p>")
         parts.append(_table(("group", "units", "rows", "share of rows"), rows, numeric=(0, 1, 2, 3)))
     else:
         parts.append(_note(f"Rows per group not counted: {why}."))
-        parts.append(_table(("group", "units"), [(int(r.group), int(r.units)) for r in sizes.itertuples()],
+        parts.append(_table(("group", "units"), [(int(r.group), int(r.units))
+                                                 for r in sizes.itertuples()][:MAX_SIZE_ROWS],
                             numeric=(0, 1)))
     parts.append("<h3>Group profiles</h3>")
     if groups is not None:
@@ -363,7 +375,9 @@ def groups_section(data) -> str:
         caption = ("U-matrix (Ultsch 1990): each cell is one unit of the "
                    f"{record.shape[0]} x {record.shape[1]} {record.topology} map, shaded by the mean "
                    "distance of its prototype to those of its grid neighbours; dark cells separate, "
-                   "light cells sit inside a group. Green lines are the group borders"
+                   "light cells sit inside a group. "
+                   + ("Green lines are the group borders" if merged(record) else
+                      "Every unit is its own group (the map's units were not merged)")
                    + ("; the number in a cell is how many rows of the data file it holds." if hits is not None else "."))
         parts.append(f"<figure>{u_matrix_picture(record, hits)}<figcaption>{esc(caption)}"
                      f"</figcaption></figure>")

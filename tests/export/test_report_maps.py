@@ -181,3 +181,21 @@ def test_scores_missing_from_the_model_come_from_winner_json(tmp_path):
     visible = " ".join(_check(write_report(study, tmp_path / "r.html").read_text()).text)
     assert stability_words(STABILITY) in visible and number(0.412) in visible
     assert "This is the trial you picked" in visible
+
+
+def test_a_map_whose_units_are_their_own_groups():
+    """A 6 x 8 hexagonal map without merged groups: no borders, no group names on the picture,
+    one hit count per unit (they add up to the rows)."""
+    from labbench.export.report_maps import u_matrix_picture
+    from labbench.maps import PrototypeRecord
+
+    rng = np.random.default_rng(4)
+    record = PrototypeRecord("som", rng.normal(size=(48, 3)), None, (6, 8), "hexagonal")
+    hits = rng.integers(0, 9, 48)
+    svg = ET.fromstring(u_matrix_picture(record, hits))
+    words = _svg_words(svg)
+    assert "group" not in words and "U-height" in words
+    from collections import Counter
+
+    numbers = Counter(int(w) for w in words.split() if w.isdigit())   # hit counts (+ axis ticks)
+    assert not Counter(hits.tolist()) - numbers                           # every unit's count drawn
