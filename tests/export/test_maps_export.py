@@ -8,7 +8,6 @@ onnxruntime (the ONNX graph), minisom's distance_map (the U-matrix).
 
 from __future__ import annotations
 
-import csv
 import json
 import subprocess
 import sys

@@ -15,14 +15,13 @@ import re
 import xml.etree.ElementTree as ET
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from labbench.export import save_bundle, write_report
 from labbench.export.report import MAP_SECTIONS
 from labbench.export.report_maps import stability_words
 from labbench.numbers import number
-from maps_support import invented_rows, make_model, map_families  # noqa: F401
+from maps_support import invented_rows, make_model, map_families  # noqa: F401 (the fixture)
 from test_report import _check_counts, _parse, _svg_words, _svgs
 
 pytestmark = pytest.mark.usefixtures("map_families")
