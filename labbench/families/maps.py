@@ -11,7 +11,7 @@ and default spaces: ``labbench.families.maps_settings``.
 Resolved settings look like (som)::
 
     {"rows": 8, "cols": 8, "topology": "rectangular", "training": "online", "learning_rate": 0.5,
-     "final_learning_rate": 0.01, "radius": 0.0, "final_radius": 1.0, "decay": "exponential",
+     "final_learning_rate": 0.01, "radius": 0.0, "final_radius": 0.5, "decay": "exponential",
      "neighbourhood": "gaussian", "init": "pca_plane", "epochs": 30, "groups": 0,
      "unit_cost": 0.01}
 """

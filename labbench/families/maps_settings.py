@@ -62,7 +62,7 @@ SOM_SETTINGS = _table(
                 "Initial reach of the neighbourhood on the grid, in units; 0 means half the longer "
                 "side of the map. A wide start orders the map, a narrow end fits it to the rows.",
                 low=0.0, high=1000.0),
-    SettingInfo("final_radius", "Final neighbourhood radius", "float", 1.0,
+    SettingInfo("final_radius", "Final neighbourhood radius", "float", 0.5,
                 "The neighbourhood radius at the end of training, in units (a value above the "
                 "initial radius keeps it constant).", low=0.01, high=1000.0),
     SettingInfo("decay", "Decay", "choice", "exponential",

@@ -50,7 +50,7 @@ class SelfOrganisingMap:
 
     def __init__(self, rows: int, cols: int, *, topology: str = "rectangular",
                  learning_rate: float = 0.5, final_learning_rate: float = 0.01,
-                 radius: float = 0.0, final_radius: float = 1.0, decay: str = "exponential",
+                 radius: float = 0.0, final_radius: float = 0.5, decay: str = "exponential",
                  neighbourhood: str = "gaussian", init: str = "pca_plane",
                  training: str = "online"):
         if rows < 1 or cols < 1 or rows * cols < 2:
