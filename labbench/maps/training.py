@@ -142,6 +142,20 @@ class MapTraining:
             f"the learning rate (now {self.method.rate0:g}) or check that the inputs are scaled",
             epoch=epoch, member=member)
 
+    def set_start(self, weights: np.ndarray) -> None:
+        """Start from the given (m, k, d) prototypes / weights instead of the method's own start
+        (for checks against other implementations and written-out rules). The method's start is
+        still drawn first, so each member's generator then gives the same row orders."""
+        if self.epoch:
+            raise RuntimeError("training has already started")
+        if not self._started:
+            self.method.start(self.rows)
+            self._started = True
+        W = np.asarray(weights, dtype=self.rows.dtype)
+        if W.shape != self.method.P.shape:
+            raise ValueError(f"weights must be {self.method.P.shape}, got {W.shape}")
+        self.method.P[...] = W
+
     # ---- the Training protocol
 
     def run(self, on_epoch: Callable[[EpochScores], object] | None = None) -> list[EpochScores]:
