@@ -171,7 +171,7 @@ class CompetitiveFamily(MapFamily):
     def method(self, s):
         return CompetitiveLearning(int(s["units"]), learning_rate=s["learning_rate"],
                                    final_learning_rate=s["final_learning_rate"], init=s["init"],
-                                   conscience=s["conscience"])
+                                   conscience=s["conscience"], training=s["training"])
 
 
 class NeuralGasFamily(MapFamily):

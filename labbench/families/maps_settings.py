@@ -10,6 +10,7 @@ from typing import Any
 
 from labbench.families.settings import SettingInfo
 from labbench.maps.competitive import COMPETITIVE_INITS
+from labbench.maps.competitive import TRAININGS as COMPETITIVE_TRAININGS
 from labbench.maps.hebbian import RULES
 from labbench.maps.record import TOPOLOGIES
 from labbench.maps.schedule import DECAYS
@@ -86,14 +87,18 @@ SOM_SETTINGS = _table(
 
 COMPETITIVE_SETTINGS = _table(
     SettingInfo("units", "Units", "int", 8, "Number of prototypes (one group each).", low=1, high=10_000),
-    *_rates(0.5, 0.01),
+    SettingInfo("training", "Training", "choice", "online",
+                "online: every row moves its nearest unit, with a falling learning rate; batch: "
+                "every epoch each unit becomes the mean of the rows it wins (Lloyd's iteration), "
+                "with no learning rate and no conscience.", options=COMPETITIVE_TRAININGS),
+    *_rates(0.5, 0.01, when=("training", ("online",))),
     SettingInfo("init", "Initial prototypes", "choice", "kmeans++",
                 "kmeans++: spread-out training rows (Arthur & Vassilvitskii 2007); random_rows: "
                 "randomly drawn training rows.", options=COMPETITIVE_INITS),
     SettingInfo("conscience", "Conscience", "float", 0.0,
                 "Strength of the handicap on units that win more than their share (DeSieno 1988), "
-                "so that no unit stays unused; 0 turns it off (plain winner takes all).",
-                low=0.0, high=1000.0, can_be_off=True),
+                "so that no unit stays unused; 0 turns it off (plain winner takes all). Online "
+                "training only.", low=0.0, high=1000.0, can_be_off=True, when=("training", ("online",))),
     _epochs(30),
     _unit_cost("unit"),
 )

@@ -15,6 +15,15 @@ wins less is helped. C is the ``conscience`` setting (0 = off, plain winner take
 choices (DeSieno gives B and C for his own scaling): s^2 is the member's mean squared distance of
 its training rows to their mean, so C does not depend on the number or scale of the columns, and
 B = 1 / n (n = the member's training rows: the frequencies remember about one epoch).
+
+Batch training (``training = "batch"``) replaces the per-row rule by Lloyd's iteration: every
+epoch each prototype becomes the mean of the rows it wins (a unit that wins none stays where it
+is); no learning rate, no conscience. It is the fixed point the online rule approaches as its rate
+falls, computed with one matrix product per member per epoch.
+
+Online steps: all members step together, one row at a time (the exact sequential rule); the
+distances come from ||x||^2 - 2 x.w + ||w||^2 with the ||w||^2 kept up to date for the one unit
+that moved.
 """
 
 from __future__ import annotations
@@ -23,10 +32,14 @@ import numpy as np
 
 from labbench.maps.init import kmeans_plus_plus, random_rows
 from labbench.maps.members import MemberRows, masked_mean
-from labbench.maps.record import PrototypeRecord
+from labbench.maps.record import PrototypeRecord, squared_distances
 from labbench.maps.schedule import decay
 
 COMPETITIVE_INITS = ("random_rows", "kmeans++")
+#: online: the per-row rule above; batch: Lloyd's iteration (each prototype the mean of the rows
+#: it wins; Lloyd, Least squares quantization in PCM, IEEE Trans. Information Theory 1982) - the
+#: batch form of the same rule, as Kohonen's batch map with no neighbourhood
+TRAININGS = ("online", "batch")
 
 
 def start_prototypes(rows: MemberRows, units: int, init: str) -> np.ndarray:
@@ -42,9 +55,12 @@ class CompetitiveLearning:
 
     def __init__(self, units: int, *, learning_rate: float = 0.5,
                  final_learning_rate: float = 0.01, init: str = "kmeans++",
-                 conscience: float = 0.0):
+                 conscience: float = 0.0, training: str = "online"):
         if units < 1:
             raise ValueError("competitive learning needs at least one unit")
+        if training not in TRAININGS:
+            raise ValueError(f"training {training!r} is not one of {', '.join(TRAININGS)}")
+        self.training = training
         self.units = int(units)
         self.rate0, self.rate1 = float(learning_rate), float(final_learning_rate)
         self.init, self.conscience = init, float(conscience)
@@ -58,37 +74,66 @@ class CompetitiveLearning:
         self._gain = (self.conscience * np.asarray(spread)).astype(rows.dtype)     # C * s^2
 
     def train_epoch(self, rows: MemberRows, epoch: int, epochs: int) -> np.ndarray:
+        if self.training == "batch":
+            return self._batch_epoch(rows)
         P, dt = self.P, rows.dtype
-        m, k, _ = P.shape
+        m, k, d = P.shape
         block = rows.shuffled_block()
         rate = rows.masked(decay(self.rate0, self.rate1, rows.progress(epoch, epochs), "exponential", dt))
-        diff, d2 = np.empty_like(P), np.empty((m, k), dt)
+        # distances from ||x||^2 - 2 x.w + ||w||^2; only the winner moves, so only its ||w||^2
+        # changes. Units are addressed in the flat (m * k, d) view: member i's unit c is i*k + c.
+        flat = P.reshape(m * k, d)
+        norms = np.einsum("mkd,mkd->mk", P, P)
+        flat_norms = norms.reshape(-1)
+        dots, score = np.empty((m, k, 1), dt), np.empty((m, k), dt)
         best_d2 = np.empty((rows.n_max, m), dt)
-        members = np.arange(m)
+        base = np.arange(m) * k
         use_conscience = self.conscience > 0
         if use_conscience:
             freq, gain = self._freq, self._gain[:, None]
+            flat_freq = freq.reshape(-1)
             step = rows.masked(np.broadcast_to((1.0 / rows.n).astype(dt), (rows.n_max, m)))
             keep = (1 - step).astype(dt)
-            score = np.empty((m, k), dt)
+            bias = np.empty((m, k), dt)
             share = dt.type(1.0 / k)
         for s in range(rows.n_max):
-            np.subtract(block[s][:, None, :], P, out=diff)
-            np.einsum("mkd,mkd->mk", diff, diff, out=d2)
+            x = block[s]
+            np.matmul(P, x[:, :, None], out=dots)
+            np.multiply(dots[..., 0], -2.0, out=score)
+            score += norms                                   # ||w||^2 - 2 x.w (+ ||x||^2 later)
+            best_d2[s] = score.min(axis=1)
             if use_conscience:
-                # biased competition: d^2 - C s^2 (1/k - p_j)
-                np.subtract(share, freq, out=score)
-                score *= gain
-                np.subtract(d2, score, out=score)
-                c = score.argmin(axis=1)
+                # biased competition (DeSieno): d^2 - C s^2 (1/k - p_j)
+                np.subtract(share, freq, out=bias)
+                bias *= gain
+                score -= bias
                 freq *= keep[s][:, None]
-                freq[members, c] += step[s]
-                best_d2[s] = d2.min(axis=1)
-            else:
-                c = d2.argmin(axis=1)
-                best_d2[s] = d2[members, c]
-            P[members, c] += rate[s][:, None] * diff[members, c]
-        return masked_mean(np.sqrt(best_d2), rows.mask)
+            unit = score.argmin(axis=1)
+            unit += base
+            if use_conscience:
+                flat_freq[unit] += step[s]
+            w = flat.take(unit, axis=0)
+            w += (x - w) * rate[s][:, None]
+            flat[unit] = w
+            flat_norms[unit] = np.einsum("md,md->m", w, w)
+        best_d2 += np.einsum("nmd,nmd->nm", block, block)
+        return masked_mean(np.sqrt(np.maximum(best_d2, 0)), rows.mask)
+
+    def _batch_epoch(self, rows: MemberRows) -> np.ndarray:
+        """Lloyd's iteration: every prototype becomes the mean of the rows it wins."""
+        losses = np.empty(rows.m)
+        for i, x in enumerate(rows.X):
+            P = self.P[i]
+            d2 = squared_distances(x, P)
+            unit = d2.argmin(axis=1)
+            losses[i] = np.sqrt(d2[np.arange(x.shape[0]), unit]).mean(dtype=np.float64)
+            counts = np.bincount(unit, minlength=self.units)
+            onehot = np.zeros((x.shape[0], self.units), P.dtype)
+            onehot[np.arange(x.shape[0]), unit] = 1
+            sums = onehot.T @ x                              # (k, d) sum of the rows each unit wins
+            won = counts > 0
+            P[won] = sums[won] / counts[won, None].astype(P.dtype)
+        return losses
 
     def record(self, member: int, unit_group: np.ndarray | None = None, extra: dict | None = None
                ) -> PrototypeRecord:

@@ -4,7 +4,9 @@
   units) - the usual random start of competitive learning and of the SOM.
 * ``kmeans_plus_plus``: "k-means++" seeding (Arthur & Vassilvitskii, k-means++: the advantages of
   careful seeding, SODA 2007): the first prototype a uniformly drawn row, each next one a row drawn
-  with probability proportional to its squared distance to the nearest prototype so far.
+  with probability proportional to its squared distance to the nearest prototype so far - in its
+  greedy form (also in that paper, and scikit-learn's): 2 + ln(k) rows are drawn at each step and
+  the one that lowers the sum of squared distances most is kept.
 * ``pca_plane``: Kohonen's linear initialisation (Self-Organizing Maps, 3rd ed. 2001, section
   3.7): the prototypes lie on the plane of the first two principal components through the mean,
   spread over the grid - the longer side of the map along the first component. The grid spans
@@ -26,19 +28,25 @@ def random_rows(rng: np.random.Generator, X: np.ndarray, k: int) -> np.ndarray:
 
 def kmeans_plus_plus(rng: np.random.Generator, X: np.ndarray, k: int) -> np.ndarray:
     n = X.shape[0]
-    x2 = np.einsum("nd,nd->n", X, X, dtype=np.float64)
+    X64 = np.asarray(X, dtype=np.float64)
+    x2 = np.einsum("nd,nd->n", X64, X64)
+    trials = 2 + int(np.log(k))                 # candidates per step (greedy k-means++)
     chosen = [int(rng.integers(n))]
-    best = np.full(n, np.inf)
+    c = X64[chosen[0]]
+    best = np.maximum(x2 - 2.0 * (X64 @ c) + c @ c, 0.0)
     for _ in range(1, k):
-        c = X[chosen[-1]].astype(np.float64)
-        d2 = np.maximum(x2 - 2.0 * (X @ c) + c @ c, 0.0)
-        np.minimum(best, d2, out=best)
         total = best.sum()
         if total <= 0.0:                     # every row sits on a prototype: take any row
             chosen.append(int(rng.integers(n)))
             continue
-        r = rng.random() * total
-        chosen.append(int(min(np.searchsorted(np.cumsum(best), r, side="right"), n - 1)))
+        picks = np.searchsorted(np.cumsum(best), rng.random(trials) * total, side="right")
+        picks = np.minimum(picks, n - 1)
+        C = X64[picks]
+        d2 = np.maximum(x2[None, :] - 2.0 * (C @ X64.T) + np.einsum("td,td->t", C, C)[:, None], 0.0)
+        np.minimum(d2, best[None, :], out=d2)
+        winner = int(np.argmin(d2.sum(axis=1)))  # the candidate that lowers the potential most
+        chosen.append(int(picks[winner]))
+        best = d2[winner]
     return X[chosen].copy()
 
 

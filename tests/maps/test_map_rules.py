@@ -87,14 +87,30 @@ def test_the_batch_map_is_the_neighbourhood_weighted_mean():
     np.testing.assert_allclose(t.method.P[0], expected, rtol=1e-12)
 
 
+def test_batch_competitive_learning_is_lloyds_iteration():
+    # reference: scikit-learn's KMeans with the same starting centres, algorithm="lloyd",
+    # n_init=1: after the same number of iterations the centres agree (Lloyd 1982)
+    from sklearn.cluster import KMeans
+
+    rng = np.random.default_rng(7)
+    X = np.concatenate([rng.normal(loc, 0.7, size=(100, 2)) for loc in ([0, 0], [4, 0], [0, 4])])
+    start = X[[0, 1, 150, 250]]
+    t = MapTraining(CompetitiveLearning(4, training="batch"), [X], None, seeds=[0], epochs=5)
+    t.set_start(start[None])
+    t.run()
+    km = KMeans(4, init=start, n_init=1, max_iter=5, tol=0.0, algorithm="lloyd").fit(X)
+    np.testing.assert_allclose(t.method.P[0], km.cluster_centers_, rtol=1e-10, atol=1e-12)
+
+
 @pytest.mark.parametrize("dtype", ["float64", "float32"])
 @pytest.mark.parametrize("make", [
     lambda: SelfOrganisingMap(4, 5, init="random_rows"),
     lambda: SelfOrganisingMap(3, 4, topology="hexagonal", training="batch", neighbourhood="bubble"),
     lambda: CompetitiveLearning(6, conscience=1.0),
+    lambda: CompetitiveLearning(6, training="batch"),
     lambda: NeuralGas(6, init="kmeans++"),
     lambda: HebbianFeatures(3),
-], ids=["som-online", "som-batch", "competitive", "neural-gas", "sanger"])
+], ids=["som-online", "som-batch", "competitive", "competitive-batch", "neural-gas", "sanger"])
 def test_a_member_of_a_stack_trains_exactly_as_alone(make, dtype):
     # members with different row counts, each with its own seed: member i of the stack must be
     # bit for bit the same as that seed trained alone on its rows (the stack only batches)
