@@ -28,7 +28,12 @@ class MemberRows:
         if isinstance(X, np.ndarray):
             raise TypeError("give a sequence of arrays, one per stacked member")
         self.dtype = np.dtype(dtype)
-        self.X = [np.ascontiguousarray(x, dtype=self.dtype) for x in X]
+        converted: dict[int, np.ndarray] = {}       # members given the same array share its copy
+        self.X = []
+        for x in X:
+            if id(x) not in converted:
+                converted[id(x)] = np.ascontiguousarray(x, dtype=self.dtype)
+            self.X.append(converted[id(x)])
         seeds = [int(s) for s in seeds]
         self.m = len(self.X)
         if self.m == 0 or len(seeds) != self.m:

@@ -76,7 +76,11 @@ class MapTraining:
         if self._has_val:
             if isinstance(X_val, np.ndarray) or len(X_val) != m:
                 raise ValueError("X_val needs one array per member")
-            self._Xv = [np.ascontiguousarray(x, dtype=self.rows.dtype) for x in X_val]
+            same: dict[int, np.ndarray] = {}          # members given the same array share it
+            for x in X_val:
+                if id(x) not in same:
+                    same[id(x)] = np.ascontiguousarray(x, dtype=self.rows.dtype)
+            self._Xv = [same[id(x)] for x in X_val]
             if min(x.shape[0] for x in self._Xv) < 1:
                 raise ValueError("every member needs at least one validation row")
             self._qe0 = np.array([ms.mean_distance(x, mu) for x, mu in zip(self._Xv, self._means)])
