@@ -156,3 +156,43 @@ def test_a_map_spec_round_trips_through_the_spec_reader(tmp_path):
     again = tmp_path / "again.toml"
     again.write_text(spec.to_toml(tmp_path))
     assert load_spec(again).space == spec.space
+
+
+def _prepared(name: str, X: np.ndarray, k: int = 3):
+    """What a search trial reads of its prepared data: folds, the family, task and metric."""
+    from types import SimpleNamespace
+
+    parts = np.arange(len(X)) % k
+    folds = SimpleNamespace(X_train=[X[parts != f] for f in range(k)],
+                            y_train=[np.zeros(int((parts != f).sum())) for f in range(k)],
+                            X_val=[X[parts == f] for f in range(k)],
+                            y_val=[np.zeros(int((parts == f).sum())) for f in range(k)],
+                            target_inverse=None)
+    family = get_family(name)
+    return SimpleNamespace(fold_arrays=folds, model=family, task="unsupervised", n_outputs=1,
+                           metric=family.default_metric("unsupervised"))
+
+
+def test_a_search_trial_trains_a_map_and_reports_every_epoch():
+    from labbench.search.objective import run_trial
+
+    X = np.random.default_rng(2).normal(size=(150, 3))
+    prepared = _prepared("som", X)
+    settings = get_family("som").complete({"rows": 3, "cols": 3, "epochs": 4})
+    epochs = []
+    out = run_trial(prepared, settings, seed=0, on_epoch=epochs.append, should_stop=lambda: False)
+    assert out["end"] == "complete" and out["best_epoch"] == 4 and len(out["fold_scores"]) == 3
+    assert [e[0] for e in epochs] == [1, 2, 3, 4]
+    assert all(0.0 < s < 2.0 for s in out["fold_scores"])
+
+
+def test_a_search_trial_of_the_plain_hebbian_rule_fails_with_its_reason():
+    # the search turns DivergenceError into a failed trial with its reason (labbench.search.objective)
+    from labbench.search.objective import run_trial
+
+    X = np.random.default_rng(3).normal(size=(300, 4)) * np.array([3.0, 2.0, 1.0, 0.5])
+    prepared = _prepared("hebbian", X)
+    settings = get_family("hebbian").complete({"rule": "hebb", "components": 2, "epochs": 5,
+                                               "learning_rate": 0.01})
+    out = run_trial(prepared, settings, seed=0, on_epoch=lambda e: None, should_stop=lambda: False)
+    assert out["end"] == "diverged" and "no decay term" in out["reason"]
