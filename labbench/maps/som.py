@@ -33,6 +33,9 @@ from labbench.maps.schedule import decay
 NEIGHBOURHOODS = ("gaussian", "bubble")
 SOM_INITS = ("random_rows", "pca_plane")
 TRAININGS = ("online", "batch")
+#: a bubble's edge is inclusive: hexagonal grid distances of 1 come out a hair above or below 1,
+#: so the squared radius is widened by this share (above float32's rounding)
+BUBBLE_EDGE = 1e-6
 
 
 def neighbourhood(grid_d2: np.ndarray, sigma: np.ndarray | float, kind: str) -> np.ndarray:
@@ -41,7 +44,7 @@ def neighbourhood(grid_d2: np.ndarray, sigma: np.ndarray | float, kind: str) -> 
     if kind == "gaussian":
         return np.exp(-grid_d2 / (2.0 * sigma * sigma))
     if kind == "bubble":
-        return (grid_d2 <= sigma * sigma).astype(np.float64)
+        return (grid_d2 <= sigma * sigma * (1 + BUBBLE_EDGE)).astype(np.float64)
     raise ValueError(f"neighbourhood {kind!r} is not one of {', '.join(NEIGHBOURHOODS)}")
 
 
@@ -92,7 +95,7 @@ class SelfOrganisingMap:
         sigma = decay(self.radius0, self.radius1, frac, self.decay, np.float64)
         gaussian = self.kind == "gaussian"
         # gaussian: h = exp(g2 * coef), coef = -1 / (2 sigma^2); bubble: h = (g2 <= sigma^2)
-        coef = (-0.5 / (sigma * sigma)).astype(dt) if gaussian else (sigma * sigma).astype(dt)
+        coef = (-0.5 / (sigma * sigma)).astype(dt) if gaussian else (sigma * sigma * (1 + BUBBLE_EDGE)).astype(dt)
         grid = self.grid_d2.astype(dt)
         m, k, _ = P.shape
         diff, d2 = np.empty_like(P), np.empty((m, k), dt)
