@@ -95,7 +95,10 @@ class SelfOrganisingMap:
         sigma = decay(self.radius0, self.radius1, frac, self.decay, np.float64)
         gaussian = self.kind == "gaussian"
         # gaussian: h = exp(g2 * coef), coef = -1 / (2 sigma^2); bubble: h = (g2 <= sigma^2)
-        coef = (-0.5 / (sigma * sigma)).astype(dt) if gaussian else (sigma * sigma * (1 + BUBBLE_EDGE)).astype(dt)
+        if gaussian:
+            coef = (-0.5 / (sigma * sigma)).astype(dt)
+        else:
+            coef = (sigma * sigma * (1 + BUBBLE_EDGE)).astype(dt)
         grid = self.grid_d2.astype(dt)
         m, k, _ = P.shape
         diff, d2 = np.empty_like(P), np.empty((m, k), dt)
