@@ -83,8 +83,8 @@ class CompetitiveLearning:
         # distances from ||x||^2 - 2 x.w + ||w||^2; only the winner moves, so only its ||w||^2
         # changes. Units are addressed in the flat (m * k, d) view: member i's unit c is i*k + c.
         flat = P.reshape(m * k, d)
-        norms = np.einsum("mkd,mkd->mk", P, P)
-        flat_norms = norms.reshape(-1)
+        flat_norms = np.einsum("nd,nd->n", flat, flat)      # the same sum as after each update
+        norms = flat_norms.reshape(m, k)
         dots, score = np.empty((m, k, 1), dt), np.empty((m, k), dt)
         best_d2 = np.empty((rows.n_max, m), dt)
         base = np.arange(m) * k
