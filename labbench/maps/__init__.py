@@ -27,8 +27,8 @@ from labbench.maps.record import (PROTOTYPE_FAMILIES, SUBSPACE_FAMILIES, TOPOLOG
                                   PrototypeRecord, SubspaceRecord, grid_positions,
                                   squared_distances)
 from labbench.maps.som import SelfOrganisingMap
-from labbench.maps.stability import (adjusted_rand_index, layout_agreement, stability_summary,
-                                     verdict)
+from labbench.maps.stability import (adjusted_rand_index, layout_agreement, stability_of_records,
+                                     stability_summary, verdict)
 from labbench.maps.training import MapTraining
 
 __all__ = ["PROTOTYPE_FAMILIES", "SUBSPACE_FAMILIES", "TOPOLOGIES", "PrototypeRecord",
@@ -36,4 +36,5 @@ __all__ = ["PROTOTYPE_FAMILIES", "SUBSPACE_FAMILIES", "TOPOLOGIES", "PrototypeRe
            "SelfOrganisingMap", "CompetitiveLearning", "NeuralGas", "HebbianFeatures",
            "MapTraining", "grid_neighbours", "grid_touching", "quantisation_error",
            "topographic_error", "reconstruction_error", "record_measures", "ward_groups",
-           "adjusted_rand_index", "layout_agreement", "stability_summary", "verdict"]
+           "adjusted_rand_index", "layout_agreement", "stability_summary", "stability_of_records",
+           "verdict"]

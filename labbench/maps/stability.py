@@ -10,7 +10,8 @@ and the same map?
   1 means the same layout up to such moves; a map whose regions land elsewhere scores lower.
 * ``verdict(ari_mean)``: plain words. Thresholds (common practice, not from a source): ARI >= 0.9
   "reproducible", 0.7 to 0.9 "mostly reproducible", below 0.7 "not reproducible".
-* ``stability_summary(...)``: every pair of seeds, summarised the way labbench stores it.
+* ``stability_summary(...)``: every pair of seeds, summarised the way labbench stores it;
+  ``stability_of_records(seeds, records, X)`` does it from trained prototype records.
 """
 
 from __future__ import annotations
@@ -103,3 +104,14 @@ def stability_summary(seeds: Sequence[int], groups: Sequence[np.ndarray],
     return {"seeds": [int(s) for s in seeds], "ari_mean": float(np.mean(ari)),
             "ari_min": float(np.min(ari)), "layout_mean": layout_mean, "layout_min": layout_min,
             "verdict": word, "message": message}
+
+
+def stability_of_records(seeds: Sequence[int], records: Sequence[Any], X: np.ndarray) -> dict[str, Any]:
+    """``stability_summary`` of prototype records trained with different seeds (one per seed),
+    from the assignment of the same scaled rows ``X``: each row's group in every run, and for
+    maps its best unit and the map's grid positions."""
+    assigned = [record.assign(X) for record in records]
+    maps = all(getattr(record, "shape", None) is not None for record in records)
+    return stability_summary(seeds, [a[1] for a in assigned],
+                             [a[0] for a in assigned] if maps else None,
+                             [record.positions for record in records] if maps else None)

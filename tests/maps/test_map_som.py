@@ -13,6 +13,7 @@ from sklearn.metrics import adjusted_rand_score
 from labbench.maps import (MapTraining, SelfOrganisingMap, adjusted_rand_index, grid_neighbours,
                            grid_positions, layout_agreement, stability_summary, topographic_error,
                            ward_groups)
+from labbench.maps.stability import stability_of_records
 from labbench.maps.init import pca_plane, random_rows
 from labbench.maps.measures import grid_touching
 
@@ -128,9 +129,11 @@ def test_seed_stability_of_a_map_and_its_verdict():
         t = MapTraining(som, [X] * 3, None, seeds=seeds, epochs=5, groups=4)
         t.run()
         recs = [t.record(i) for i in range(3)]
-        assigned = [rec.assign(X) for rec in recs]
-        return stability_summary(seeds, [a[1] for a in assigned], [a[0] for a in assigned],
-                                 [rec.positions for rec in recs])
+        summary = stability_of_records(seeds, recs, X)
+        assigned = [rec.assign(X) for rec in recs]           # the same, spelled out
+        assert summary == stability_summary(seeds, [a[1] for a in assigned],
+                                            [a[0] for a in assigned], [r.positions for r in recs])
+        return summary
 
     same = runs(SelfOrganisingMap(4, 4, training="batch", init="pca_plane"))
     assert same["ari_mean"] == 1.0 and same["layout_min"] == pytest.approx(1.0)
