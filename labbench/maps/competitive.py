@@ -42,13 +42,14 @@ COMPETITIVE_INITS = ("random_rows", "kmeans++")
 TRAININGS = ("online", "batch")
 
 
+_VECDOT = getattr(np, "vecdot", None)        # numpy 2.0 and later
+
+
 def _rowdot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Dot products along the last axis (numpy.vecdot where numpy has it, 2.0 and later)."""
+    """Dot products along the last axis (numpy.vecdot where numpy has it: less overhead)."""
+    if _VECDOT is not None:
+        return _VECDOT(a, b)
     return np.einsum("...d,...d->...", a, b)
-
-
-if hasattr(np, "vecdot"):
-    _rowdot = np.vecdot          # noqa: F811 - the same sums with less overhead per call
 
 
 def start_prototypes(rows: MemberRows, units: int, init: str) -> np.ndarray:
