@@ -35,6 +35,7 @@ def test_the_default_space_is_valid_and_searches_something(name):
     space = SearchSpace.from_dict(family.default_space, "d.toml", name)
     assert space.searched_params()
     assert not space.searched("unit_cost")
+    assert SearchSpace.from_dict(space.to_dict(), "d.toml", name) == space     # TOML round trip
     for info in family.settings.values():            # every setting explains itself
         assert info.help.endswith(".") and info.label
 
