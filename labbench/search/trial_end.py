@@ -86,14 +86,15 @@ class TrialEndings:
                              "fold", fold_scores=scores, epochs_run=result["epochs_run"])
             else:
                 self._finish(flight, "COMPLETE", value=mean, fold_scores=scores,
-                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"))
+                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"),
+                             measures=result.get("measures"))
 
     # ------------------------------------------------------------------------------------
     # ending trials
 
     def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
                 reason: str = "", fold_scores=(), epochs_run: int | None = None,
-                best_epoch: int | None = None) -> None:
+                best_epoch: int | None = None, measures: Mapping[str, Any] | None = None) -> None:
         trial = flight.trial
         duration = time.monotonic() - flight.started if flight.training else 0.0
         points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
@@ -104,6 +105,8 @@ class TrialEndings:
                  "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
         if best_epoch is not None:             # the epoch the fold scores (and the refit) use
             attrs["best_epoch"] = int(best_epoch)
+        if measures is not None:               # a map family: fold means of its measures + units
+            attrs["measures"] = dict(measures)
         try:
             self._save_values(flight)
             write_user_attrs(trial, plain(attrs))
@@ -120,7 +123,7 @@ class TrialEndings:
             self.durations.append(duration)
         shown = key_of(state, reason)          # the one state table (labbench.search.states)
         self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
-                                reason, dict(trial.params), int(runs)))
+                                reason, dict(trial.params), int(runs), attrs.get("measures")))
         if state == "COMPLETE" and self._better(value):
             self.best = (trial.number, float(value), attrs["cv_std"] or 0.0,
                          tuple(attrs["fold_scores"]), dict(trial.params))
