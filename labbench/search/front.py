@@ -11,7 +11,8 @@ the finished trials that are NOT DOMINATED on
 * ``topographic_error`` (SOM only: when every trial on the front's candidates has it),
 
 where a trial dominates another when it is no worse in every one of them and better in at least
-one (Pareto's definition). Trials with equal numbers in all of them are all kept. The numbers
+one (Pareto's definition). Trials with equal numbers in all of them are all kept, except a later
+trial with the very same settings (the same model trained again: the earlier stands for it). The numbers
 come from the trial attr ``measures`` (fold means at the kept epoch, written by
 ``labbench.search.trial_end``); the window and ``labbench show`` both read this module, and the
 user picks a trial from it (``labbench run SPEC --pick N`` refits and exports that one).
@@ -19,6 +20,7 @@ user picks a trial from it (``labbench run SPEC --pick N`` refits and exports th
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import dataclass
 from typing import Any, Iterable, Mapping, Sequence
@@ -84,12 +86,19 @@ def non_dominated(points: np.ndarray) -> np.ndarray:
 
 def trade_off_front(trials: Iterable[Any]) -> list[FrontPoint]:
     """The non-dominated finished trials, fewest units first (then lower error, then number)."""
+    trials = list(trials)
+    settings = {t.number: t.user_attrs.get("settings") for t in trials}
     cands = [c for c in (candidate(t) for t in trials) if c is not None]
     if not cands:
         return []
     with_te = all(c.topographic is not None for c in cands)
     mask = non_dominated(np.array([c.objectives(with_te) for c in cands]))
-    front = [c for c, keep in zip(cands, mask) if keep]
+    front, seen = [], set()
+    for c, keep in sorted(zip(cands, mask), key=lambda x: x[0].number):
+        again = (c.objectives(with_te), json.dumps(settings.get(c.number), sort_keys=True, default=str))
+        if keep and again not in seen:       # a retrained copy of the same settings: once
+            seen.add(again)
+            front.append(c)
     return sorted(front, key=lambda c: (c.units, c.error, c.number))
 
 

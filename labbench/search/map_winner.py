@@ -178,20 +178,21 @@ def checked_stability(prepared: Any, settings: Mapping[str, Any], seeds: list[in
 
 def stability_message(n_seeds: int, where: str, s: Mapping[str, Any], verdict: str) -> str:
     """The stability result in plain words (the window, the report and ``labbench run``)."""
-    agree = (f"adjusted Rand index {number(s['ari_mean'])} on average over the pairs of seeds, "
-             f"lowest {number(s['ari_min'])}; 1 = the same groups, 0 = no more alike than chance")
+    agree = (f"on {where}: adjusted Rand index {number(s['ari_mean'])} on average over the "
+             f"pairs of seeds, lowest {number(s['ari_min'])}; 1 = the same groups, 0 = no more "
+             "alike than chance")
     if verdict == VERDICTS[0]:
-        text = (f"Retrained with {n_seeds} seeds, the rows fall into the same groups ({agree}, "
-                f"on {where}): the groups are reproducible.")
+        text = (f"Retrained with {n_seeds} seeds, the rows fall into the same groups ({agree}): "
+                "the groups are reproducible.")
     elif verdict == VERDICTS[1]:
         text = (f"Retrained with {n_seeds} seeds, the rows mostly fall into the same groups "
-                f"({agree}, on {where}): mostly reproducible; rows near the borders of groups "
-                "change group from seed to seed.")
+                f"({agree}): mostly reproducible; rows near the borders of groups change group "
+                "from seed to seed.")
     else:
-        text = (f"Retrained with {n_seeds} seeds, the rows fall into different groups ({agree}, "
-                f"on {where}): the groups are not reproducible, so one run's groups say little "
-                "on their own. Fewer units or groups, more epochs or a principal-component start "
-                "often help; compare the seeds before relying on the groups.")
+        text = (f"Retrained with {n_seeds} seeds, the rows fall into different groups ({agree}): "
+                "the groups are not reproducible, so one run's groups say little on their own. "
+                "Fewer units or groups, more epochs or a principal-component start often help; "
+                "compare the seeds before relying on the groups.")
     if s.get("layout_mean") is not None:
         text += (f" The map's layout agrees at {number(s['layout_mean'])} on average (lowest "
                  f"{number(s['layout_min'])}; 1 = the same layout up to rotation or mirroring).")

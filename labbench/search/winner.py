@@ -282,6 +282,8 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     spread = None
     lead = lead_inside_spread(cv_mean, None if runner_up is None else runner_up.value, None, metric)
     stable = None
+    if fit is not None:       # maps: seeds are compared by their groups (stability), not a score
+        lead = {**lead, "text": ""}
     if n_seeds >= 2 and fit is not None:
         stable = map_winner.checked_stability(prepared, settings, _seed_list(seed, n_seeds), fit,
                                               best_epoch, dtype, stage, emit, warnings)
