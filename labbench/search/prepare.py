@@ -81,9 +81,9 @@ def prepare(spec: Spec) -> Prepared:
         check_metric(metric, task, spec.source_path)
     offered = spec.space.model.metrics(task)
     if metric not in offered:           # the family scores itself with these objectives only
+        what = "a table without a target" if not table.has_target else f"a {task} task"
         raise spec_error(spec.source_path, "evaluation.metric", f"{metric!r} cannot score the "
-                         f"{spec.space.family} family on a {task} task; use one of "
-                         + ", ".join(offered))
+                         f"{spec.space.family} family on {what}; use one of " + ", ".join(offered))
     check_folds(table, e.folds, e.holdout)
     stratify = table.classes is not None
     train_pos, holdout_pos = holdout_split(table.y, e.holdout, seed=e.seed, stratify=stratify)

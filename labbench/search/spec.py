@@ -391,5 +391,6 @@ def check_metric(metric: str, task: str | None, source: str | None = None,
                          + ", ".join(METRICS))
     if task is not None and task not in METRICS[metric].tasks:
         fits = [n for n, info in METRICS.items() if task in info.tasks]
-        raise spec_error(source, key, f"{show(metric)} does not fit a {task} task; use one of "
+        what = "a table without a target" if task == UNSUPERVISED else f"a {task} task"
+        raise spec_error(source, key, f"{show(metric)} does not fit {what}; use one of "
                          + ", ".join(fits))
