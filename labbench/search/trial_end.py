@@ -1,7 +1,8 @@
 """How the controller takes in a trial's epochs and ends it: a mixin of ``SearchRunner``.
 
 Each epoch: the fold-mean values join the trial's curve, the validation loss is reported (in
-batches, see ``_report``) and the pruner is asked. When the worker is done, or the trial is
+batches, see ``_report``; for a family without a target the metric, see ``_judged``) and the
+pruner is asked. When the worker is done, or the trial is
 pruned, cancelled, lost or diverged, ``_finish`` writes the trial's attrs, tells Optuna, and
 emits ``TrialEnded`` (and ``NewBest``, ``Progress``). The attributes it uses (``study``, ``spec``,
 ``pool``, ``beats``, ``should_prune``, ``emit``, ``best``, ...) are set by ``SearchRunner.run``.
@@ -35,14 +36,24 @@ class TrialEndings:
 
     def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
-        if math.isfinite(val_loss):
-            self._report(flight, int(epoch), self.sign * float(val_loss))
+        judged = self._judged(val_loss, val_metric)
+        if math.isfinite(judged):
+            self._report(flight, int(epoch), self.sign * float(judged))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
         most = int(flight.settings["epochs"])
         if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch), most):
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
+
+    def _judged(self, val_loss: float, val_metric: float) -> float:
+        """What the pruner compares each epoch: the fold-mean validation loss; for a family
+        without a target (the maps) the metric itself, since their held-out loss (quantisation
+        error) always falls with more units and a pruner comparing it would stop the small maps
+        the (penalised) metric may prefer."""
+        if getattr(self, "_by_metric", None) is None:
+            self._by_metric = not self.spec.space.model.needs_target
+        return float(val_metric) if self._by_metric else float(val_loss)
 
     def _report(self, flight: InFlight, step: int, value: float) -> None:
         """``trial.report`` in batches: the trial's own copy (what the pruner reads) now, the

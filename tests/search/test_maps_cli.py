@@ -64,6 +64,7 @@ def test_run_show_and_pick_a_search_without_a_target(tmp_path):
     # every finished trial stored the fold means of its measures; the worker's numbers are what
     # the same settings give here again (same member seeds)
     study = load(tmp_path / "groups.db", "groups")
+    assert study.user_attrs["task"] == "unsupervised" and study.user_attrs["label"] == "kind"
     done = [t for t in study.trials if t.state.name == "COMPLETE"]
     assert len(done) == 6
     prepared = prepare(load_spec(spec))
@@ -71,6 +72,11 @@ def test_run_show_and_pick_a_search_without_a_target(tmp_path):
         measures = t.user_attrs["measures"]
         assert measures["units"] == t.user_attrs["settings"]["units"]
         assert ("topographic_error" in measures) == (t.user_attrs["settings"]["grid"] == "line")
+        # the pruner compared the metric (penalised error), not the held-out QE that always
+        # falls with more units
+        curve = t.user_attrs["curve"]
+        assert t.intermediate_values == pytest.approx(dict(zip(curve["epoch"], curve["val_metric"])))
+        assert curve["val_metric"] != curve["val_loss"]
     again = run_trial(prepared, done[0].user_attrs["settings"], seed=2, on_epoch=lambda v: None,
                       should_stop=lambda: False)
     assert again["measures"] == pytest.approx(done[0].user_attrs["measures"], rel=1e-12)
