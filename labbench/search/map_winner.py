@@ -12,9 +12,10 @@ family with ``needs_target = False``.
   Training (one member per seed, all training rows). Each pair of seeds is compared on the rows
   none of them trained on (the hold-out rows; the whole table when the hold-out has fewer than
   ``MIN_ROWS``): the adjusted Rand index between their row -> group assignments and, for a map,
-  the layout agreement (``labbench.maps.stability``). The verdict uses the mean ARI over the
-  pairs: >= 0.9 "reproducible", >= 0.7 "mostly reproducible", below "not reproducible"
-  (thresholds: common practice for agreement indices, a guide and not a test). Hebbian
+  the layout agreement (``labbench.maps.stability``; a pair whose layout cannot be compared,
+  NaN, is left out). The verdict uses the mean ARI over the pairs: >= 0.9 "reproducible", >= 0.7
+  "mostly reproducible", below "not reproducible" (different seeds give different groups;
+  thresholds: common practice for agreement indices, a guide and not a test). Hebbian
   features have no groups: their components are compared instead (the mean cosine of the
   principal angles between two seeds' subspaces, 1 = the same subspace).
 """
@@ -35,8 +36,7 @@ log = logging.getLogger("labbench.search.winner")
 
 MIN_ROWS = 50          # fewer hold-out rows than this: agreement is judged on every row
 REPRODUCIBLE, MOSTLY = 0.9, 0.7
-VERDICTS = ("reproducible", "mostly reproducible",
-            "not reproducible: different seeds give different groups")
+VERDICTS = ("reproducible", "mostly reproducible", "not reproducible")
 MEASURE_KEYS = ("quantisation_error", "topographic_error", "reconstruction_error",
                 "relative_error")
 
@@ -148,10 +148,11 @@ def stability(prepared: Any, settings: Mapping[str, Any], seeds: Sequence[int], 
     out.update(ari_mean=float(np.mean(ari)), ari_min=float(np.min(ari)))
     layout = None
     if getattr(records[0], "positions", None) is not None:
-        rng = np.random.default_rng(seeds[0])
         layout = [float(layout_agreement(assigned[i][0], assigned[j][0], records[i].positions,
-                                         records[j].positions, rng)) for i, j in pairs]
-        out.update(layout_mean=float(np.mean(layout)), layout_min=float(np.min(layout)))
+                                         records[j].positions, seed=seeds[0])) for i, j in pairs]
+        layout = [v for v in layout if np.isfinite(v)]
+        if layout:
+            out.update(layout_mean=float(np.mean(layout)), layout_min=float(np.min(layout)))
     verdict = _verdict(out["ari_mean"])
     out["verdict"] = verdict
     out["message"] = stability_message(len(seeds), where, out, verdict)
@@ -189,8 +190,9 @@ def stability_message(n_seeds: int, where: str, s: Mapping[str, Any], verdict: s
                 f"({agree}): mostly reproducible; rows near the borders of groups change group "
                 "from seed to seed.")
     else:
-        text = (f"Retrained with {n_seeds} seeds, the rows fall into different groups ({agree}): "
-                "the groups are not reproducible, so one run's groups say little on their own. "
+        text = (f"Retrained with {n_seeds} seeds, different seeds give different groups "
+                f"({agree}): the groups are not reproducible, so one run's groups say little on "
+                "their own. "
                 "Fewer units or groups, more epochs or a principal-component start often help; "
                 "compare the seeds before relying on the groups.")
     if s.get("layout_mean") is not None:
