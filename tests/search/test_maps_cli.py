@@ -131,9 +131,10 @@ def _pump_demo(tmp_path: Path, family: str | None = None) -> Path:
     demo = ROOT / "demo_sets"
     shutil.copy(demo / "pumps.csv", tmp_path / "pumps.csv")
     text = (demo / "pumps.toml").read_text()
-    if family is not None:
-        assert 'family = "som"' in text
-        text = text.replace('family = "som"', f'family = "{family}"') + "\n[space]\nunits = { low = 3, high = 8 }\n"
+    if family is not None:         # the toy's own [space] instead of the map's
+        assert 'family = "som"' in text and text.count("\n[space]\n") == 1
+        text = text.split("\n[space]\n")[0].replace('family = "som"', f'family = "{family}"')
+        text += "[space]\nunits = { low = 3, high = 8 }\n"
     (tmp_path / "pumps.toml").write_text(text)
     return tmp_path / "pumps.toml"
 
@@ -155,5 +156,5 @@ def test_the_pump_demo_runs_as_shipped_with_the_self_organising_map(tmp_path):
     assert run.returncode == 0, run.stderr
     summary = json.loads((tmp_path / "pumps_out" / "winner.json").read_text())
     assert summary["label"] == "state" and summary["stability"]["layout_mean"] is not None
-    assert get_family("som").needs_target is False
+    assert get_family("som").needs_target is False and summary["settings"]["groups"] == 4
     assert np.isfinite(summary["holdout_measures"]["topographic_error"])
