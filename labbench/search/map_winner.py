@@ -126,7 +126,7 @@ def stability(prepared: Any, settings: Mapping[str, Any], seeds: Sequence[int], 
     held = len(fit.X_holdout) >= MIN_ROWS
     rows = fit.X_holdout if held else np.vstack([X, fit.X_holdout])
     where = (f"the {len(rows)} hold-out rows" if held else
-             f"all {len(rows)} rows (the hold-out has fewer than {MIN_ROWS})")
+             f"all {len(rows)} rows, as the hold-out has fewer than {MIN_ROWS}")
     out: dict[str, Any] = {"seeds": seeds, "ari_mean": None, "ari_min": None,
                            "layout_mean": None, "layout_min": None}
     pairs = list(combinations(range(len(seeds)), 2))
@@ -134,12 +134,11 @@ def stability(prepared: Any, settings: Mapping[str, Any], seeds: Sequence[int], 
         agree = [subspace_agreement(records[i].components, records[j].components) for i, j in pairs]
         out.update(subspace_mean=float(np.mean(agree)), subspace_min=float(np.min(agree)),
                    verdict="not measured",
-                   message=(f"Hebbian features have no groups, so no agreement of groups is "
-                            f"measured; retrained with {len(seeds)} seeds, the learned components "
-                            f"span nearly the same directions when this is near 1: "
-                            f"{number(float(np.mean(agree)))} on average (lowest pair "
-                            f"{number(float(np.min(agree)))}; mean cosine of the angles between "
-                            "the subspaces)."))
+                   message=(f"Hebbian features have no groups to compare. Retrained with "
+                            f"{len(seeds)} seeds, the learned components agree at "
+                            f"{number(float(np.mean(agree)))} on average, lowest pair "
+                            f"{number(float(np.min(agree)))} (mean cosine of the angles between "
+                            "the seeds' subspaces; 1 = the same directions)."))
         return out
     from labbench.maps.stability import adjusted_rand_index, layout_agreement
 
@@ -208,7 +207,8 @@ def summary_text(scores: Mapping[str, Any]) -> list[str]:
     parts = [f"{k.replace('_', ' ')} {number(held[k])}" for k in MEASURE_KEYS
              if held.get(k) is not None]
     if held.get("units"):
-        parts.insert(0, f"{held['units']} units")
+        kind = "components" if held.get("reconstruction_error") is not None else "units"
+        parts.insert(0, f"{held['units']} {kind}")
     if parts:
         lines.append("  hold-out measures: " + ", ".join(parts))
     s = scores.get("stability")

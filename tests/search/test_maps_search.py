@@ -365,3 +365,17 @@ def test_the_cost_estimate_calibrates_another_family():
     seconds = calibrate(shape)
     assert seconds > 0 and math.isfinite(seconds)
     assert estimate(shape, seconds).words().endswith("for 10 trials on this machine")
+
+
+def test_subspace_agreement_is_the_mean_cosine_of_the_principal_angles():
+    # reference: scipy.linalg.subspace_angles (Björck & Golub 1973)
+    from scipy.linalg import subspace_angles
+
+    from labbench.search.map_winner import subspace_agreement
+
+    rng = np.random.default_rng(4)
+    for c in (1, 2, 3):
+        a, b = rng.normal(size=(c, 6)), rng.normal(size=(c, 6))
+        expected = np.cos(subspace_angles(a.T, b.T)).mean()
+        assert subspace_agreement(a, b) == pytest.approx(expected, abs=1e-12)
+        assert subspace_agreement(a, 3.0 * a[::-1]) == pytest.approx(1.0, abs=1e-12)
