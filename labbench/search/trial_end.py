@@ -79,8 +79,11 @@ class TrialEndings:
     def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
         self.worker_cpu_s += float(result.get("cpu_s", 0.0))
         if flight.stopping == "pruned":
-            last = flight.points[-1][2] if flight.points else float("nan")
-            reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "
+            by_metric = bool(getattr(self, "_by_metric", False))
+            last = flight.points[-1][3 if by_metric else 2] if flight.points else float("nan")
+            what = f"validation {self.prepared.metric}".replace("_", " ") if by_metric \
+                else "validation loss"
+            reason = (f"pruned after epoch {flight.stop_epoch}: {what} {last:.4g} was "
                       f"behind the other trials at that epoch ({self.spec.search.pruner} pruner)")
             self._finish(flight, "PRUNED", reason=reason, epochs_run=flight.stop_epoch)
         elif flight.stopping == "cancelled":
