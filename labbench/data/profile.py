@@ -227,7 +227,7 @@ def find_traps(frame: pd.DataFrame, target: str | None, features: Sequence[str],
         reason = id_reason(rows[col])
         if reason:
             traps.append(Trap(col, "id-like", f"“{col}” looks like a row id ({reason}); it is left "
-                              "out, since a network cannot learn from a label that names each row.",
+                              "out, since a model cannot learn from a label that names each row.",
                               (Remedy("Keep it out", {"ignore": [col]}),
                                Remedy("Use it anyway", {"keep": [col]}))))
     y = rows[target] if target else None

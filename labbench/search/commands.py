@@ -26,7 +26,7 @@ from typing import Any
 from labbench.errors import SpecError
 from labbench.numbers import duration, number, percent, setting
 from labbench.search import states
-from labbench.search.ending import OUTPUT_NAMES, out_dir
+from labbench.search.ending import OUTPUT_NAMES, out_dir, picked_dir
 from labbench.search.stored import open_for_reading  # noqa: F401  (also used by tests)
 
 log = logging.getLogger("labbench.search.commands")
@@ -130,7 +130,7 @@ def run_command(args) -> int:
     pick = getattr(args, "pick", None)
     if pick is not None:
         _check_pick(args)
-        target = Path(args.out) if args.out else out_dir(spec) / f"trial_{pick}"
+        target = picked_dir(spec, pick, args.out)
         check_out(spec, target, spec_path=args.spec)
         return _winner_only(args, spec, target, pick=pick)
     target = out_dir(spec, args.out)
