@@ -104,7 +104,11 @@ def shape_from(space: Mapping[str, Any], *, rows: int, inputs: int, outputs: int
                family: str = "network") -> Shape:
     """A ``Shape`` for a spec's [space] dict (the middle of each searched range)."""
     if family != "network":
+        from labbench.families import get_family
+
         settings = middle_settings(space, family)
+        if not get_family(family).needs_target:      # whatever task the caller guessed
+            task, outputs = "unsupervised", 1
         return Shape(rows=rows, inputs=max(1, inputs), outputs=max(1, outputs), task=task,
                      folds=folds, repeats=repeats, holdout=holdout, trials=trials,
                      workers=max(1, workers), epochs=max(1, int(settings["epochs"])),

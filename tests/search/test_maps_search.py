@@ -361,6 +361,9 @@ def test_the_cost_estimate_calibrates_another_family():
                        rows=500, inputs=4, outputs=1, task="unsupervised", folds=3, repeats=1,
                        holdout=0.2, trials=10, workers=1, family="toymap")
     assert shape.family == "toymap" and shape.epochs == 7
+    guessed = shape_from({}, rows=50, inputs=2, outputs=3, task="regression", folds=2, repeats=1,
+                         holdout=0.2, trials=1, workers=1, family="toymap")
+    assert guessed.task == "unsupervised" and guessed.outputs == 1   # a map has no target task
     assert shape.settings == {"units": 6, "epochs": 7, "grid": "none", "unit_cost": 0.01}
     seconds = calibrate(shape)
     assert seconds > 0 and math.isfinite(seconds)
