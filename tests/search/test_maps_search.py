@@ -382,3 +382,22 @@ def test_subspace_agreement_is_the_mean_cosine_of_the_principal_angles():
         expected = np.cos(subspace_angles(a.T, b.T)).mean()
         assert subspace_agreement(a, b) == pytest.approx(expected, abs=1e-12)
         assert subspace_agreement(a, 3.0 * a[::-1]) == pytest.approx(1.0, abs=1e-12)
+
+
+def test_the_runner_sends_each_trials_measures_with_its_end(tmp_path, monkeypatch):
+    # the worker processes learn the toy family the way any family outside labbench is learnt
+    monkeypatch.setenv("LABBENCH_FAMILIES", "maps_toy:FAMILY")
+    from labbench.search.runner import SearchRunner
+    from runner_support import load
+
+    spec = load_spec(write_spec(tmp_path, blobs_csv(tmp_path), 'label = "kind"\nignore = ["reading"]',
+                                space="units = { low = 2, high = 6 }\nepochs = 2"))
+    seen = []
+    SearchRunner(spec, seen.append, storage=f"sqlite:///{tmp_path / 'r.db'}", trials=3).run()
+    ended = [e for e in seen if isinstance(e, events.TrialEnded)]
+    stored = {t.number: t for t in load(tmp_path / "r.db", spec.study_name()).trials}
+    assert len(ended) == 3
+    for e in ended:
+        assert e.state == "complete"
+        assert e.measures == stored[e.number].user_attrs["measures"]
+        assert e.measures["units"] == stored[e.number].user_attrs["settings"]["units"]
