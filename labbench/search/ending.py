@@ -73,8 +73,8 @@ def finish_search(spec: Any, study: Any, prepared: Any = None, target: str | os.
 
     ``target``: the output folder (default :func:`out_dir`; for a picked trial use
     :func:`picked_dir`). ``finalize_options`` go to ``finalize`` (``importance``, ``seed_spread``,
-    ``dtype``, ``trial_number``: a trial the user picked instead of the best). Raises what ``finalize`` raises
-    (no complete trial, every refit diverged); nothing is written then.
+    ``dtype``, ``trial_number``: a trial the user picked instead of the best). Raises what
+    ``finalize`` raises (no complete trial, every refit diverged); nothing is written then.
     """
     from labbench.export import export_all
     from labbench.search.winner import finalize

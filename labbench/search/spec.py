@@ -39,8 +39,9 @@ from labbench.nets.metrics import UNSUPERVISED    # the task of a table without 
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
                                     MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
-from labbench.search.spec_reading import (DECIMALS, THOUSANDS, Section, check_target_for_family,  # noqa: F401
-                                          number_format, target_text)
+from labbench.search.spec_reading import (DECIMALS, THOUSANDS,  # noqa: F401  (kept importable here)
+                                          Section, check_target_for_family, number_format,
+                                          target_text)
 
 MISSING, SCALING, TARGET_SCALING = MISSING_POLICIES, SCALINGS, TARGET_SCALINGS   # labbench.data's
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
