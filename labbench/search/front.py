@@ -110,9 +110,10 @@ def front_text(trials: Sequence[Any], metric: str = "", pick_hint: str = "") -> 
         return ""
     with_te = all(p.topographic is not None for p in front)
     error = front[0].error_name
-    judged = [LABELS["units"], f"held-out {LABELS[error]}"] + ([LABELS[TOPOGRAPHIC]] if with_te else [])
+    units = "components" if error == "reconstruction_error" else "units"     # Hebbian: components
+    judged = [units, f"held-out {LABELS[error]}"] + ([LABELS[TOPOGRAPHIC]] if with_te else [])
     extra = [k for k in ("relative_error",) if any(_finite(p.measures.get(k)) for p in front)]
-    header = ["trial", "units", LABELS[error]] + ([LABELS[TOPOGRAPHIC]] if with_te else []) \
+    header = ["trial", units, LABELS[error]] + ([LABELS[TOPOGRAPHIC]] if with_te else []) \
         + [LABELS[k] for k in extra] + ([metric.replace("_", " ")] if metric else [])
     rows = []
     for p in front:
@@ -123,7 +124,7 @@ def front_text(trials: Sequence[Any], metric: str = "", pick_hint: str = "") -> 
     widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]
     lines = [f"trade-off: {len(front)} trial(s) that no other finished trial beats on "
              + ", ".join(judged[:-1]) + f" and {judged[-1]} at once "
-             "(held-out fold means; fewer units and lower errors are better)"]
+             f"(held-out fold means; fewer {units} and lower errors are better)"]
     lines.append("  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip())
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)).rstrip() for r in rows]
     if pick_hint:

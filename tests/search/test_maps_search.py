@@ -240,6 +240,15 @@ def test_the_front_keeps_the_trials_nothing_beats_at_once():
                                 "relative", "error", "penalised", "error"]
     assert lines[2].split() == ["6", "2", "2.000", "0", "1.000", "0.9000"]
     assert lines[-1] == "pick with --pick TRIAL"
+    # Hebbian features: components and the reconstruction error (no topography)
+    hebbian = optuna.create_study()
+    for n, (c, rec) in enumerate([(2, 0.4), (3, 0.2), (4, 0.25)]):
+        hebbian.add_trial(optuna.trial.create_trial(value=rec, user_attrs={"measures": {
+            "reconstruction_error": rec, "relative_error": rec, "units": c}, "settings": {"c": c}}))
+    assert [p.number for p in trade_off_front(hebbian.trials)] == [0, 1]
+    text = front_text(hebbian.trials)
+    assert "beats on components and held-out reconstruction error at once" in text
+    assert text.splitlines()[1].split()[:4] == ["trial", "components", "reconstruction", "error"]
     # without measures (a network search) there is no front to show
     network = optuna.create_study()
     network.add_trial(optuna.trial.create_trial(value=0.8, user_attrs={"fold_scores": [0.8]}))
