@@ -13,7 +13,7 @@ Resolved settings look like (som)::
     {"rows": 8, "cols": 8, "topology": "rectangular", "training": "online", "learning_rate": 0.5,
      "final_learning_rate": 0.01, "radius": 0.0, "final_radius": 0.5, "decay": "exponential",
      "neighbourhood": "gaussian", "init": "pca_plane", "epochs": 30, "groups": 0,
-     "unit_cost": 0.01}
+     "unit_cost": 0.001}
 """
 
 from __future__ import annotations

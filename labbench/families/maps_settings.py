@@ -16,6 +16,7 @@ from labbench.maps.record import TOPOLOGIES
 from labbench.maps.schedule import DECAYS
 from labbench.maps.som import NEIGHBOURHOODS, SOM_INITS, TRAININGS
 
+SOM_UNIT_COST_DEFAULT = 0.001
 UNIT_COST_DEFAULT = 0.01
 
 
@@ -41,8 +42,8 @@ def _epochs(default: int) -> SettingInfo:
                        "initial to their final values over all of them.", low=1, high=100_000)
 
 
-def _unit_cost(what: str) -> SettingInfo:
-    return SettingInfo("unit_cost", "Cost per " + what, "float", UNIT_COST_DEFAULT,
+def _unit_cost(what: str, default: float = UNIT_COST_DEFAULT) -> SettingInfo:
+    return SettingInfo("unit_cost", "Cost per " + what, "float", default,
                        f"The share of the held-out error one more {what} must remove to be worth "
                        f"having: the penalised error adds it once per {what}. Fixed for a whole "
                        "search.", low=0.0, high=1.0)
@@ -82,7 +83,9 @@ SOM_SETTINGS = _table(
                 "Number of groups the map's units are merged into after training (Ward's method, "
                 "neighbouring units only, so every group is one region of the map); 0 makes every "
                 "unit its own group.", low=0, high=10_000),
-    _unit_cost("unit"),
+    # A map's units set its resolution (the groups setting sets how many groups), so one unit
+    # costs a tenth of a group-making unit: a 10 x 10 map pays 0.1 of the relative error.
+    _unit_cost("unit", SOM_UNIT_COST_DEFAULT),
 )
 
 COMPETITIVE_SETTINGS = _table(

@@ -71,7 +71,7 @@ def test_sampled_settings_resolve_to_a_complete_dict():
     study = optuna.create_study(sampler=optuna.samplers.RandomSampler(seed=0))
     settings = space.suggest(study.ask())
     assert set(settings) == set(get_family("som").settings)
-    assert 4 <= settings["rows"] <= 12 and settings["groups"] == 0 and settings["unit_cost"] == 0.01
+    assert 4 <= settings["rows"] <= 12 and settings["groups"] == 0 and settings["unit_cost"] == 0.001
     again = space.fixed_at(settings)                 # the winner's settings as a fixed space
     assert not again.searched_params()
 
@@ -116,12 +116,12 @@ def test_a_family_stack_trains_folds_and_reports_every_epoch(name, settings):
     if name == "hebbian":
         assert isinstance(record, SubspaceRecord) and units == 2
         np.testing.assert_allclose(measures["penalised_error"],
-                                   measures["reconstruction_error"] + 0.01 * 2)
+                                   measures["reconstruction_error"] + full["unit_cost"] * 2)
     else:
         assert isinstance(record, PrototypeRecord) and record.n_units == units
         extra = measures["topographic_error"] if name == "som" else 0.0
         np.testing.assert_allclose(measures["penalised_error"],
-                                   measures["relative_error"] + extra + 0.01 * units)
+                                   measures["relative_error"] + extra + full["unit_cost"] * units)
     if name == "som":
         assert record.shape == (3, 4) and record.n_groups == 3
 
