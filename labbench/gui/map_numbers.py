@@ -92,6 +92,22 @@ def cell_polygons(shape: tuple[int, int], topology: str | None) -> np.ndarray:
     return pos[:, None, :] + corner[None, :, :]
 
 
+def group_borders(shape: tuple[int, int], topology: str | None, unit_group: np.ndarray) -> np.ndarray:
+    """(E, 2, 2) the cell edges between touching units of different groups (the outline of each
+    group's region on the map)."""
+    cells = cell_polygons(shape, topology)
+    groups = np.asarray(unit_group)
+    out = []
+    for i, j in mesh_pairs(shape, topology):
+        if groups[i] == groups[j]:
+            continue
+        same = np.isclose(cells[i][:, None, :], cells[j][None, :, :], atol=1e-9).all(axis=2)
+        corners = cells[i][same.any(axis=1)]
+        if len(corners) == 2:
+            out.append(corners)
+    return np.array(out).reshape(-1, 2, 2)
+
+
 # ------------------------------------------------------------------------------ the rows
 def hit_counts(units: np.ndarray, k: int) -> np.ndarray:
     """(k,) how many rows have each unit as their best-matching unit."""

@@ -125,3 +125,13 @@ def test_ramp_runs_from_first_to_last_stop():
     out = mn.ramp(np.array([0.0, 0.5, 1.0, np.nan]), ("#000000", "#ffffff"))
     assert out.tolist() == [[0, 0, 0], [128, 128, 128], [255, 255, 255], [0, 0, 0]]
     assert len(set(mn.group_colours(12, False))) == 12
+
+
+def test_group_borders_outline_the_regions():
+    # 2 x 3 rectangular grid, left column group 0, the rest group 1: two vertical edges at x = 0.5
+    groups = np.array([0, 1, 1, 0, 1, 1])
+    edges = mn.group_borders((2, 3), "rectangular", groups)
+    assert edges.shape == (2, 2, 2)
+    assert np.allclose(edges[:, :, 0], 0.5)
+    # hexagonal 2 x 2, unit 3 alone: its edges with units 1 and 2
+    assert mn.group_borders((2, 2), "hexagonal", np.array([0, 0, 0, 1])).shape == (2, 2, 2)
