@@ -57,7 +57,12 @@ class CostEstimate(QObject):
             return
         from labbench.search.estimate import calibrate, estimate, shape_from
 
-        target = data.target_box.currentText()
+        target = data.target()
+        if target is None or w.space.family_name() != "network":
+            w.space.estimate.setText("No time estimate for this model family yet; a short first search "
+                                     "(a few trials) tells you how long one trial takes.")
+            self.label.setText("")
+            return
         task = data.effective_task() or "regression"
         frame = data.frame
         kinds = {name: kind.currentText() for name, kind, _use in data._row_widgets()}

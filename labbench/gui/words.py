@@ -48,6 +48,8 @@ def settings_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None
         from labbench.gui.core import param_label
 
         return ", ".join(f"{param_label(k).lower()} {num(v)}" for k, v in (params or {}).items())
+    if "hidden" not in s and "learning_rate" not in s or "unit_cost" in s:
+        return family_words(s)
     parts = []
     if "hidden" in s:
         parts.append(hidden_words(s["hidden"]))
@@ -64,6 +66,23 @@ def settings_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None
     l2 = s.get("l2")
     if l2:
         parts.append(f"L2 penalty {num(l2, 2)}")
+    if "epochs" in s:
+        parts.append(f"{num(s['epochs'])} epochs")
+    return ", ".join(parts)
+
+
+def family_words(settings: Mapping[str, Any]) -> str:
+    """Another family's settings in words, by their table's labels: "rows 6, columns 8, ..."."""
+    from labbench.gui.core import param_label
+
+    s = dict(settings)
+    parts = []
+    if "rows" in s and "cols" in s:
+        parts.append(f"{num(s.pop('rows'))} × {num(s.pop('cols'))} grid")
+    for key, value in s.items():
+        if key == "epochs":
+            continue
+        parts.append(f"{param_label(key).lower()} {num(value, 3) if isinstance(value, float) else num(value)}")
     if "epochs" in s:
         parts.append(f"{num(s['epochs'])} epochs")
     return ", ".join(parts)
