@@ -48,7 +48,7 @@ def _cell(text: str, fill: QColor | None = None, tip: str = "", right: bool = Tr
     if tip:
         item.setToolTip(tip)
     if right:
-        item.setTextAlignment(int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter))
+        item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
     return item
 
 
