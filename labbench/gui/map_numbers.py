@@ -272,6 +272,12 @@ class MapData:
         return getattr(self.record, "shape", None) is not None
 
     @property
+    def ungrouped(self) -> bool:
+        """A map whose units were not merged into groups (groups = 0): every unit is a group, too
+        many to tell apart by colour."""
+        return self.is_map and self.record.n_groups == self.record.n_units
+
+    @property
     def has_prototypes(self) -> bool:
         return hasattr(self.record, "prototypes")
 

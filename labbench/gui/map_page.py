@@ -70,17 +70,16 @@ def head_html(data: mn.MapData, scores: Mapping[str, Any] | None, t: theme.Theme
     stab = s.get("stability") or {}
     if stab.get("verdict") or stab.get("message"):
         colour = t.state(verdict_key(str(stab.get("verdict", "")))).name()
-        seeds = stab.get("seeds") or []
-        ari = stab.get("ari_mean")
-        extra = []
-        if ari is not None:
-            extra.append(f"agreement of the groups between seeds (adjusted Rand) {num(ari)}"
-                         + (f", lowest {num(stab.get('ari_min'))}" if stab.get("ari_min") is not None else ""))
-        if stab.get("layout_mean") is not None:
-            extra.append(f"layout agreement {num(stab['layout_mean'])}")
-        tail = f" ({e('; '.join(extra))}{', ' if extra and seeds else ''}{len(seeds)} seeds)" if extra or seeds else ""
-        parts.append(f"<b style='color:{colour}'>{e(str(stab.get('verdict', '')).capitalize())}</b>"
-                     f"{': ' + e(str(stab.get('message'))) if stab.get('message') else ''}{tail}")
+        verdict = e(str(stab.get("verdict", "")).capitalize())
+        if stab.get("message"):         # the search's own words (labbench.search) say it all
+            parts.append(f"<b style='color:{colour}'>{verdict}.</b> {e(str(stab['message']))}")
+        else:
+            extra = []
+            if stab.get("ari_mean") is not None:
+                extra.append(f"groups agree between seeds at {num(stab['ari_mean'])} (adjusted Rand)")
+            if stab.get("layout_mean") is not None:
+                extra.append(f"layout agreement {num(stab['layout_mean'])}")
+            parts.append(f"<b style='color:{colour}'>{verdict}</b>" + (f": {e('; '.join(extra))}" if extra else ""))
     else:
         parts.append("<i>Stability across seeds not measured (set seeds for the spread check above 1).</i>")
     return "<br>".join(parts)

@@ -113,8 +113,11 @@ class GroupsPanel(Panel):
             r += 1
         left = g_all - len(self.order)
         shown = "&nbsp; ".join(swatch(cols[g], f"group {g + 1}") for g in self.order[:8])
-        self.hint.setText(f"{g_all} groups" + (f"; the {len(self.order)} largest shown" if left else "")
-                          + (f" &nbsp;{shown}" if g_all <= 8 else ""))
+        if data.ungrouped:
+            self.hint.setText(f"every unit is its own group (groups = 0); the {len(self.order)} busiest units")
+        else:
+            self.hint.setText(f"{g_all} groups" + (f"; the {len(self.order)} largest shown" if left else "")
+                              + (f" &nbsp;{shown}" if g_all <= 8 else ""))
 
     def _profile_row(self, r: int, p: dict, column: pd.Series, group: np.ndarray, dark: bool) -> None:
         tab = self.table

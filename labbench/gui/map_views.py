@@ -107,6 +107,8 @@ class HitsPanel(_GridPanel):
         unit, _group, _d = data.assignment()
         self.hits = mn.hit_counts(unit, rec.n_units)
         group_col = mn.group_colours(rec.n_groups, t.dark)
+        if data.ungrouped:          # every unit its own group: one ink, by the rows it takes
+            group_col = [colours(t.dark)["complete"]] * rec.n_groups
         paper = colours(t.dark)["paper"]
         top = max(1, int(self.hits.max()))
         fills = [mix(paper, group_col[g], 0.12 + 0.78 * h / top) for g, h in zip(rec.unit_group, self.hits)]
@@ -219,7 +221,19 @@ class ProjectionPanel(Panel):
         if len(X) > MAX_POINTS:
             pick = np.linspace(0, len(X) - 1, MAX_POINTS).round().astype(int)
         rec = data.record
-        if data.has_prototypes:
+        if data.has_prototypes and data.ungrouped:
+            rows, (protos,), share = mn.projection(X, rec.prototypes)
+            self.rows.setData(rows[pick, 0], rows[pick, 1], brush=self._label_brushes(data, pick, c),
+                              pen=None, size=5)
+            self.protos.setData(protos[:, 0], protos[:, 1], brush=pg.mkBrush(c["paper"]),
+                                pen=pg.mkPen(c["ink"], width=1.4), size=8)
+            pairs = mn.mesh_pairs(rec.shape, rec.topology)
+            self.mesh.setData(protos[pairs].reshape(-1, 2)[:, 0], protos[pairs].reshape(-1, 2)[:, 1],
+                              pen=pg.mkPen(c["muted"], width=1.0))
+            self._axes(share)
+            self.hint.setText((self._label_key(data, c) or "the units are not merged into groups")
+                              + self._sample_note(len(X), len(pick)))
+        elif data.has_prototypes:
             rows, (protos,), share = mn.projection(X, rec.prototypes)
             _unit, group, _d = data.assignment()
             cols = mn.group_colours(rec.n_groups, t.dark)
@@ -233,8 +247,7 @@ class ProjectionPanel(Panel):
                                   pen=pg.mkPen(c["muted"], width=1.0))
             else:
                 self.mesh.setData([], [])
-            self.plot.setLabel("bottom", f"first principal axis ({share[0] * 100:.0f} % of the spread)")
-            self.plot.setLabel("left", f"second principal axis ({share[1] * 100:.0f} %)")
+            self._axes(share)
             shown = [swatch(cols[g], f"group {g + 1}") for g in range(min(rec.n_groups, 8))]
             more = f" … {rec.n_groups} groups" if rec.n_groups > 8 else ""
             self.hint.setText("&nbsp; ".join(shown) + more + self._sample_note(len(X), len(pick)))
@@ -251,6 +264,10 @@ class ProjectionPanel(Panel):
                               + self._sample_note(len(X), len(pick)))
         self.n_drawn = len(pick)
         self.plot.getViewBox().autoRange(padding=0.05)
+
+    def _axes(self, share) -> None:
+        self.plot.setLabel("bottom", f"first principal axis ({share[0] * 100:.0f} % of the spread)")
+        self.plot.setLabel("left", f"second principal axis ({share[1] * 100:.0f} %)")
 
     @staticmethod
     def _sample_note(n: int, drawn: int) -> str:

@@ -186,14 +186,11 @@ class SpacePage(QWidget):
     def _build_rows(self, name: str) -> None:
         """One editor row per setting of the family's table (``Family.settings``)."""
         fam = get_family(name)
-        for row in self.rows.values():
-            row.setParent(None)
-            row.deleteLater()
         while self.grid.count():
-            item = self.grid.takeAt(0)
-            if item.widget() is not None:
-                item.widget().setParent(None)
-                item.widget().deleteLater()
+            widget = self.grid.takeAt(0).widget()
+            if widget is not None:
+                widget.setParent(None)
+                widget.deleteLater()
         for key in [k for k in self.errors if k.startswith("space.")]:
             del self.errors[key]
         self.rows = {}

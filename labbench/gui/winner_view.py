@@ -28,6 +28,8 @@ def winner_html(summary: Mapping[str, Any], metric: str = "", files: Sequence[st
         # maps and groups: do other seeds give the same groups? (labbench.maps.stability)
         words = str(stability.get("verdict") or "").capitalize()
         message = str(stability.get("message") or "")
+        if message in (summary.get("warnings") or []):
+            message = ""            # said in full among the warnings below
         parts.append(f"<p style='margin:2px 0 0 0'><b>Groups across seeds: {e(words)}</b>"
                      f"{': ' + e(message) if message else ''}</p>")
     for w in summary.get("warnings") or []:

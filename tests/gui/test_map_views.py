@@ -55,7 +55,7 @@ def test_a_hexagonal_map_is_drawn_cell_by_cell(page):
     # the head says what was trained and the stability verdict in words
     head = page.head.text()
     assert "6 × 8 hexagonal grid, 48 units in 3 groups" in head
-    assert "quantisation error 0.412" in head and "Not reproducible" in head
+    assert "quantisation error 0.412" in head and "Not reproducible." in head
     assert "different seeds give different groups" in head
 
 
@@ -143,3 +143,19 @@ def test_a_map_picture_saves_with_its_title(page, tmp_path):
     assert "Unit distances" in text and text.count("<path") + text.count("<polygon") > 10
     png = page.hits.export(tmp_path / "hits.png")
     assert png.stat().st_size > 5000
+
+
+def test_a_map_without_groups_is_drawn_in_one_ink_and_by_the_label(page):
+    frame, _ = sensor_rows(300)
+    X, _c, _s = scaled(frame)
+    rec = som_record(X, 5, 5, "rectangular", groups=3)
+    rec.unit_group = np.arange(25)               # groups = 0: every unit its own group
+    data = _data(rec)
+    assert data.ungrouped
+    page.show_model(data)
+    xs, _ys = page.distances.grid.borders.getData()
+    assert xs is None or len(xs) == 0            # no regions to outline
+    fills = {f.name() for f, h in zip(page.hits.grid.cells.fills, page.hits.hits) if h == page.hits.hits.max()}
+    assert len(fills) == 1                       # the busiest units share one colour
+    assert "state:" in page.projection.hint.text()
+    assert "busiest units" in page.groups.hint.text()

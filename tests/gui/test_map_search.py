@@ -1,0 +1,68 @@
+"""A real search of a map family driven through the window, from the invented pump readings (no
+target; the pump's recorded state as the label) to the map on step 4."""
+
+from __future__ import annotations
+
+import pytest
+
+from labbench.gui.data_page import NO_TARGET
+from tests.gui.conftest import ROOT
+
+pytest.importorskip("labbench.families.maps")      # the map families (maps-engine)
+pytestmark = pytest.mark.slow
+LONG = 180_000     # ms; generous, the machine is shared
+
+
+def _pumps(tmp_path, rows=300):
+    src = ROOT / "demo_sets" / "pumps.csv"
+    if not src.exists():
+        pytest.skip("the pumps demo set is not in this checkout")
+    lines = src.read_text(encoding="utf-8").splitlines(keepends=True)
+    out = tmp_path / "pumps.csv"
+    out.write_text("".join(lines[:rows + 1]), encoding="utf-8")
+    return out
+
+
+def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
+    from labbench.maps.record import PrototypeRecord
+
+    w = make_window()
+    assert w.open_path(str(_pumps(tmp_path)))
+    # picking the family on the Search page drops the target on the Data page
+    sp = w.space
+    sp.family.setCurrentIndex(sp.family.findData("som"))
+    assert w.data.target_box.currentText() == NO_TARGET
+    w.data.label_box.setCurrentText("state")
+    for name, _kind, use in w.data._row_widgets():
+        if name == "reading_id":
+            use.setChecked(False)
+    sp.rows["rows"].set_raw(3)
+    sp.rows["cols"].set_raw({"choices": [3, 4]})
+    sp.rows["epochs"].set_raw(4)
+    sp.rows["groups"].set_raw(3)
+    sp.trials.setValue(3)
+    sp.folds.setValue(2)
+    sp.seed_spread.setValue(2)
+    sp.pruner.setCurrentText("none")
+    w.spec_path = str(tmp_path / "pumps.toml")
+    assert not w.validate(), w.problem_label.toolTip()
+    assert w.watch.curves.plot.getAxis("left").labelText == "held-out quantisation error"
+    assert w.start()
+    qtbot.waitUntil(lambda: not w.session.running and w.session.synced, timeout=LONG)
+    model = (w.session.result or {}).get("model")
+    assert model is not None and isinstance(model.record, PrototypeRecord)
+
+    # the window moved on to its map: every row of the table on the winner's grid
+    assert not w.map_step.isHidden() and w.stack.currentWidget() is w.maps
+    page = w.maps
+    rows, cols = model.record.shape
+    assert rows == 3 and cols in (3, 4)
+    assert page.distances.grid.cells.polygons.shape[0] == rows * cols
+    assert page.hits.hits.sum() == 300 and len(page.data.X) == 300
+    assert page.data.label_name == "state"
+    stab = model.scores.get("stability") or {}
+    if stab.get("verdict"):
+        assert str(stab["verdict"]).capitalize() in page.head.text()
+    # the saved spec is a map spec: no target, the label, the family
+    text = (tmp_path / "pumps.toml").read_text(encoding="utf-8")
+    assert 'family = "som"' in text and 'label = "state"' in text and "target" not in text.split("[evaluation]")[0]
