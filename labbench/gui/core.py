@@ -68,12 +68,13 @@ def family_setting(name: str):
 
 
 def loss_label(family: str | None) -> str:
-    """What a family's per-epoch validation loss is, for the learning-curve axis (MAPS.md: held-out
-    quantisation error for the prototype families, reconstruction error for Hebbian features)."""
+    """What a family's per-epoch validation loss is, for the learning-curve axis (MAPS.md: the
+    held-out quantisation error for the prototype families, the held-out reconstruction error for
+    Hebbian features; short, it is an axis title)."""
     if family in ("som", "competitive", "neural_gas"):
-        return "held-out quantisation error"
+        return "quantisation error"
     if family == "hebbian":
-        return "held-out reconstruction error"
+        return "reconstruction error"
     return "validation loss"
 
 

@@ -46,7 +46,7 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     sp.pruner.setCurrentText("none")
     w.spec_path = str(tmp_path / "pumps.toml")
     assert not w.validate(), w.problem_label.toolTip()
-    assert w.watch.curves.plot.getAxis("left").labelText == "held-out quantisation error"
+    assert w.watch.curves.plot.getAxis("left").labelText == "quantisation error"
     assert w.start()
     qtbot.waitUntil(lambda: not w.session.running and w.session.synced, timeout=LONG)
     model = (w.session.result or {}).get("model")

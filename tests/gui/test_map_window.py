@@ -118,3 +118,19 @@ def test_the_winner_check_says_whether_the_groups_are_reproducible():
                         "stability": STABILITY})
     assert "Groups across seeds: Not reproducible" in text
     assert "different seeds give different groups" in text
+
+
+def test_a_maps_settings_in_words_name_its_shape_and_what_was_searched():
+    from labbench.gui.bench_sheet import sureness_lines
+    from labbench.gui.trialbook import TrialRecord
+    from labbench.gui.words import settings_words
+
+    settings = {"rows": 5, "cols": 9, "topology": "hexagonal", "training": "online", "learning_rate": 0.0768,
+                "final_learning_rate": 0.01, "decay": "exponential", "epochs": 20, "groups": 4, "unit_cost": 0.01}
+    words = settings_words(settings, {"rows": 5, "learning_rate": 0.0768})
+    assert words.startswith("5 × 9 hexagonal grid, 4 groups, ") and words.endswith(", 20 epochs")
+    assert "0.0768" in words and "exponential" not in words and "0.01" not in words
+    best = TrialRecord(number=2)
+    best.fold_scores = (0.5, 0.6)
+    lines = sureness_lines(best, {"trial_number": 2, "holdout_score": 0.55, "stability": STABILITY}, "x")
+    assert lines[-1] == "across 5 seeds: not reproducible, groups agree 0.62"
