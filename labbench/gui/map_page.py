@@ -12,10 +12,11 @@ import html
 from typing import Any, Mapping
 
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QFrame, QLabel, QSplitter, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QFrame, QLabel, QSplitter, QTabWidget, QVBoxLayout, QWidget
 
 from labbench.gui import map_numbers as mn
 from labbench.gui import theme
+from labbench.gui.front_view import FrontPanel
 from labbench.gui.map_tables import ComponentsPanel, GroupsPanel
 from labbench.gui.map_views import DistancePanel, HitsPanel, PlanePanel, ProjectionPanel
 from labbench.gui.words import num
@@ -109,11 +110,18 @@ class MapPage(QWidget):
         self.groups = GroupsPanel()
         self.projection = ProjectionPanel()
         self.components = ComponentsPanel()
+        self.front = FrontPanel()
+        self.right = QTabWidget()
+        self.right.setObjectName("mapTabs")
+        self.right.addTab(self.projection, "Rows on two axes")
+        self.right.addTab(self.front, "Trade-off")
+        self.right.setTabToolTip(0, "Every row on the two directions of most spread, coloured by group")
+        self.right.setTabToolTip(1, "The trials no other beats on units and held-out error; pick one to see its map")
         self.top = QSplitter(Qt.Orientation.Horizontal)
         for p in (self.distances, self.hits, self.plane):
             self.top.addWidget(p)
         self.bottom = QSplitter(Qt.Orientation.Horizontal)
-        for p in (self.groups, self.components, self.projection):
+        for p in (self.groups, self.components, self.right):
             self.bottom.addWidget(p)
         self.bottom.setStretchFactor(0, 3)
         self.bottom.setStretchFactor(1, 3)
@@ -125,7 +133,8 @@ class MapPage(QWidget):
         for s in (self.top, self.bottom, self.split):
             s.setChildrenCollapsible(False)
         outer.addWidget(self.split, 1)
-        self.panels = [self.distances, self.hits, self.plane, self.groups, self.components, self.projection]
+        self.panels = [self.distances, self.hits, self.plane, self.groups, self.components, self.projection,
+                       self.front]
         self.data: mn.MapData | None = None
         self.clear()
 

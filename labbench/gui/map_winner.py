@@ -41,10 +41,55 @@ def stability_of(model: Any, summary: dict | None) -> dict:
 
 
 class MapWinnerMixin:
-    """Part of ``MainWindow``: ``update_map`` after a search ends or a stored one is opened."""
+    """Part of ``MainWindow``: ``update_map`` after a search ends or a stored one is opened;
+    ``pick_map_trial`` refits a trial picked from the trade-off front and draws it."""
 
     _map_key: tuple | None = None
     _bundle_cache: tuple | None = None
+    _picked: tuple | None = None          # (the result it was picked after, model, summary)
+    _front_reader = None
+    _front_shown: int | None = None
+
+    def _connect_maps(self) -> None:
+        self.maps.front.pick_requested.connect(self.pick_map_trial)
+
+    def pick_map_trial(self, number: int) -> bool:
+        """Refit trial ``number`` (``labbench run SPEC --pick N``) and draw its map."""
+        from labbench.gui.front_view import pick_trial
+
+        spec = self.session.spec
+        if spec is None or self.session.running:
+            return False
+        try:
+            out = self.take._off("Refit the picked trial", f"Refitting trial {number} and writing its files…",
+                                 lambda: pick_trial(spec, number), process=(pick_trial, spec, number))
+        except LabbenchError as exc:
+            from PySide6.QtWidgets import QMessageBox
+
+            QMessageBox.warning(self, "Refit the picked trial", str(exc))
+            return False
+        summary, model, files = out
+        self._picked = (id(self.session.result), model, summary)
+        self._map_key = None
+        self.update_map()
+        self.statusBar().showMessage(f"Trial {number} refitted; its files are in {Path(files[0]).parent}"
+                                     if files else f"Trial {number} refitted", 10000)
+        return True
+
+    def _read_front(self, shown: int | None) -> None:
+        from labbench.gui.bridge import Background
+        from labbench.gui.front_view import read_front
+
+        url, name = self.session.url, self.session.study_name
+        if not (url and name):
+            return
+        if self._front_reader is None:
+            self._front_reader = Background(self)
+            self._front_reader.done.connect(
+                lambda _key, result, error: error is None and result is not None
+                and self.maps.front.show_front(result[0], result[1], self._front_shown))
+        self._front_shown = shown
+        self._front_reader.submit("front", lambda: read_front(url, name))
 
     def _bundle_model(self) -> Any | None:
         """The bundle beside the stored winner check (a search opened from storage)."""
@@ -69,6 +114,8 @@ class MapWinnerMixin:
 
     def map_model(self) -> Any | None:
         result = self.session.result or {}
+        if self._picked is not None and self._picked[0] == id(self.session.result):
+            return self._picked[1]
         model = result.get("model")
         if is_map_model(model):
             return model
@@ -111,4 +158,9 @@ class MapWinnerMixin:
         except (LabbenchError, ValueError, KeyError, TypeError) as exc:
             self.maps.clear(f"The rows of this table cannot be shown on the map: {exc}")
             return
-        self.maps.show_model(data, stability_of(model, self.session.book.winner))
+        summary = self.session.book.winner
+        if self._picked is not None and self._picked[1] is model:
+            summary = self._picked[2]
+        self.maps.show_model(data, stability_of(model, summary))
+        shown = (model.scores or {}).get("trial_number", (summary or {}).get("trial_number"))
+        self._read_front(shown)

@@ -97,6 +97,7 @@ class MainWindow(ActionsMixin, FilesMixin, MapWinnerMixin, QMainWindow):
         self.session.changed.connect(self.update_map)
         self.space.family_changed.connect(lambda _name: self.update_map())
         self.data.changed.connect(self.update_map)
+        self._connect_maps()
         self._restore()
         self.validate()
         self.update_actions()
@@ -288,6 +289,8 @@ class MainWindow(ActionsMixin, FilesMixin, MapWinnerMixin, QMainWindow):
             return
         if not self._close_when_stopped:
             self.remember_layout()
+        if self._front_reader is not None:
+            self._front_reader.close()
         self.session.close()
         super().closeEvent(event)
 

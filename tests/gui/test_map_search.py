@@ -63,6 +63,19 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     stab = model.scores.get("stability") or {}
     if stab.get("verdict"):
         assert str(stab["verdict"]).capitalize() in page.head.text()
+    # the trade-off front of the stored trials, with the winner ringed; picking another trial
+    # refits it (labbench run --pick) and draws its map
+    front = page.front
+    qtbot.waitUntil(lambda: bool(front.front), timeout=30_000)
+    assert 1 <= len(front.front) <= 3 and len(front.every) == 3
+    assert front.table.rowCount() == len(front.front)
+    assert front.shown == w.session.book.winner["trial_number"]
+    others = [p.number for p in front.every if p.number != front.shown]
+    w.take.use_processes = False
+    assert w.pick_map_trial(others[0])
+    assert (tmp_path / "pumps_out" / f"trial_{others[0]}" / "model.npz").exists()
+    picked = w.map_model()
+    assert picked is not model and page.data.record is picked.record
     # the saved spec is a map spec: no target, the label, the family
     text = (tmp_path / "pumps.toml").read_text(encoding="utf-8")
     assert 'family = "som"' in text and 'label = "state"' in text and "target" not in text.split("[evaluation]")[0]
