@@ -7,7 +7,7 @@ process (the scale factor must be set before Qt starts); the search runs once, i
 the other two open the stored search (the run page shows what storage holds, as after a restart).
 
 When the invented pump readings are there (demo_sets/pumps.*, a self-organising map without a
-target), also OUT_DIR/map_{data,search,run,page}_<size>.png: a short SOM search of them (in the
+target), also OUT_DIR/map_{data,search,run,page,front}_<size>.png: a short SOM search of them (in the
 first process; the others open it from storage and draw the map from the bundle it left).
 """
 
@@ -118,6 +118,12 @@ def shoot_map(app, out: Path, work: Path, tag: str, width: int, height: int, run
         path = out / f"map_{name}_{tag}.png"
         window.grab().save(str(path))
         print(f"{path} ({window.width()}x{window.height()} logical)")
+    window.maps.right.setCurrentIndex(1)           # the trade-off front beside the groups
+    wait(lambda: bool(window.maps.front.front), 20)
+    wait(lambda: False, 0.6)
+    path = out / f"map_front_{tag}.png"
+    window.grab().save(str(path))
+    print(f"{path} ({window.width()}x{window.height()} logical)")
     window.session.close()
     QApplication.closeAllWindows()
 

@@ -81,6 +81,21 @@ class GridPlot(pg.PlotWidget):
         self.plot.addItem(self.key_cells)
         self.key_words: list[pg.TextItem] = []
         self.setMinimumSize(180, 160)
+        self.words_fit = True
+        vb.sigResized.connect(self._fit_words)
+        vb.sigRangeChanged.connect(self._fit_words)
+
+    def _fit_words(self, *_a) -> None:
+        """Numbers in the cells only while a cell is wide enough to hold them."""
+        if not self.words:
+            return
+        px, _py = self.plot.getViewBox().viewPixelSize()
+        widest = max(item.textItem.boundingRect().width() for item in self.words)
+        fit = px > 0 and (1.0 / px) >= widest + 4          # a cell is one grid unit wide
+        if fit != self.words_fit or any(item.isVisible() != fit for item in self.words[:1]):
+            self.words_fit = fit
+            for item in self.words:
+                item.setVisible(fit)
 
     def clear_words(self) -> None:
         for item in self.words + self.key_words:
@@ -115,6 +130,7 @@ class GridPlot(pg.PlotWidget):
                 self.plot.addItem(item)
                 self.words.append(item)
         bottom = self._key(polygons, key, t)
+        self.words_fit = True
         vb = self.plot.getViewBox()
         if len(polygons):
             lo, hi = polygons.reshape(-1, 2).min(axis=0), polygons.reshape(-1, 2).max(axis=0)
@@ -122,6 +138,7 @@ class GridPlot(pg.PlotWidget):
                         padding=0)
         else:
             vb.autoRange(padding=0.04)
+        self._fit_words()
 
     def _key(self, polygons: np.ndarray, key: tuple | None, t: theme.Theme) -> float:
         """Draw the key under the grid; returns the lowest y it needs (its words included)."""

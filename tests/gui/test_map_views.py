@@ -159,3 +159,17 @@ def test_a_map_without_groups_is_drawn_in_one_ink_and_by_the_label(page):
     assert len(fills) == 1                       # the busiest units share one colour
     assert "state:" in page.projection.hint.text()
     assert "busiest units" in page.groups.hint.text()
+
+
+def test_numbers_leave_cells_too_small_to_hold_them(page, qtbot):
+    frame, _ = sensor_rows(300)
+    X, _c, _s = scaled(frame)
+    page.show_model(_data(som_record(X, 12, 12, "hexagonal", groups=4)))
+    grid = page.hits.grid
+    assert len(grid.words) > 0
+    page.resize(700, 500)                        # 144 hexagons in a third of 700 pixels
+    qtbot.waitUntil(lambda: not grid.words_fit, timeout=3000)
+    assert not any(w.isVisible() for w in grid.words)
+    page.resize(2400, 1600)
+    qtbot.waitUntil(lambda: grid.words_fit, timeout=3000)
+    assert all(w.isVisible() for w in grid.words)
