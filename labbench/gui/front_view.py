@@ -86,7 +86,9 @@ class FrontPanel(Panel):
         lay.addWidget(self.widget, 3)
         side = QVBoxLayout()
         self.table = QTableWidget(0, 4)
-        self.table.setHorizontalHeaderLabels(["trial", "units", "held-out error", "score"])
+        self.table.setHorizontalHeaderLabels(["trial", "units", "error", "score"])
+        self.table.horizontalHeaderItem(2).setToolTip("The held-out error (fold mean)")
+        self.table.horizontalHeaderItem(3).setToolTip("The trial's score: the search's objective, cross-validated")
         self.table.verticalHeader().hide()
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
@@ -133,8 +135,7 @@ class FrontPanel(Panel):
         ring = [p for p in self.every if p.number == shown]
         self.ring.setData([p.units for p in ring], [p.error for p in ring], pen=pg.mkPen(c["selected"], width=2),
                           brush=pg.mkBrush(0, 0, 0, 0))
-        error = self.front[0].error_name.replace("_", " ")
-        self.plot.setLabel("left", f"held-out {error}")
+        self.plot.setLabel("left", self.front[0].error_name.replace("_", " "))
         units = [p.units for p in self.every]
         integer_axis(self.plot.getAxis("bottom"), min(units), max(units))
         self.table.blockSignals(True)

@@ -156,7 +156,7 @@ class MapPage(QWidget):
         self.components.setVisible(not prototypes)
         self.split.show()
         self.split.setSizes([330, 300] if data.is_map else [190, 440])
-        self.bottom.setSizes([640, 0, 440] if prototypes else [0, 480, 600])
+        self.bottom.setSizes([660, 0, 400] if prototypes else [0, 480, 600])
         if prototypes:
             for p in (self.hits, self.groups):
                 p.show_data(data)

@@ -37,6 +37,9 @@ def _table() -> QTableWidget:
     t.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
     t.verticalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
     t.setMinimumSize(240, 140)
+    font = t.font()
+    font.setPointSizeF(font.pointSizeF() * 0.92)      # a dense sheet of numbers, like the notebook's
+    t.setFont(font)
     return t
 
 
@@ -89,10 +92,12 @@ class GroupsPanel(Panel):
         tab.setHorizontalHeaderLabels(heads)
         for j, g in enumerate(self.order, start=1):
             tab.horizontalHeaderItem(j).setForeground(QBrush(QColor(cols[g])))
-        names = ["rows"] + ([f"{data.label_name or 'label'} (not trained on)"] if mix_rows else []) + \
+        names = ["rows"] + ([f"{data.label_name or 'label'} (label)"] if mix_rows else []) + \
             [p["column"] for p in profiles]
         tab.setRowCount(len(names))
         tab.setVerticalHeaderLabels(names)
+        if mix_rows:
+            tab.verticalHeaderItem(1).setToolTip("The label column: shown beside the groups, never used in training")
         n = max(1, len(group))
         tab.setItem(0, 0, _cell(f"{len(group):,}"))
         paper = colours(t.dark)["paper"]

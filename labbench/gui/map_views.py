@@ -266,8 +266,8 @@ class ProjectionPanel(Panel):
         self.plot.getViewBox().autoRange(padding=0.05)
 
     def _axes(self, share) -> None:
-        self.plot.setLabel("bottom", f"first principal axis ({share[0] * 100:.0f} % of the spread)")
-        self.plot.setLabel("left", f"second principal axis ({share[1] * 100:.0f} %)")
+        self.plot.setLabel("bottom", f"principal axis 1 ({share[0] * 100:.0f} % of the spread)")
+        self.plot.setLabel("left", f"axis 2 ({share[1] * 100:.0f} %)")
 
     @staticmethod
     def _sample_note(n: int, drawn: int) -> str:

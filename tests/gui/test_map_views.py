@@ -88,7 +88,7 @@ def test_the_groups_table_shows_sizes_profiles_and_the_label(page):
     mean = frame["temperature"][group == g].mean()
     assert page.groups.cell_text("temperature", 1) == f"{mean:.4g}"
     # the invented states separate cleanly: each group is one state
-    assert page.groups.cell_text("state (not trained on)", 1).endswith("(100 %)")
+    assert page.groups.cell_text("state (label)", 1).endswith("(100 %)")
     assert page.groups.cell_text("shift", 0) in ("day", "night")
 
 

@@ -100,7 +100,7 @@ def test_step_four_draws_the_winner_of_a_map_search(make_window, tmp_path):
     assert "5 × 6 hexagonal grid, 30 units in 3 groups" in page.head.text()
     assert "Not reproducible" in page.head.text()
     # the groups line up with the invented machine states (the label, never trained on)
-    assert page.groups.cell_text("state (not trained on)", 1).endswith("(100 %)")
+    assert page.groups.cell_text("state (label)", 1).endswith("(100 %)")
     w.steps.setCurrentRow(3)
     assert w.stack.currentWidget() is page
     # a table without the map's columns: the page says what is missing instead of drawing
