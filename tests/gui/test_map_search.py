@@ -79,3 +79,38 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     # the saved spec is a map spec: no target, the label, the family
     text = (tmp_path / "pumps.toml").read_text(encoding="utf-8")
     assert 'family = "som"' in text and 'label = "state"' in text and "target" not in text.split("[evaluation]")[0]
+
+
+@pytest.mark.parametrize("family", ["competitive", "hebbian"])      # neural gas draws as competitive
+def test_the_other_families_on_iris_with_its_species_hidden(family, make_window, iris_csv, qtbot):
+    # Fisher's iris (scikit-learn's copy): the species is the label, never trained on
+    from labbench.maps.record import PrototypeRecord, SubspaceRecord
+
+    w = make_window()
+    assert w.open_path(str(iris_csv))
+    sp = w.space
+    sp.family.setCurrentIndex(sp.family.findData(family))
+    w.data.label_box.setCurrentText("species")
+    assert w.data.target() is None
+    sp.rows["epochs"].set_raw(3)
+    sp.trials.setValue(2)
+    sp.folds.setValue(2)
+    sp.seed_spread.setValue(0)
+    sp.pruner.setCurrentText("none")
+    w.spec_path = str(iris_csv.with_suffix(".toml"))
+    assert not w.validate(), w.problem_label.toolTip()
+    assert w.start()
+    qtbot.waitUntil(lambda: not w.session.running and w.session.synced, timeout=LONG)
+    model = (w.session.result or {}).get("model")
+    assert model is not None and model.family == family
+    page = w.maps
+    assert w.stack.currentWidget() is page and page.data is not None and len(page.data.X) == 150
+    assert "not measured" in page.head.text()                 # no seeds asked for
+    if family == "hebbian":
+        assert isinstance(model.record, SubspaceRecord)
+        assert page.components.table.columnCount() == model.record.n_components
+        assert "species:" in page.projection.hint.text()
+    else:
+        assert isinstance(model.record, PrototypeRecord)
+        assert list(page.hits.bars.opts["height"]) == list(page.hits.hits) and page.hits.hits.sum() == 150
+        assert page.groups.cell_text("species (label)", 0).endswith("(33 %)")   # 50 of each species
