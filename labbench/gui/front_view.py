@@ -114,6 +114,7 @@ class FrontPanel(Panel):
         t = theme.Theme.current()
         c = colours(t.dark)
         self.style_plot(self.plot, t)
+        self.widget.setBackground(t.background)
         self.every, self.front, self.shown = list(every), list(front), shown
         if not self.front:
             for item in (self.others, self.front_dots, self.ring):

@@ -108,6 +108,7 @@ class GridPlot(pg.PlotWidget):
         """Cells filled with ``rgb`` (k, 3); ``words`` written in the cells; ``borders`` (E, 2, 2)
         drawn thick; ``key`` = (stops rgb (n, 3), low text, high text, caption) under the grid."""
         t = theme.Theme.current()
+        self.setBackground(t.background)        # paper or slate, after the window's palette
         self.clear_words()
         outline = QColor(t.foreground)
         outline.setAlpha(70)

@@ -67,9 +67,9 @@ class _GridPanel(Panel):
 class DistancePanel(_GridPanel):
     def __init__(self):
         super().__init__("Unit distances", "How far each unit's prototype lies from its neighbours' on the "
-                         "grid (the U-matrix, Ultsch 1990), in the scaled inputs. Pale cells sit inside a "
-                         "region of similar rows; dark cells are ridges between regions. Thick lines outline "
-                         "the groups.")
+                         "grid (the U-matrix, Ultsch 1990), in the scaled inputs. Cells in the paper's colour sit "
+                         "inside a region of similar rows; cells in the ink's colour are ridges between "
+                         "regions. Thick lines outline the groups.")
         self.values = np.zeros(0)
 
     def show_data(self, data: mn.MapData) -> None:
@@ -90,7 +90,7 @@ class DistancePanel(_GridPanel):
             else None
         self.grid.draw(polys, mn.ramp(self.values, stops), borders=borders,
                        key=(key_stops(stops), num(low), num(high), "mean distance to the neighbours"))
-        self.hint.setText("dark: a ridge between regions")
+        self.hint.setText(f"{'bright' if t.dark else 'dark'}: a ridge between regions")
 
 
 class HitsPanel(_GridPanel):
@@ -215,6 +215,7 @@ class ProjectionPanel(Panel):
     def show_data(self, data: mn.MapData) -> None:
         t = theme.Theme.current()
         self.style_plot(self.plot, t)
+        self.widget.setBackground(t.background)
         c = colours(t.dark)
         X = data.X
         pick = np.arange(len(X))
