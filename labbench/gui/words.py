@@ -72,7 +72,7 @@ def settings_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None
 
 
 #: a map family's settings always named (its shape); the others only when the search varied them
-SHAPE_SETTINGS = ("units", "components", "rule")
+SHAPE_SETTINGS = ()
 
 
 def family_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None = None) -> str:
@@ -88,6 +88,12 @@ def family_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None =
         groups = s.pop("groups", 0)
         if groups or "groups" in searched:
             parts.append(f"{num(groups)} groups" if groups else "no groups")
+    if "units" in s:
+        parts.append(f"{num(s.pop('units'))} units")
+    if "components" in s:
+        rule = {"oja": "Oja's rule", "sanger": "Sanger's rule", "hebb": "the plain Hebbian rule"}.get(
+            str(s.pop("rule", "")), "")
+        parts.append(f"{num(s.pop('components'))} component(s)" + (f" by {rule}" if rule else ""))
     for key, value in s.items():
         if key == "epochs" or (key not in SHAPE_SETTINGS and key not in searched):
             continue

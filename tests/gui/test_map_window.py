@@ -134,3 +134,7 @@ def test_a_maps_settings_in_words_name_its_shape_and_what_was_searched():
     best.fold_scores = (0.5, 0.6)
     lines = sureness_lines(best, {"trial_number": 2, "holdout_score": 0.55, "stability": STABILITY}, "x")
     assert lines[-1] == "across 5 seeds: not reproducible, groups agree 0.62"
+    assert settings_words({"units": 5, "learning_rate": 0.3, "init": "rows", "epochs": 20, "unit_cost": 0.01},
+                          {"units": 5}) == "5 units, 20 epochs"
+    assert settings_words({"components": 2, "rule": "sanger", "epochs": 9, "unit_cost": 0.01}) == \
+        "2 component(s) by Sanger's rule, 9 epochs"
