@@ -3,6 +3,7 @@ target; the pump's recorded state as the label) to the map on step 4."""
 
 from __future__ import annotations
 
+import numpy as np
 import pytest
 
 from labbench.gui.data_page import NO_TARGET
@@ -76,6 +77,14 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     assert (tmp_path / "pumps_out" / f"trial_{others[0]}" / "model.npz").exists()
     picked = w.map_model()
     assert picked is not model and page.data.record is picked.record
+    # opened again later: the map comes from the bundle the search left beside winner.json
+    w2 = make_window("again.ini")
+    assert w2.open_path(str(tmp_path / "pumps.toml"))
+    qtbot.waitUntil(lambda: w2.maps.data is not None, timeout=30_000)
+    assert not w2.map_step.isHidden()
+    assert w2.maps.data.record.shape == model.record.shape
+    assert np.allclose(w2.maps.data.record.prototypes, model.record.prototypes, atol=1e-12)
+    assert w2.maps.hits.hits.sum() == 300
     # the saved spec is a map spec: no target, the label, the family
     text = (tmp_path / "pumps.toml").read_text(encoding="utf-8")
     assert 'family = "som"' in text and 'label = "state"' in text and "target" not in text.split("[evaluation]")[0]
