@@ -58,9 +58,13 @@ def head_html(data: mn.MapData, scores: Mapping[str, Any] | None, t: theme.Theme
         what = f"{shape}{rec.n_units} units in {rec.n_groups} groups"
     else:
         what = f"{rec.n_components} component(s) of {len(data.names)} scaled columns"
-    parts = [f"<span style='font-size:14pt'><b>{e(fam)}</b></span> &nbsp; {e(what)} &nbsp; "
-             f"<span style='color:{t.state('complete').name()}'>shown with {len(data.X):,} rows</span>"]
     s = dict(scores or {})
+    trial = s.get("trial_number")
+    which = ""
+    if trial is not None:
+        which = f"trial {trial}, " + ("picked from the trade-off, " if s.get("picked") else "")
+    parts = [f"<span style='font-size:14pt'><b>{e(fam)}</b></span> &nbsp; {e(what)} &nbsp; "
+             f"<span style='color:{t.state('complete').name()}'>{e(which)}shown with {len(data.X):,} rows</span>"]
     measures = dict(s.get("holdout_measures") or {})
     shown = [f"{word} {num(measures[key])}" for key, word in MEASURE_WORDS
              if isinstance(measures.get(key), (int, float))]

@@ -32,7 +32,7 @@ def stability_of(model: Any, summary: dict | None) -> dict:
     winner check's summary (its ``stability`` and hold-out measures, where it carries them)."""
     scores = dict(getattr(model, "scores", None) or {})
     s = dict(summary or {})
-    for key in ("stability", "holdout_measures", "holdout_score"):
+    for key in ("stability", "holdout_measures", "holdout_score", "trial_number", "picked"):
         if scores.get(key) is None:
             value = s.get(key) if s.get(key) is not None else (s.get("scores") or {}).get(key)
             if value is not None:

@@ -211,7 +211,8 @@ class SpacePage(QWidget):
         self.net.setTitle(f"{fam.label or name} settings" if name != DEFAULT_FAMILY else "Network settings")
         needs = getattr(fam, "needs_target", True)
         self.family_note.setText("predicts the target column" if needs else
-                                 "learns without a target: choose “(no target: find groups)” on the Data page")
+                                 "learns without a target: it groups the rows (the Data page's target is "
+                                 "set to none; a label column may be shown beside the groups)")
         i = self.family.findData(name)
         if i >= 0 and self.family.currentIndex() != i:
             self.family.blockSignals(True)

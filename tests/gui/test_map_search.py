@@ -77,6 +77,7 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     assert (tmp_path / "pumps_out" / f"trial_{others[0]}" / "model.npz").exists()
     picked = w.map_model()
     assert picked is not model and page.data.record is picked.record
+    assert f"trial {others[0]}, picked from the trade-off" in page.head.text()
     # opened again later: the map comes from the bundle the search left beside winner.json
     w2 = make_window("again.ini")
     assert w2.open_path(str(tmp_path / "pumps.toml"))
