@@ -28,6 +28,7 @@ from labbench.maps.record import grid_positions
 from labbench.palette import colours
 
 NEIGHBOUR_TOLERANCE = 1e-6     # hexagonal neighbours sit at distance 1 up to rounding
+ASSIGN_BLOCK = 20_000          # rows per block when the rows are assigned to their units
 
 # group colours: labbench's own, picked to stay apart on paper and on slate; after the twelfth
 # they repeat (a map with more groups shows them by number anyway)
@@ -282,8 +283,17 @@ class MapData:
         return hasattr(self.record, "prototypes")
 
     def assignment(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """(unit, group, distance) of every row (the record's own rule)."""
-        return self.record.assign(self.X)
+        """(unit, group, distance) of every row (the record's own rule), worked out once, in
+        blocks of rows (a large table never needs its whole row × unit distance matrix at once)."""
+        cached = getattr(self, "_assigned", None)
+        if cached is None:
+            parts = [self.record.assign(self.X[i:i + ASSIGN_BLOCK]) for i in range(0, len(self.X), ASSIGN_BLOCK)]
+            if parts:
+                cached = tuple(np.concatenate([p[j] for p in parts]) for j in range(3))
+            else:
+                cached = (np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0))
+            self._assigned = cached
+        return cached
 
     def plane(self, j: int) -> np.ndarray:
         """(k,) the prototypes' values of scaled column j, in the column's own units."""

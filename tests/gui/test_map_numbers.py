@@ -135,3 +135,15 @@ def test_group_borders_outline_the_regions():
     assert np.allclose(edges[:, :, 0], 0.5)
     # hexagonal 2 x 2, unit 3 alone: its edges with units 1 and 2
     assert mn.group_borders((2, 2), "hexagonal", np.array([0, 0, 0, 1])).shape == (2, 2, 2)
+
+
+def test_assignment_in_blocks_is_the_records_own(monkeypatch):
+    rng = np.random.default_rng(5)
+    X = rng.normal(size=(250, 3))
+    record = PrototypeRecord("competitive", rng.normal(size=(7, 3)), unit_group=[0, 0, 1, 1, 2, 2, 2])
+    monkeypatch.setattr(mn, "ASSIGN_BLOCK", 40)             # 7 blocks, the last one short
+    data = mn.MapData(record, X, pd.DataFrame(X), ("a", "b", "c"))
+    unit, group, dist = data.assignment()
+    ref = record.assign(X)
+    assert np.array_equal(unit, ref[0]) and np.array_equal(group, ref[1]) and np.allclose(dist, ref[2])
+    assert data.assignment()[0] is unit                      # worked out once
