@@ -178,20 +178,21 @@ def projection(X: np.ndarray, *extra: np.ndarray) -> tuple[np.ndarray, list[np.n
     """The rows of X, and of every array in ``extra`` (prototypes), on the first two principal
     components of X: (rows (n, 2), [each extra (m, 2)], share of X's variance on each axis (2,)).
 
-    Centre X at its mean, take the right singular vectors of the centred rows (numpy SVD); each
-    axis's sign is fixed so that its largest loading is positive (a stable picture)."""
+    Centre X at its mean and take the principal directions by numpy SVD of the centred rows'
+    scatter matrix CᵀC (d × d: the right singular vectors of C, with the squared singular values;
+    a table of 100,000 rows costs a d × d decomposition, not an n × d one); each axis's sign is
+    fixed so that its largest loading is positive (a stable picture)."""
     X = np.asarray(X, dtype=np.float64)
     mean = X.mean(axis=0)
     C = X - mean
-    _, s, vt = np.linalg.svd(C, full_matrices=False)
-    axes = vt[:2]
+    _, var, vt = np.linalg.svd(C.T @ C)
+    axes = vt[:2].copy()
     if axes.shape[0] < 2:           # one input column: the second axis is flat
         axes = np.vstack([axes, np.zeros((2 - axes.shape[0], X.shape[1]))])
     for a in axes:
         j = int(np.argmax(np.abs(a)))
         if a[j] < 0:
             a *= -1.0
-    var = s ** 2
     share = np.zeros(2)
     if var.sum() > 0:
         share[:min(2, len(var))] = (var / var.sum())[:2]

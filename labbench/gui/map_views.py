@@ -238,7 +238,8 @@ class ProjectionPanel(Panel):
             rows, (protos,), share = mn.projection(X, rec.prototypes)
             _unit, group, _d = data.assignment()
             cols = mn.group_colours(rec.n_groups, t.dark)
-            brushes = [pg.mkBrush(mix(c["paper"], cols[g], 0.8)) for g in group[pick]]
+            palette = [pg.mkBrush(mix(c["paper"], col, 0.8)) for col in cols]     # one brush per group
+            brushes = [palette[g] for g in group[pick]]
             self.rows.setData(rows[pick, 0], rows[pick, 1], brush=brushes, pen=None, size=5)
             self.protos.setData(protos[:, 0], protos[:, 1], brush=[pg.mkBrush(cols[g]) for g in rec.unit_group],
                                 pen=pg.mkPen(c["ink"], width=1.4), size=10)
@@ -288,8 +289,9 @@ class ProjectionPanel(Panel):
         if lab is None:
             return [pg.mkBrush(c["complete"])] * len(pick)
         cols = mn.group_colours(len(values), theme.Theme.current().dark)
-        where = {v: i for i, v in enumerate(values)}
-        return [pg.mkBrush(cols[where[v]] if v in where else c["muted"]) for v in lab.iloc[pick]]
+        brush = {v: pg.mkBrush(cols[i]) for i, v in enumerate(values)}
+        other = pg.mkBrush(c["muted"])
+        return [brush.get(v, other) for v in lab.iloc[pick]]
 
     def _label_key(self, data: mn.MapData, c: dict) -> str:
         lab, values = self._label_values(data)
