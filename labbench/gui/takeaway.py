@@ -161,7 +161,9 @@ class Takeaway:
             return []
         written: list[str] = []
         self.session.flush()
-        for panel in self.window.watch.panels:
+        maps = getattr(self.window, "maps", None)
+        extra = maps.visible_panels() if maps is not None and maps.data is not None else []
+        for panel in list(self.window.watch.panels) + extra:      # a map winner: its pictures too
             stem = panel.title.lower().replace(" ", "_")
             for suffix in (".png", ".svg"):
                 p = self._guard("Save pictures", lambda: panel.export(Path(folder) / f"{stem}{suffix}"))

@@ -103,6 +103,10 @@ def test_step_four_draws_the_winner_of_a_map_search(make_window, tmp_path):
     assert page.groups.cell_text("state (label)", 1).endswith("(100 %)")
     w.steps.setCurrentRow(3)
     assert w.stack.currentWidget() is page
+    # Winner ▸ Save pictures takes the map's pictures along
+    written = w.take.export_pictures(str(tmp_path / "pictures"))
+    names = {p.rsplit("/", 1)[-1] for p in written}
+    assert {"unit_distances.png", "rows_per_unit.svg", "the_groups.png", "the_rows_on_two_axes.svg"} <= names
     # a table without the map's columns: the page says what is missing instead of drawing
     other = tmp_path / "other.csv"
     frame.drop(columns=["noise"]).to_csv(other, index=False)
