@@ -114,8 +114,13 @@ class HitsPanel(_GridPanel):
         fills = [mix(paper, group_col[g], 0.12 + 0.78 * h / top) for g, h in zip(rec.unit_group, self.hits)]
         empty = self.hits == 0
         self.say(None)
+        vb = self.grid.plot.getViewBox()
         if data.is_map:
             self.grid.plot.removeItem(self.bars)
+            vb.invertY(True)                        # back from the bars of a family without a grid
+            vb.setAspectLocked(True)
+            self.grid.plot.hideAxis("bottom")
+            self.grid.plot.hideAxis("left")
             polys = mn.cell_polygons(rec.shape, rec.topology)
             rgb = np.array([[c.red(), c.green(), c.blue()] for c in fills])
             words = [str(int(h)) if h else "" for h in self.hits]
@@ -123,8 +128,8 @@ class HitsPanel(_GridPanel):
                            dashed=empty)
         else:
             self.grid.draw(np.zeros((0, 4, 2)), np.zeros((0, 3)))
-            self.grid.plot.getViewBox().invertY(False)
-            self.grid.plot.getViewBox().setAspectLocked(False)
+            vb.invertY(False)
+            vb.setAspectLocked(False)
             self.grid.plot.showAxis("bottom")
             self.grid.plot.showAxis("left")
             self.grid.plot.setLabel("bottom", "unit")

@@ -117,6 +117,11 @@ def test_competitive_units_get_bars_and_no_grid_views(page):
     xs, _ys = page.projection.mesh.getData()
     assert xs is None or len(xs) == 0
     assert "4 units in 4 groups" in page.head.text()
+    # a map shown next is drawn as a grid again, first row on top, no axes
+    page.show_model(_data(som_record(X, 3, 4, "rectangular", groups=2)))
+    vb = page.hits.grid.plot.getViewBox()
+    assert vb.yInverted() and not page.hits.grid.plot.getAxis("left").isVisible()
+    assert page.hits.bars.scene() is None and len(page.hits.grid.words) > 0
 
 
 def test_hebbian_components_and_their_projection(page):
