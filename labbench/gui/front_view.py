@@ -83,7 +83,7 @@ class FrontPanel(Panel):
         self.message = message_item("")
         self.plot.addItem(self.message, ignoreBounds=True)
         self.widget.setMinimumSize(220, 160)
-        lay.addWidget(self.widget, 3)
+        lay.addWidget(self.widget, 5)
         side = QVBoxLayout()
         self.table = QTableWidget(0, 4)
         self.table.setHorizontalHeaderLabels(["trial", "units", "error", "score"])
@@ -95,6 +95,10 @@ class FrontPanel(Panel):
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         self.table.itemSelectionChanged.connect(self._row_picked)
+        self.table.verticalHeader().setDefaultSectionSize(20)
+        font = self.table.font()
+        font.setPointSizeF(font.pointSizeF() * 0.92)
+        self.table.setFont(font)
         side.addWidget(self.table, 1)
         self.refit = QPushButton("Refit and show trial")
         self.refit.setToolTip("Refit the picked trial on all training rows, check it on the hold-out rows, "
@@ -102,7 +106,7 @@ class FrontPanel(Panel):
         self.refit.setEnabled(False)
         self.refit.clicked.connect(lambda: self.picked is not None and self.pick_requested.emit(self.picked))
         side.addWidget(self.refit)
-        lay.addLayout(side, 2)
+        lay.addLayout(side, 4)
         self.body.addWidget(holder)
         self.front: list = []
         self.every: list = []
