@@ -46,13 +46,15 @@ def pick_trial(spec: Any, number: int) -> tuple[dict, Any, list[str]]:
     model, files)."""
     import optuna
 
-    from labbench.search.ending import finish_search, out_dir
+    from labbench.search import ending
     from labbench.search.storage import quiet_optuna_warnings, resolve_url
     from labbench.search.stored import read_storage
 
     quiet_optuna_warnings()
     study = optuna.load_study(study_name=spec.study_name(), storage=read_storage(resolve_url(spec)))
-    return finish_search(spec, study, None, out_dir(spec) / f"trial_{number}", trial_number=number)
+    picked = getattr(ending, "picked_dir", None)       # the one rule, shared with the CLI
+    folder = picked(spec, number) if picked is not None else ending.out_dir(spec) / f"trial_{number}"
+    return ending.finish_search(spec, study, None, folder, trial_number=number)
 
 
 class FrontPanel(Panel):
