@@ -29,6 +29,12 @@ Model families (format 3). The metadata's ``family`` names the model family
 without the key (written before families existed) is the network family. A network bundle keeps
 format 1 or 2 as above; a bundle of any other family is written as format 3, so a labbench that
 does not know families refuses it instead of misreading it.
+
+Models without a target (format 3, the map and group families of ``labbench.maps``). ``task`` is
+``"unsupervised"``, ``target`` is ``""``, ``classes`` null and there is no target scaling; the
+family's entries are described in ``labbench.families.maps_export`` (``prototypes``,
+``unit_group`` and the metadata entry ``maps`` with the grid; or ``components``). A family that
+learns without a target must hold an unsupervised model and the other way round.
 """
 
 from __future__ import annotations
@@ -48,7 +54,7 @@ from labbench import __version__
 from labbench.errors import BundleError
 from labbench.families import DEFAULT as NETWORK
 from labbench.families import get_family
-from labbench.model import TrainedModel
+from labbench.model import UNSUPERVISED, TrainedModel
 from labbench.nets.losses import TASKS
 
 FORMAT_NAME = "labbench-model-bundle"
@@ -282,10 +288,20 @@ def _check_family(meta, name: str):
                     "load it where that family is installed (LABBENCH_FAMILIES, see DEVELOPERS.md)") from None
 
 
-def _check_task(meta, name: str) -> int:
+def _check_task(meta, name: str, family: Any = None) -> int:
+    """The number of outputs the task needs (0 for a model without a target)."""
     task, classes = meta["task"], meta["classes"]
+    needs_target = bool(getattr(family, "needs_target", True))
+    if task == UNSUPERVISED or not needs_target:
+        if task != UNSUPERVISED or needs_target:
+            fam = getattr(family, "name", NETWORK)
+            raise _fail(name, f"task {task!r} does not fit the {fam} family, which "
+                        f"{'needs' if needs_target else 'learns without'} a target")
+        if classes is not None:
+            raise _fail(name, "a model without a target must not list classes")
+        return 0
     if task not in TASKS:
-        raise _fail(name, f"task {task!r} is not one of {', '.join(TASKS)}")
+        raise _fail(name, f"task {task!r} is not one of {', '.join(dict.fromkeys(TASKS + (UNSUPERVISED,)))}")
     if task == "regression":
         if classes is not None:
             raise _fail(name, "a regression model must not list classes")
@@ -321,7 +337,7 @@ def load_bundle(path: str | os.PathLike) -> TrainedModel:
     arrays = read_entries(path)
     meta = read_metadata(arrays, name)
     family = _check_family(meta, name)
-    n_outputs = _check_task(meta, name)
+    n_outputs = _check_task(meta, name, family)
     state = _check_preprocessing(arrays, meta, name)
     n_inputs = len(state["numeric"]) + sum(len(c) for c in state["categories"])
     record = family.from_bundle(arrays, meta, name, n_inputs, n_outputs)

@@ -20,7 +20,8 @@ def add_parser(subparsers) -> None:
         description="Predict every row of DATA.csv with a model bundle (.npz) saved by labbench. "
         "Columns are matched by name (any order; extra columns are ignored); the model's id "
         "column, when present, is copied in front. Classifiers add one proba_<class> column per "
-        "class. A category the model never saw is encoded as no category (a warning names it).")
+        "class; a map or group model writes each row's unit, group and distance (numbered from "
+        "0), Hebbian features component_1 ... A category the model never saw is encoded as no category (a warning names it).")
     predict.add_argument("bundle", metavar="BUNDLE", help="the model bundle (.npz)")
     predict.add_argument("data", metavar="DATA.csv", help="the rows to predict")
     predict.add_argument("-o", "--out", metavar="OUT.csv",

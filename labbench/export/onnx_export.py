@@ -16,9 +16,15 @@ Outputs:
                      (``center + scale * z``, then ``Exp`` for "log"), then back to float
   * classification:  ``label`` tensor(string) [N] and ``probabilities`` tensor(float) [N, C]
                      (columns in the order of the class list in the metadata).
+  * a map or group model (task "unsupervised", ``labbench.families.maps_export``), in double:
+    self-organising map, competitive learning, neural gas: ``distances`` [N, k] (to every unit's
+    prototype, in the scaled input space), ``unit`` int64 [N] (the best-matching unit, ties to
+    the lowest number), ``group`` int64 [N] (that unit's group), ``distance`` [N] (to that
+    unit); Hebbian features: ``components`` [N, c]. Units and groups are numbered from 0.
 
 Operators: default domain opset 17 (Concat, IsNaN, Where, Sub, Div, Cast, Equal, Gemm, Relu, Tanh,
-Sigmoid, Softmax, ArgMax, GreaterOrEqual, Gather, Reshape, Mul, Add, Exp) and, for the categories,
+Sigmoid, Softmax, ArgMax, GreaterOrEqual, Gather, Reshape, Mul, Add, Exp; maps: ReduceSumSquare,
+MatMul, Max, Sqrt, ArgMin, ReduceMin) and, for the categories,
 ``LabelEncoder`` of the ONNX-ML domain ``ai.onnx.ml`` (opset 2): ``Equal`` takes strings only from
 opset 19 on, so strings are first mapped to their one-hot position by the label encoder, then
 compared as int64.
@@ -37,7 +43,8 @@ from pathlib import Path
 import numpy as np
 
 from labbench.errors import LabbenchError
-from labbench.model import TrainedModel
+from labbench.families import maps_export
+from labbench.model import UNSUPERVISED, TrainedModel
 
 OPSET = 17
 ML_OPSET = 2
@@ -46,12 +53,15 @@ IR_VERSION = 8   # the IR version that goes with opset 17
 
 #: The graph's output names; an input column of the same name gets a suffix ("value" -> "value_2").
 OUTPUT_NAMES = ("value", "label", "probabilities")
+#: ... and those of a model without a target (a map or group model)
+MAP_OUTPUT_NAMES = maps_export.OUTPUT_NAMES
 
 
-def input_names(features) -> dict[str, str]:
-    """Column name -> ONNX input name (sanitised, unique, never one of ``OUTPUT_NAMES``)."""
+def input_names(features, reserved=OUTPUT_NAMES) -> dict[str, str]:
+    """Column name -> ONNX input name (sanitised, unique, never one of ``reserved``: the output
+    names of the model's graph)."""
     out: dict[str, str] = {}
-    used: set[str] = set(OUTPUT_NAMES)
+    used: set[str] = set(reserved)
     for col in features:
         base = re.sub(r"[^A-Za-z0-9_]", "_", str(col)) or "column"
         if base[0].isdigit():
@@ -79,7 +89,8 @@ def build_onnx(model: TrainedModel):
     state = model.preprocessor.to_state()
     net_dtype = np.dtype(family.onnx_dtype(model.weights))
     net_type = TensorProto.DOUBLE if net_dtype == np.float64 else TensorProto.FLOAT
-    names = input_names(model.features)
+    unsupervised = model.task == UNSUPERVISED
+    names = input_names(model.features, MAP_OUTPUT_NAMES if unsupervised else OUTPUT_NAMES)
     nodes, inits = [], []
 
     def const(name: str, value) -> str:
@@ -122,7 +133,11 @@ def build_onnx(model: TrainedModel):
     h = family.onnx_body(model.weights, h, n_inputs, node, const, net_type, model.task)
 
     outputs = []
-    if model.task == "regression":
+    if unsupervised:          # the family's body wrote the outputs under their final names
+        elem = {"double": TensorProto.DOUBLE, "int64": TensorProto.INT64}
+        for name, kind, shape in maps_export.onnx_outputs(model.weights):
+            outputs.append(helper.make_tensor_value_info(name, elem[kind], shape))
+    elif model.task == "regression":
         target = model.target_scaler
         if target is not None and not target.is_identity:     # back to the target's own units
             double = TensorProto.DOUBLE
@@ -171,19 +186,55 @@ def _version() -> str:
 def _doc(model: TrainedModel, names: dict[str, str]) -> str:
     from labbench.export.bundle import CAUTION
 
-    lines = [f"labbench model: predicts {model.target!r} ({model.task}) from {len(model.features)} column(s).",
-             "Inputs, one per column, shape [N, 1]:"]
+    if model.task == UNSUPERVISED:
+        lines = [f"labbench model: {_map_words(model)} from {len(model.features)} column(s), "
+                 "trained without a target.", "Inputs, one per column, shape [N, 1]:"]
+    else:
+        lines = [f"labbench model: predicts {model.target!r} ({model.task}) from {len(model.features)} column(s).",
+                 "Inputs, one per column, shape [N, 1]:"]
     for col in model.features:
         kind = model.kinds[col]
         what = "double, NaN = missing" if kind == "numeric" else "string, '' = missing, unseen = all zeros"
         lines.append(f"  {names[col]}  <- column {col!r} ({kind}: {what})")
-    if model.task == "regression":
+    if model.task == UNSUPERVISED:
+        lines.extend(_map_outputs(model))
+    elif model.task == "regression":
         lines.append("Output: value [N] (float).")
     else:
         lines.append(f"Outputs: label [N] (string), probabilities [N, {len(model.classes)}] "
                      f"in class order {list(model.classes)}.")
     lines.append(CAUTION)
     return "\n".join(lines)
+
+
+MAP_WORDS = {"som": "a self-organising map", "competitive": "competitive learning (winner takes all)",
+             "neural_gas": "neural gas (winner takes most)", "hebbian": "Hebbian features (Oja / Sanger)"}
+
+
+def _map_words(model: TrainedModel) -> str:
+    record = model.weights
+    what = MAP_WORDS.get(model.family, f"the {model.family} family")
+    if maps_export.is_prototype(record):
+        grid = (f" on a {record.shape[0]} x {record.shape[1]} {record.topology} grid"
+                if record.shape is not None else "")
+        return f"{what} of {record.n_units} units{grid} in {record.n_groups} group(s)"
+    return f"{what}, {record.n_components} component(s)"
+
+
+def _map_outputs(model: TrainedModel) -> list[str]:
+    record = model.weights
+    if not maps_export.is_prototype(record):
+        return [f"Output: components [N, {record.n_components}] (double): each row's projection on "
+                "the learned components, from the scaled inputs (numeric columns standardised as "
+                "in training, categories one-hot)."]
+    return ["Outputs (double and int64):",
+            f"  distances [N, {record.n_units}] (double): Euclidean distance of the scaled row to "
+            "each unit's prototype;",
+            "  unit [N] (int64): the best-matching unit, numbered from 0 (ties: the lowest number)"
+            + (f"; on the grid, row = unit // {record.shape[1]}, column = unit % {record.shape[1]};"
+               if record.shape is not None else ";"),
+            f"  group [N] (int64): that unit's group, numbered from 0 ({record.n_groups} groups);",
+            "  distance [N] (double): the distance to that unit's prototype (how well the row fits)."]
 
 
 def export_onnx(model: TrainedModel, path: str | os.PathLike) -> Path:

@@ -9,6 +9,11 @@ Column handling (documented for users):
     and the file line;
   * a category the model never saw is encoded as all zeros (no category), with one warning line
     per column naming the column and the values.
+
+What is written: ``predicted_<target>`` (and ``proba_<class>`` per class) for a network; for a
+model without a target (a map or group model) ``unit``, ``group`` and ``distance`` (units and
+groups numbered from 0, the distance in the scaled input space) or ``component_1`` ..
+``component_c`` (Hebbian features). The id column, when present, comes first.
 """
 
 from __future__ import annotations
@@ -21,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from labbench.errors import DataError
-from labbench.model import TrainedModel
+from labbench.model import UNSUPERVISED, TrainedModel
 
 log = logging.getLogger("labbench.export.predict")
 
@@ -73,12 +78,18 @@ def check_frame(model: TrainedModel, frame: pd.DataFrame, source: str,
 
 def predict_frame(model: TrainedModel, frame: pd.DataFrame, source: str = "the data",
                   lines: np.ndarray | None = None) -> pd.DataFrame:
-    """The predictions table: [id column,] predicted_<target>[, proba_<class> ...]."""
+    """The predictions table: [id column,] predicted_<target>[, proba_<class> ...]; a model
+    without a target: [id column,] unit, group, distance (or component_1..c)."""
     check_frame(model, frame, source, lines)
     out = pd.DataFrame(index=range(len(frame)))
     if model.id_column and model.id_column in frame.columns:
         out[model.id_column] = frame[model.id_column].to_numpy()
     labels = model.predict(frame, source)
+    if model.task == UNSUPERVISED:
+        for col in labels.columns:
+            name = col if col not in out.columns else f"{col}_predicted"   # an id column "unit"
+            out[name] = labels[col].to_numpy()
+        return out
     if model.task == "regression":
         out[prediction_column(model)] = np.asarray(labels, dtype=np.float64)
     else:

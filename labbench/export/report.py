@@ -3,7 +3,8 @@ script, nothing fetched from a network), in the window's palette.
 
 It reads top-down like a bench sheet: first the winner and how sure we are, with the caution (one
 screen), then the data, the search space, the trials, the checks of the winner and the machine.
-Each part is a ``<section id=...>`` in the order of ``SECTIONS``. The pictures are matplotlib
+Each part is a ``<section id=...>`` in the order of ``SECTIONS`` (a search of a map or group family
+adds ``groups`` after the summary: ``MAP_SECTIONS``, ``labbench.export.report_maps``). The pictures are matplotlib
 figures saved as SVG with real text (``labbench.export.report_plots``); matplotlib is imported
 only when a report is written.
 """
@@ -18,16 +19,20 @@ from typing import Any, Iterable
 
 from labbench.export.bundle import CAUTION
 from labbench.export.report_data import ReportData, collect
+from labbench.export import report_maps as maps
 from labbench.export import report_plots as plots
 from labbench.export.report_style import CSS
 from labbench.export.report_words import (STATE_ORDER, STATE_WORDS, better_words, counts,
-                                          counts_sentence, metric_label, num, params_in_words,
-                                          setting_label, settings_in_words, state_of)
+                                          counts_sentence, family_settings_in_words, metric_label,
+                                          num, params_in_words, setting_label, settings_in_words,
+                                          state_of)
 
 log = logging.getLogger("labbench.export.report")
 
 SECTIONS = ("summary", "data", "space", "trials", "checks", "environment")
-TITLES = {"summary": "The winner and how sure we are", "data": "The data",
+MAP_SECTIONS = ("summary", "groups", "data", "space", "trials", "checks", "environment")
+TITLES = {"summary": "The winner and how sure we are", "groups": "The map and its groups",
+          "data": "The data",
           "space": "The search space", "trials": "The trials",
           "checks": "The winner under test", "environment": "Machine and versions"}
 MORE_CAUTIONS = (
@@ -65,6 +70,8 @@ def note(text: str) -> str:
 
 
 def _target(data: ReportData) -> str:
+    if maps.family_of(data):
+        return "none (learned without a target)"
     return (data.spec.get("data") or {}).get("target") or (data.winner or {}).get("target") or "?"
 
 
@@ -77,6 +84,8 @@ def _task_words(data: ReportData) -> str:
     classes = data.data.get("classes") or (data.winner or {}).get("classes")
     if task == "regression":
         return "a quantity (regression)"
+    if task == "unsupervised" or maps.family_of(data):
+        return "groups of rows, without a target"
     if classes:
         return f"one of {len(classes)} classes ({task})"
     return task or "?"
@@ -97,9 +106,16 @@ def _headline(pairs: list[tuple[str, str]]) -> str:
 def summary_section(data: ReportData) -> str:
     metric, w, c = _metric(data), data.winner, counts(data.trials)
     path = data.data.get("path") or (data.spec.get("data") or {}).get("path") or "the data"
-    parts = [f"<p>Predict <b>{esc(_target(data))}</b>, {esc(_task_words(data))}, from "
-             f"{esc(Path(str(path)).name)} with a small neural network; trials ranked by "
-             f"cross-validated {esc(metric)} ({better_words(data.direction)}).</p>"]
+    family = maps.family_of(data)
+    if family:
+        goal = ("Find features of" if family == "hebbian" else "Group the rows of")
+        parts = [f"<p>{goal} {esc(Path(str(path)).name)} without a target, with "
+                 f"{esc(maps.family_words(family))}; trials ranked by cross-validated "
+                 f"{esc(metric)} ({better_words(data.direction)}).</p>"]
+    else:
+        parts = [f"<p>Predict <b>{esc(_target(data))}</b>, {esc(_task_words(data))}, from "
+                 f"{esc(Path(str(path)).name)} with a small neural network; trials ranked by "
+                 f"cross-validated {esc(metric)} ({better_words(data.direction)}).</p>"]
     best = _best_trial(data)
     if w:
         folds = len(w.get("fold_scores") or [])
@@ -107,15 +123,21 @@ def summary_section(data: ReportData) -> str:
         pairs = [(f"cross-validated {metric}, {folds} folds",
                   f"{num(w.get('cv_mean'))} ± {num(w.get('cv_std'))}"),
                  (f"hold-out, {w.get('holdout_rows', '?')} unseen rows", num(w.get("holdout_score")))]
-        if spread.get("scores"):
+        stability = maps.winner_scores(data).get("stability") if family else None
+        if stability and stability.get("ari_mean") is not None:
+            pairs.append((f"groups agree across {len(stability.get('seeds') or [])} seeds",
+                          f"{num(stability['ari_mean'], 3)} ({stability.get('verdict', '')})"))
+        elif family:
+            pairs.append(("groups across seeds", "not measured"))
+        elif spread.get("scores"):
             pairs.append((f"seed spread, {len(spread['scores'])} seeds",
                           f"± {num(spread.get('std'), 3)}"))
         else:
             pairs.append(("seed spread", "not measured"))
         pairs.append(("winning trial", f"#{w.get('trial_number')} of {len(data.trials)}"))
         parts.append(_headline(pairs))
-        parts.append(f"<p><b>Settings:</b> {esc(settings_in_words(w.get('settings') or {}))}.</p>")
-        if w.get("best_epoch"):
+        parts.append(f"<p><b>Settings:</b> {esc(_settings_words(data, w.get('settings') or {}))}.</p>")
+        if w.get("best_epoch") and not family:
             parts.append(f"<p>The trial did best at epoch {esc(w['best_epoch'])}; the refitted model "
                          f"was trained for that many epochs.</p>")
         verdict = (w.get("cv_vs_holdout") or {}).get("text")
@@ -162,6 +184,8 @@ def data_section(data: ReportData) -> str:
         def role(col: str) -> str:
             if col == spec_data.get("target"):
                 return "target"
+            if spec_data.get("label") and col == spec_data.get("label"):
+                return "label (shown beside the groups, not used in training)"
             return "left out" if col in ignored else "input"
 
         parts.append(f"<p>{len(columns)} columns in the file as it is now "
@@ -294,6 +318,9 @@ def checks_section(data: ReportData) -> str:
                             f"folds: cross-validated {metric} {num(spread.get('mean'))} ± "
                             f"{num(spread.get('std'))}, range {num(spread.get('range'))}; the open "
                             "diamond is the hold-out score.", "fewer than two seeds"))
+    elif maps.family_of(data):
+        parts.append("<p>Seeds: how far the groups come back with other seeds is in the section "
+                     "on the map and its groups above.</p>")
     else:
         parts.append("<p>Seed spread: not measured.</p>")
     runner = w.get("runner_up") or {}
@@ -302,7 +329,7 @@ def checks_section(data: ReportData) -> str:
     for fallback in w.get("refit_fallback") or []:
         parts.append(note(f"Trial {fallback.get('trial_number')} could not be refitted "
                           f"({fallback.get('reason')}); the next best was taken."))
-    parts.append(f"<p>Settings of the winner: {esc(settings_in_words(w.get('settings') or {}))}.</p>")
+    parts.append(f"<p>Settings of the winner: {esc(_settings_words(data, w.get('settings') or {}))}.</p>")
     parts.append(f'<p class="muted">Read from <code>{esc(data.winner_path)}</code>.</p>')
     return "".join(parts) + extra
 
@@ -321,11 +348,26 @@ def environment_section(data: ReportData) -> str:
     return "".join(parts)
 
 
+def _settings_words(data: ReportData, settings) -> str:
+    """A network's settings as one sentence; another family's as "label value" pairs from its
+    settings table."""
+    family = maps.family_of(data) or ((data.spec or {}).get("model") or {}).get("family")
+    if not family or family == "network":
+        return settings_in_words(settings)
+    return family_settings_in_words(family, settings)
+
+
+def sections_of(data: ReportData) -> tuple[str, ...]:
+    return MAP_SECTIONS if maps.family_of(data) else SECTIONS
+
+
 def render_html(data: ReportData) -> str:
-    build = {"summary": summary_section, "data": data_section, "space": space_section,
-             "trials": trials_section, "checks": checks_section, "environment": environment_section}
-    sections = "".join(f'<section id="{k}"><h2>{TITLES[k]}</h2>{build[k](data)}</section>'
-                       for k in SECTIONS)
+    build = {"summary": summary_section, "groups": maps.groups_section, "data": data_section,
+             "space": space_section, "trials": trials_section, "checks": checks_section,
+             "environment": environment_section}
+    titles = dict(TITLES, groups=maps.groups_title(data))
+    sections = "".join(f'<section id="{k}"><h2>{esc(titles[k])}</h2>{build[k](data)}</section>'
+                       for k in sections_of(data))
     return (f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
             f'<meta name="viewport" content="width=device-width, initial-scale=1">'
             f"<title>labbench report: {esc(data.study_name)}</title><style>{CSS}</style></head>"

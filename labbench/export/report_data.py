@@ -4,6 +4,10 @@
 same way ``labbench show`` does), turns every trial into plain values, finds ``winner.json`` in
 the output folder when the search was finished with ``labbench run``, and looks at the data file
 (rows, columns, whether its fingerprint still matches). Nothing is written anywhere.
+
+For a search of a map or group family (``labbench.export.report_maps``) it also loads the saved
+winner (``model.npz`` beside ``winner.json``) and keeps the data file's rows, from which the
+groups' sizes and profiles are computed.
 """
 
 from __future__ import annotations
@@ -18,6 +22,8 @@ from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
+
+from labbench.export.report_maps import MAP_FAMILIES
 
 log = logging.getLogger("labbench.export.report")
 
@@ -52,6 +58,9 @@ class ReportData:
     out_dir: str | None = None      # the search's output folder (default report place)
     machine: dict[str, Any] = field(default_factory=dict)
     study: Any = None               # the open Optuna study (for importance when no winner.json)
+    model: Any = None               # map searches: the saved winner (labbench.model.TrainedModel)
+    model_path: str | None = None
+    rows: Any = None                # map searches: the data file's rows (pandas.DataFrame) or None
 
 
 def _state(trial) -> str:
@@ -125,6 +134,48 @@ def describe_data(attrs: dict[str, Any]) -> dict[str, Any]:
     return info
 
 
+def map_winner(folders: list[Path], winner_path: str | None, data_sha256: str | None = None):
+    """(model, path) of the saved winner of a map search: ``model.npz`` beside winner.json (or in
+    the output folder) trained on this data; (None, None) when there is none or it cannot be read
+    (logged)."""
+    from labbench.errors import LabbenchError
+    from labbench.export.bundle import load_bundle
+
+    places = ([Path(winner_path).parent] if winner_path else []) + list(folders[:1])
+    for folder in places:
+        path = folder / "model.npz"
+        if path.is_file():
+            try:
+                model = load_bundle(path)
+            except LabbenchError as exc:
+                log.warning("%s", exc)
+                continue
+            if data_sha256 and model.data_sha256 and model.data_sha256 != data_sha256:
+                log.info("%s was trained on another data file; not used", path)
+                continue
+            return model, str(path)
+    return None, None
+
+
+def read_rows(path: str | None):
+    """The data file's rows as labbench reads them, or None when it cannot be read."""
+    if not path or not Path(path).is_file():
+        return None
+    from labbench.data import read_csv
+    from labbench.errors import DataError
+
+    try:
+        return read_csv(path)
+    except (DataError, OSError) as exc:
+        log.info("data rows not read: %s", exc)
+        return None
+
+
+def is_map_search(attrs: dict[str, Any], spec: dict[str, Any], winner: dict[str, Any] | None) -> bool:
+    family = ((spec or {}).get("model") or {}).get("family") or (winner or {}).get("family")
+    return family in MAP_FAMILIES or attrs.get("task") == "unsupervised"
+
+
 def machine_info() -> dict[str, Any]:
     from labbench import __version__
 
@@ -157,9 +208,14 @@ def collect(source: Any, study: str | None = None) -> ReportData:
     trials = [_row(t) for t in opened.get_trials(deepcopy=False)]
     folders = _output_folders(spec_path, opened.study_name)
     winner, winner_path = find_winner(folders, opened.study_name, attrs.get("data_sha256"))
+    model = model_path = rows = None
+    if is_map_search(attrs, spec, winner):
+        model, model_path = map_winner(folders, winner_path, attrs.get("data_sha256"))
+        rows = read_rows(attrs.get("data_path"))
     return ReportData(
         study_name=opened.study_name, storage=shown, attrs=attrs,
         direction=str(attrs.get("direction") or opened.direction.name.lower()),
         trials=trials, spec=spec, spec_path=spec_path, winner=winner, winner_path=winner_path,
         data=describe_data(attrs), out_dir=str(folders[0]), machine=machine_info(), study=opened,
+        model=model, model_path=model_path, rows=rows,
     )

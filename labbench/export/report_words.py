@@ -31,6 +31,12 @@ def setting_label(name: str) -> str:
         return f"{SETTINGS['l2'].label} used"
     if name == "hidden":
         return "Hidden layer sizes"
+    from labbench.families import family_names, get_family
+
+    for family in family_names():          # another family's setting: its own table's label
+        table = get_family(family).settings
+        if name in table:
+            return table[name].label
     return name.replace("_", " ").capitalize()
 
 
@@ -98,6 +104,23 @@ def settings_in_words(settings: Mapping[str, Any]) -> str:
             parts.append(f"{epochs} epochs")
     if settings.get("init") not in (None, "auto"):
         parts.append(f"{settings['init']} initial weights")
+    return ", ".join(parts)
+
+
+def family_settings_in_words(family: str, settings: Mapping[str, Any]) -> str:
+    """The resolved settings of a family other than the network, named by its settings table
+    (``Family.settings[...].label``; a family labbench does not know: the key in words)."""
+    from labbench.errors import SpecError
+    from labbench.families import get_family
+
+    try:
+        table = get_family(family).settings
+    except SpecError:
+        table = {}
+    parts = []
+    for key, value in settings.items():
+        label = table[key].label if key in table else key.replace("_", " ").capitalize()
+        parts.append(f"{label} {value_words(key, value)}")
     return ", ".join(parts)
 
 

@@ -3,6 +3,8 @@
 Usage:  python predict_with_numpy.py DATA.csv [OUT.csv]      (writes to the screen without OUT)
 In your own code:  model = load(BUNDLE); values, probabilities = predict(model, columns)
 where ``columns`` maps each input column name to a list of its values as text (None = missing).
+A model without a target (a map or group model) gives ({output column: values}, None): per row
+its unit, group and distance (numbered from 0), or its components component_1..c.
 
 Written by labbench next to the bundle; it needs nothing from labbench. Missing numbers get the
 training median, missing categories the most frequent training value; a category the model never
@@ -138,6 +140,9 @@ def network_forward(model, X):
 
 
 FORWARD = {"network": network_forward}
+# family -> function(model, output) giving {column: values} for a model without a target (its
+# "task" is "unsupervised"); added below with the family's FORWARD entry
+COLUMNS = {}
 
 
 def target_units(model, z):
@@ -152,8 +157,14 @@ def target_units(model, z):
 
 
 def predict(model, columns):
-    """(predictions, class probabilities or None) for {column: [text, ...]}."""
+    """(predictions, class probabilities or None) for {column: [text, ...]}; a model without a
+    target: ({output column: values}, None)."""
     out = forward(model, inputs(model, columns))
+    if model["meta"]["task"] == "unsupervised":
+        family = model["meta"]["family"]
+        if family not in COLUMNS:
+            raise SystemExit(f"this script cannot write the outputs of the family {family!r}")
+        return COLUMNS[family](model, out), None
     classes = model["meta"]["classes"]
     if classes is None:
         return target_units(model, out), None
@@ -171,6 +182,13 @@ def text_cell(value):
         return "'" + value if str(value).startswith(("=", "+", "-", "@", "\t", "\r")) else value
 
 
+def _cell(value):
+    """A whole number as such (unit, group), any other number in full precision."""
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    return repr(float(value))
+
+
 def main(argv):
     if not argv or argv[0] in ("-h", "--help"):
         print(__doc__.strip().splitlines()[2])
@@ -180,15 +198,22 @@ def main(argv):
     labels, proba = predict(model, columns)
     meta = model["meta"]
     has_id = meta["id_column"] in columns
-    header = ([meta["id_column"]] if has_id else []) + [f"predicted_{meta['target']}"]
-    header += [f"proba_{c}" for c in meta["classes"]] if proba is not None else []
+    header = [meta["id_column"]] if has_id else []
+    if isinstance(labels, dict):            # a model without a target: its own columns
+        header += list(labels)
+        table = [[_cell(v) for v in values] for values in labels.values()]
+        cells = [list(row) for row in zip(*table)] if table else []
+    else:
+        header += [f"predicted_{meta['target']}"]
+        header += [f"proba_{c}" for c in meta["classes"]] if proba is not None else []
+        cells = [[repr(float(label)) if proba is None else label]
+                 + ([repr(float(p)) for p in proba[i]] if proba is not None else [])
+                 for i, label in enumerate(labels)]
     handle = open(argv[1], "w", newline="", encoding="utf-8") if len(argv) > 1 else sys.stdout
     writer = csv.writer(handle)
     writer.writerow(header)
-    for i, label in enumerate(labels):
-        row = [columns[meta["id_column"]][i]] if has_id else []
-        row += [repr(float(label)) if proba is None else label]
-        row += [repr(float(p)) for p in proba[i]] if proba is not None else []
+    for i, rest in enumerate(cells):
+        row = ([columns[meta["id_column"]][i]] if has_id else []) + rest
         writer.writerow([text_cell(c) for c in row])
     if handle is not sys.stdout:
         handle.close()
