@@ -19,7 +19,8 @@ TIPS = {
     "repeats": "Run the whole fold split this many times with different shuffles and average them.",
     "holdout": "Share of rows locked away before the search and used once, to check the winner.",
     "seed": "Fixes the hold-out split, the folds and the sampler so a search can be repeated.",
-    "seed_spread": "Retrain the winner with this many seeds to show how much its score moves (0 skips it).",
+    "seed_spread": "Retrain the winner with this many seeds to show how much its score moves, and for maps "
+                   "and groups whether the seeds give the same groups (0 skips it).",
     "trials": "Stop after this many trials have been added by this run.",
     "minutes": "Stop starting new trials after this many minutes.",
     "sampler": "How the next trial's settings are picked: tpe learns from earlier trials, random does not.",
