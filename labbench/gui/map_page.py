@@ -140,6 +140,12 @@ class MapPage(QWidget):
         self.panels = [self.distances, self.hits, self.plane, self.groups, self.components, self.projection,
                        self.front]
         self.data: mn.MapData | None = None
+        # the pictures answer the mouse; Tab walks the controls and skips them (as on the run page)
+        import pyqtgraph as pg
+
+        for view in self.findChildren(pg.GraphicsView):
+            view.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+            view.viewport().setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.clear()
 
     def clear(self, text: str = EMPTY) -> None:

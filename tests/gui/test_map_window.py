@@ -101,7 +101,8 @@ def test_step_four_draws_the_winner_of_a_map_search(make_window, tmp_path):
     assert "Not reproducible" in page.head.text()
     # the groups line up with the invented machine states (the label, never trained on)
     assert page.groups.cell_text("state (label)", 1).endswith("(100 %)")
-    w.steps.setCurrentRow(3)
+    w.steps.setCurrentRow(0)
+    w.act_map_step.trigger()                          # View ▸ Map and groups (Ctrl+4)
     assert w.stack.currentWidget() is page
     # Winner ▸ Save pictures takes the map's pictures along
     written = w.take.export_pictures(str(tmp_path / "pictures"))
