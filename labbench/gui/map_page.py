@@ -150,7 +150,8 @@ class MapPage(QWidget):
 
     def clear(self, text: str = EMPTY) -> None:
         self.data = None
-        self.head.setText(html.escape(text))
+        if self.head.text() != html.escape(text):      # called on every change of the session
+            self.head.setText(html.escape(text))
         self.split.hide()
 
     def show_model(self, data: mn.MapData, scores: Mapping[str, Any] | None = None) -> None:

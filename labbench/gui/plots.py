@@ -93,7 +93,8 @@ class CurvesPanel(Panel):
 
     def set_loss_label(self, text: str) -> None:
         """The left axis: what the curves are (the family's held-out loss)."""
-        self.plot.setLabel("left", text)
+        if self.plot.getAxis("left").labelText != text:
+            self.plot.setLabel("left", text)
 
     def reset(self) -> None:
         self._band_key = self._view = self._drawn = None
