@@ -91,7 +91,7 @@ def test_a_som_search_ends_on_its_map(make_window, tmp_path, qtbot):
     assert 'family = "som"' in text and 'label = "state"' in text and "target" not in text.split("[evaluation]")[0]
 
 
-@pytest.mark.parametrize("family", ["competitive", "hebbian"])      # neural gas draws as competitive
+@pytest.mark.parametrize("family", ["competitive", "neural_gas", "hebbian"])
 def test_the_other_families_on_iris_with_its_species_hidden(family, make_window, iris_csv, qtbot):
     # Fisher's iris (scikit-learn's copy): the species is the label, never trained on
     from labbench.maps.record import PrototypeRecord, SubspaceRecord
