@@ -1,6 +1,7 @@
 """The known model families, by name.
 
-The network family is built in. Another family registers itself with one line,
+The network family and the four map and group families (som, competitive, neural_gas, hebbian;
+labbench.families.maps) are built in. Another family registers itself with one line,
 ``labbench.families.register(FAMILY)``, or, for processes labbench starts itself (``labbench run``,
 its worker processes, ``labbench predict``), through the environment variable
 ``LABBENCH_FAMILIES``: a comma-separated list of ``module:attribute`` naming ``Family`` objects,
@@ -33,9 +34,12 @@ def register(family: Any) -> Any:
 def _load() -> None:
     global _loaded_env
     if DEFAULT not in _FAMILIES:
+        from labbench.families.maps import FAMILIES as MAP_FAMILIES
         from labbench.families.network import FAMILY
 
         register(FAMILY)
+        for family in MAP_FAMILIES:
+            register(family)
     extra = os.environ.get(ENV, "")
     if extra == _loaded_env:
         return
