@@ -9,7 +9,8 @@ import pytest
 from labbench.gui.data_page import NO_TARGET
 from tests.gui.conftest import ROOT
 
-pytest.importorskip("labbench.families.maps")      # the map families (maps-engine)
+pytest.importorskip("labbench.families.maps")      # the map families
+pytest.importorskip("labbench.search.front")       # tables without a target and the trade-off front
 pytestmark = pytest.mark.slow
 LONG = 180_000     # ms; generous, the machine is shared
 
