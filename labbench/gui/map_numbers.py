@@ -9,6 +9,8 @@ their own units) and gives plain arrays; ``labbench.gui.map_views`` only draws t
 * ``u_matrix`` - the unit-distance map (Ultsch 1990): each unit's mean Euclidean distance between
   its prototype and its grid neighbours' prototypes, in the scaled input space. High values are
   ridges between regions of the map, low values the inside of a region.
+  Both are the report's own (``labbench.families.maps_export``: one rule for the window and the
+  report), re-shaped here for drawing.
 * ``cell_polygons`` - one square or hexagon per unit, centred on its grid position.
 * ``hit_counts``, ``group_sizes``, ``group_profiles``, ``label_mix`` - what the rows do on the map.
 * ``projection`` - the rows (and prototypes) on the first two principal components of the scaled
@@ -24,10 +26,11 @@ from typing import Any, Sequence
 import numpy as np
 import pandas as pd
 
-from labbench.maps.record import grid_positions
+from labbench.families.maps_export import grid_neighbours
+from labbench.families.maps_export import u_matrix as shared_u_matrix
+from labbench.maps.record import PrototypeRecord, grid_positions
 from labbench.palette import colours
 
-NEIGHBOUR_TOLERANCE = 1e-6     # hexagonal neighbours sit at distance 1 up to rounding
 ASSIGN_BLOCK = 20_000          # rows per block when the rows are assigned to their units
 
 # group colours: labbench's own, picked to stay apart on paper and on slate; after the twelfth
@@ -40,19 +43,12 @@ GROUPS_DARK = ("#6fa8d6", "#eb9a5e", "#74c488", "#e0789a", "#b39ae0", "#d1c06a",
 
 # ------------------------------------------------------------------------------ the grid
 def neighbour_pairs(shape: tuple[int, int], topology: str | None) -> np.ndarray:
-    """(E, 2) unit pairs (i < j) that are neighbours on the grid (see the module docstring)."""
-    rows, cols = shape
-    k = rows * cols
-    if topology == "hexagonal":
-        pos = grid_positions(rows, cols, "hexagonal")
-        d = np.sqrt(((pos[:, None, :] - pos[None, :, :]) ** 2).sum(axis=2))
-        near = np.abs(d - 1.0) < NEIGHBOUR_TOLERANCE
-    else:
-        r, c = np.divmod(np.arange(k), cols)
-        cheb = np.maximum(np.abs(r[:, None] - r[None, :]), np.abs(c[:, None] - c[None, :]))
-        near = cheb == 1
-    i, j = np.nonzero(np.triu(near, 1))
-    return np.column_stack([i, j]).astype(np.int64)
+    """(E, 2) unit pairs (i < j) that are neighbours on the grid (see the module docstring); the
+    one rule of ``labbench.families.maps_export.grid_neighbours`` (the report's, the topographic
+    error's)."""
+    near = grid_neighbours(tuple(shape), topology or "rectangular")
+    pairs = [(i, int(j)) for i, nb in enumerate(near) for j in nb if j > i]
+    return np.array(pairs, dtype=np.int64).reshape(-1, 2)
 
 
 def mesh_pairs(shape: tuple[int, int], topology: str | None) -> np.ndarray:
@@ -68,16 +64,10 @@ def mesh_pairs(shape: tuple[int, int], topology: str | None) -> np.ndarray:
 
 
 def u_matrix(prototypes: np.ndarray, shape: tuple[int, int], topology: str | None) -> np.ndarray:
-    """(k,) each unit's mean distance to its grid neighbours' prototypes (Ultsch 1990)."""
-    P = np.asarray(prototypes, dtype=np.float64)
-    pairs = neighbour_pairs(shape, topology)
-    k = P.shape[0]
-    if len(pairs) == 0:
-        return np.zeros(k)
-    dist = np.sqrt(((P[pairs[:, 0]] - P[pairs[:, 1]]) ** 2).sum(axis=1))
-    total = np.bincount(pairs[:, 0], dist, k) + np.bincount(pairs[:, 1], dist, k)
-    count = np.bincount(pairs[:, 0], minlength=k) + np.bincount(pairs[:, 1], minlength=k)
-    return total / np.maximum(count, 1)
+    """(k,) each unit's mean distance to its grid neighbours' prototypes (Ultsch 1990): the report's
+    ``labbench.families.maps_export.u_matrix``, one value per unit in unit order."""
+    record = PrototypeRecord("som", prototypes, shape=tuple(shape), topology=topology or "rectangular")
+    return np.asarray(shared_u_matrix(record), dtype=np.float64).reshape(-1)
 
 
 def cell_polygons(shape: tuple[int, int], topology: str | None) -> np.ndarray:
