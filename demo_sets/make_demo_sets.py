@@ -1,6 +1,7 @@
-"""Write labbench's two demo tables. THE DATA IS INVENTED: no orchard and no bakery was measured.
+"""Write labbench's three demo tables. THE DATA IS INVENTED: no orchard, no bakery and no pump
+was measured.
 
-Both scenarios are made up for this project to show the workbench on tables with realistic mess
+All three scenarios are made up for this project to show the workbench on tables with realistic mess
 (a categorical column, a few missing values, features on very different scales, an id column to
 ignore, noise). The numbers follow simple made-up rules, written out below, so that a small
 network has something non-linear to find.
@@ -14,6 +15,12 @@ network has something non-linear to find.
   town-centre footfall counter. Sales scale with footfall, peak at mild temperatures, fall with
   rain and price (elasticity about -1.3), differ by weekday, drop on public holidays, rise on
   promotion days, with multiplicative noise.
+* ``pumps.csv`` (no target: for the map and group families): readings of the centrifugal pumps
+  of an imagined water works, each taken while the pump was in one of four operating states that
+  the ``state`` column names ("steady", "cavitating", "worn bearing", "blocked inlet") - shown
+  beside the groups a map finds, never learnt from. Each state shifts the flow, head, vibration,
+  bearing temperature and noise in its own way (table ``PUMP_STATES``); the motor current follows
+  the hydraulic power (flow × head) plus noise; 1 % of the bearing temperatures are missing.
 
 Run ``python demo_sets/make_demo_sets.py [OUT_DIR]`` (default: this folder). The output depends
 only on the fixed seeds below: a rerun writes byte-identical files.
@@ -29,8 +36,10 @@ import pandas as pd
 
 ORCHARD_SEED = 20240917
 BAKERY_SEED = 20240918
+PUMPS_SEED = 20261202
 ORCHARD_ROWS = 1500
 BAKERY_ROWS = 1200
+PUMPS_ROWS = 1000
 
 # variety: (days from bloom to the best picking day, sugar (deg Brix) a premium crate needs,
 #           typical diameter in mm)
@@ -133,6 +142,40 @@ def make_bakery(seed: int = BAKERY_SEED, n: int = BAKERY_ROWS) -> pd.DataFrame:
     })
 
 
+# state: (share of the readings, flow m3/h, head m, vibration mm/s, bearing temperature degC,
+#         noise dB(A)); each as (mean, spread) except the share
+PUMP_STATES = {
+    "steady": (0.55, (120, 8), (32, 1.5), (2.0, 0.4), (55, 2.5), (78, 1.5)),
+    "cavitating": (0.15, (104, 10), (25, 2.5), (5.5, 0.9), (58, 2.5), (89, 2.5)),
+    "worn bearing": (0.15, (118, 8), (31, 1.5), (7.5, 1.0), (73, 3.5), (84, 2.0)),
+    "blocked inlet": (0.15, (72, 9), (37, 2.0), (3.4, 0.6), (63, 3.0), (80, 2.0)),
+}
+
+
+def make_pumps(seed: int = PUMPS_SEED, n: int = PUMPS_ROWS) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    names = list(PUMP_STATES)
+    state = rng.choice(names, n, p=[PUMP_STATES[s][0] for s in names])
+
+    def draw(i: int) -> np.ndarray:
+        mean = np.array([PUMP_STATES[s][i][0] for s in state], dtype=np.float64)
+        spread = np.array([PUMP_STATES[s][i][1] for s in state], dtype=np.float64)
+        return mean + spread * rng.normal(size=n)
+
+    flow, head, vibration, temperature, noise = (draw(i) for i in range(1, 6))
+    current = 0.0118 * flow * head + rng.normal(0, 1.5, n)          # amperes: hydraulic power
+    return pd.DataFrame({
+        "reading_id": [f"R{i:04d}" for i in range(1, n + 1)],
+        "flow_m3h": np.round(flow, 1),
+        "head_m": np.round(head, 2),
+        "vibration_mm_s": np.round(np.abs(vibration), 2),
+        "bearing_temp_c": np.round(_with_gaps(rng, temperature, 0.01), 1),
+        "motor_current_a": np.round(current, 1),
+        "noise_db": np.round(noise, 1),
+        "state": state,
+    })
+
+
 def write(frame: pd.DataFrame, path: Path) -> None:
     # plain CSV: header row, comma separated, empty cells for missing values, "\n" line ends
     text = frame.to_csv(index=False, lineterminator="\n", na_rep="")
@@ -145,6 +188,7 @@ def main(argv: list[str] | None = None) -> int:
     out.mkdir(parents=True, exist_ok=True)
     write(make_orchard(), out / "orchard.csv")
     write(make_bakery(), out / "bakery.csv")
+    write(make_pumps(), out / "pumps.csv")
     return 0
 
 

@@ -22,7 +22,7 @@ from labbench.errors import LabbenchError
 log = logging.getLogger("labbench.assets")
 
 _PACKAGE = Path(__file__).resolve().parent
-DEMO_SPECS = ("orchard.toml", "bakery.toml")
+DEMO_SPECS = ("orchard.toml", "bakery.toml", "pumps.toml")
 DEFAULT_DEMO = "orchard.toml"
 
 
@@ -98,7 +98,8 @@ def demo_to_open(name: str = DEFAULT_DEMO) -> Path:
 def add_parser(subparsers) -> None:
     p = subparsers.add_parser(
         "demo", help="copy the invented demo sets into a folder to run them",
-        description="Copy the demo sets (orchard: classes, bakery: a quantity) with their spec "
+        description="Copy the demo sets (orchard: classes, bakery: a quantity, pumps: no target, "
+        "for the maps) with their spec "
         "files into FOLDER, then run one with `labbench run FOLDER/orchard.toml`. "
         "--where prints where the installed demo files are instead.")
     p.add_argument("folder", nargs="?", default="labbench_demo",

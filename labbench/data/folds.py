@@ -4,6 +4,9 @@ For a regression table the target is scaled too (:mod:`labbench.data.target`), a
 each fold's training rows only: ``y_train`` and ``y_val`` are in training units, and
 ``target_scalers[i]`` maps fold i's network output (and ``y_val[i]``) back to the target's own
 units, which is where every score is computed (``StackTrainer(..., target_inverse=...)``).
+
+A table without a target (task "unsupervised") gets no target scaler: ``y_train`` / ``y_val``
+are its dummy zeros, and the families that learn without a target ignore them.
 """
 
 from __future__ import annotations

@@ -146,7 +146,8 @@ def leak_score(x: pd.Series, y: pd.Series, kind: str, task: str) -> tuple[float,
 def profile_columns(frame: pd.DataFrame, kinds: dict[str, str], target: str | None,
                     task: str | None, *, features: Iterable[str] | None = None,
                     forced: Iterable[str] = ()) -> dict[str, ColumnProfile]:
-    """One ``ColumnProfile`` per column of ``frame`` (the target gets one too, without flags)."""
+    """One ``ColumnProfile`` per column of ``frame`` (the target gets one too, without flags).
+    ``target`` None: a table without a target (no leak check)."""
     part = _sample(frame)
     rows = part[part[target].notna()] if target in part.columns else part
     features = set(map(str, features)) if features is not None else {str(c) for c in part.columns} - {target}
@@ -194,15 +195,16 @@ def stray_markers(series: pd.Series) -> tuple[list[str], int, str]:
     return words[:4], len(bad), values[0]
 
 
-def find_traps(frame: pd.DataFrame, target: str, features: Sequence[str], *, task: str | None = None,
+def find_traps(frame: pd.DataFrame, target: str | None, features: Sequence[str], *, task: str | None = None,
                forced: Iterable[str] = (), where: str = "table",
                profiles: dict[str, ColumnProfile] | None = None) -> list[Trap]:
-    """What would surprise a new user at Start, each with a reason and one-click remedies."""
+    """What would surprise a new user at Start, each with a reason and one-click remedies.
+    ``target`` None or "": a table without a target (the column checks only, on every row)."""
     traps: list[Trap] = []
     forced = set(forced)
-    if target not in frame.columns:
+    if target and target not in frame.columns:
         return traps
-    rows = frame[frame[target].notna()]
+    rows = frame[frame[target].notna()] if target else frame     # no target: every row counts
     for col in features:
         words, n_bad, example = stray_markers(rows[col])
         if n_bad:
@@ -225,11 +227,11 @@ def find_traps(frame: pd.DataFrame, target: str, features: Sequence[str], *, tas
         reason = id_reason(rows[col])
         if reason:
             traps.append(Trap(col, "id-like", f"“{col}” looks like a row id ({reason}); it is left "
-                              "out, since a network cannot learn from a label that names each row.",
+                              "out, since a model cannot learn from a label that names each row.",
                               (Remedy("Keep it out", {"ignore": [col]}),
                                Remedy("Use it anyway", {"keep": [col]}))))
-    y = rows[target]
-    if task is None and is_numeric(y) and not pd.api.types.is_bool_dtype(y):
+    y = rows[target] if target else None
+    if y is not None and task is None and is_numeric(y) and not pd.api.types.is_bool_dtype(y):
         try:
             inferred = infer_task(y)
         except Exception:       # a constant target: the page shows the core's message

@@ -139,7 +139,8 @@ def make_folds(y, k: int, *, repeats: int = 1, seed: int, stratify: bool) -> lis
 def check_folds(table, folds: int, holdout: float) -> None:
     """Refuse a split that cannot work, before any search starts (one-line DataError).
 
-    Assumes the hold-out is stratified for classification (as the search does).
+    Assumes the hold-out is stratified for classification (as the search does); a table without
+    a target is split at random (not stratified), so only its row count is checked.
     """
     where = table.path
     if isinstance(folds, bool) or not isinstance(folds, (int, np.integer)) or folds < 2:
@@ -152,7 +153,7 @@ def check_folds(table, folds: int, holdout: float) -> None:
         after = f" after setting {n_hold} aside for the hold-out" if n_hold else ""
         raise DataError(f"{where}: {n_train} training rows{after} are too few for {folds} folds "
                         f"(need at least {2 * folds}); use fewer folds, a smaller hold-out, or more rows")
-    if table.task == "regression":
+    if table.classes is None:       # regression, or a table without a target: nothing per class
         return
     counts = np.bincount(table.y, minlength=len(table.classes))
     train_counts = counts - holdout_quota(counts, n_hold)

@@ -6,6 +6,13 @@ features), drops what cannot be used (rows without a target, constant and id-lik
 for each, stops on a mostly numeric column with a few stray text cells (naming them), and refuses with a one-line
 :class:`DataError` what cannot be fixed silently. Nothing is fitted here: imputation and scaling
 are fitted per fold later (:mod:`labbench.data.prep`).
+
+A table WITHOUT a target (``target`` None or ``""``; the map and group families learn from the
+inputs alone) has the task ``"unsupervised"``, no classes, ``y`` all zeros (float64: one value
+per row, so the splitting and fold code keeps working) and keeps every row. An optional ``label``
+column names something known about each row (a machine state, a species) to show beside the
+groups found: it is never an input and never used in training; its values are kept as text in
+``Table.labels`` (``category_text``; None where empty).
 """
 
 from __future__ import annotations
@@ -22,9 +29,10 @@ import pandas as pd
 
 from labbench.errors import DataError
 from labbench.data.reading import names_text, read_file, show
-from labbench.data.roles import (FORCE_REGRESSION, TASKS, as_float, check_kinds, class_labels,
-                                 infer_kinds, infer_task, is_numeric, stray_cells)
+from labbench.data.roles import (FORCE_REGRESSION, TASKS, as_float, category_text, check_kinds,
+                                 class_labels, infer_kinds, infer_task, is_numeric, stray_cells)
 from labbench.data.screen import screen_columns
+from labbench.nets.metrics import UNSUPERVISED   # the task of a table without a target
 
 log = logging.getLogger("labbench.data")
 
@@ -35,16 +43,22 @@ MISSING_POLICIES = ("impute", "drop")
 class Table:
     path: str
     frame: pd.DataFrame              # the feature columns only, original values, index 0..n-1
-    target: str
-    features: tuple[str, ...]        # file order, minus target, ignored, constant
+    target: str                      # "" for a table without a target
+    features: tuple[str, ...]        # file order, minus target, label, ignored, constant
     kinds: Mapping[str, str]         # feature -> "numeric" | "categorical"
-    task: str                        # "regression" | "binary" | "multiclass"
+    task: str                        # "regression" | "binary" | "multiclass" | "unsupervised"
     classes: tuple[str, ...] | None  # sorted class labels as strings; y holds codes into it
-    y: np.ndarray                    # float64 (regression) or int64 codes 0..C-1
+    y: np.ndarray                    # float64 (regression; zeros without a target) or int64 codes
     ids: np.ndarray | None           # values of the first ignored column, else None
     id_column: str | None
     sha256: str                      # of the file's bytes
     warnings: tuple[str, ...]
+    label: str | None = None         # a column shown beside the groups (never an input)
+    labels: np.ndarray | None = None  # its values as text (object array, None where empty)
+
+    @property
+    def has_target(self) -> bool:
+        return self.task != UNSUPERVISED
 
     @property
     def n_rows(self) -> int:
@@ -64,12 +78,14 @@ def _lines_text(lines: np.ndarray, limit: int = 5) -> str:
     return ("line " if len(lines) == 1 else "lines ") + shown + (", ..." if len(lines) > limit else "")
 
 
-def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
+def load_table(path: str | Path, target: str | None, *, ignore: Sequence[str] = (),
                kinds: Mapping[str, str] | None = None, task: str | None = None,
                missing: str = "impute", missing_markers: Sequence[str] = (),
                thousands: str | None = None, decimal: str | None = None,
-               keep: Sequence[str] = ()) -> Table:
-    """Read ``path`` and make a :class:`Table` with ``target`` as the column to predict.
+               keep: Sequence[str] = (), label: str | None = None) -> Table:
+    """Read ``path`` and make a :class:`Table` with ``target`` as the column to predict
+    (None or ``""``: no target, the task is "unsupervised"; ``label`` then names a column kept
+    beside the rows, never an input).
 
     ``missing_markers`` add to the usual markers of a missing cell (see
     :data:`labbench.data.reading.MISSING_MARKERS`); ``thousands`` / ``decimal`` declare the number
@@ -77,6 +93,10 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     giving a column's kind in ``kinds``).
     """
     where = str(path)
+    target = target or ""
+    if task is not None and not target:
+        raise DataError(f"{where}: task = {show(task)} but no target is named; a table without a "
+                        "target has no task to set: leave task out, or name the target")
     if missing not in MISSING_POLICIES:
         raise DataError(f"{where}: missing = {show(missing)}; use 'impute' (fill per fold) or 'drop' (drop rows)")
     if task is not None and task not in TASKS:
@@ -88,8 +108,9 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     frame, lines, notes = read.frame, read.lines, list(read.warnings)
     columns = [str(c) for c in frame.columns]
 
-    if target not in columns:
+    if target and target not in columns:
         raise DataError(f"{where}: no column {show(target)} for the target; the columns are {names_text(columns)}")
+    _check_label(label, target, columns, where, ignore, keep, kinds)
     for key, listed in (("ignore", ignore), ("keep", keep)):
         for col in listed:
             if col not in columns:
@@ -103,21 +124,27 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
             if col in ignored:
                 raise DataError(f"{where}: {key}: {show(col)} is ignored; remove it from {key} or from ignore")
 
-    # rows without a target are of no use: drop them (with a warning)
-    y_raw = frame[target]
-    no_target = y_raw.isna().to_numpy()
-    if no_target.all():
-        raise DataError(f"{where}: the target column {show(target)} is empty in every row; "
-                        "choose another target or fill it in")
-    rows = ~no_target
-    if no_target.any():
-        notes.append(f"{where}: dropped {int(no_target.sum())} row(s) with no value in the target "
-                     f"{show(target)} ({_lines_text(lines[no_target])})")
+    # rows without a target are of no use: drop them (with a warning); without a target every
+    # row is kept
+    rows = np.ones(len(frame), dtype=bool)
+    if target:
+        y_raw = frame[target]
+        no_target = y_raw.isna().to_numpy()
+        if no_target.all():
+            raise DataError(f"{where}: the target column {show(target)} is empty in every row; "
+                            "choose another target or fill it in")
+        rows = ~no_target
+        if no_target.any():
+            notes.append(f"{where}: dropped {int(no_target.sum())} row(s) with no value in the target "
+                         f"{show(target)} ({_lines_text(lines[no_target])})")
 
-    features = [c for c in columns if c != target and c not in ignored]
+    features = [c for c in columns if c not in (target, label) and c not in ignored]
     if not features:
-        raise DataError(f"{where}: no feature columns left besides the target {show(target)}"
-                        + (" and the ignored ones" if ignored else "") + "; the table needs at least one input column")
+        besides = " and ".join(filter(None, (f"the target {show(target)}" if target else "",
+                                             f"the label {show(label)}" if label else "",
+                                             "the ignored ones" if ignored else "")))
+        raise DataError(f"{where}: no feature columns left" + (f" besides {besides}" if besides else "")
+                        + "; the table needs at least one input column")
     kinds_ = infer_kinds(frame[features])
     kinds_.update(overrides)
     feats = frame[features].copy()
@@ -150,7 +177,6 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
         notes.extend(dropped)
 
     feats = feats.loc[rows, features].reset_index(drop=True)
-    y_kept = y_raw.loc[rows].reset_index(drop=True)
     lines_kept = lines[rows]
     categorical = [c for c in features if kinds_[c] == "categorical"]
     distinct = feats[categorical].nunique(dropna=True)
@@ -161,7 +187,12 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
     feats = feats[features]
     kinds_final = {c: kinds_[c] for c in features}
 
-    task_, classes, y = _target(y_kept, target, task, where, lines_kept)
+    if target:
+        y_kept = frame[target].loc[rows].reset_index(drop=True)
+        task_, classes, y = _target(y_kept, target, task, where, lines_kept)
+    else:
+        task_, classes, y = UNSUPERVISED, None, np.zeros(len(feats), dtype=np.float64)
+    labels = category_text(frame[label].loc[rows].reset_index(drop=True)) if label else None
 
     id_column = next(iter(ignore), None)
     ids = frame[id_column].loc[rows].to_numpy() if id_column is not None else None
@@ -169,7 +200,23 @@ def load_table(path: str | Path, target: str, *, ignore: Sequence[str] = (),
         log.warning(note)
     return Table(path=where, frame=feats, target=target, features=tuple(features), kinds=kinds_final,
                  task=task_, classes=classes, y=y, ids=ids, id_column=id_column,
-                 sha256=hashlib.sha256(read.raw).hexdigest(), warnings=tuple(notes))
+                 sha256=hashlib.sha256(read.raw).hexdigest(), warnings=tuple(notes),
+                 label=label or None, labels=labels)
+
+
+def _check_label(label: str | None, target: str, columns: list[str], where: str,
+                 ignore: Sequence[str], keep: Sequence[str], kinds: Mapping[str, str] | None) -> None:
+    """The label column exists and has no other role (it is shown, never learnt from)."""
+    if not label:
+        return
+    if label not in columns:
+        raise DataError(f"{where}: label: no column {show(label)}; the columns are {names_text(columns)}")
+    if label == target:
+        raise DataError(f"{where}: label: {show(label)} is the target; name another column or leave label out")
+    for key, listed in (("ignore", ignore), ("keep", keep), ("kinds", tuple(kinds or ()))):
+        if label in listed:
+            raise DataError(f"{where}: {key}: {show(label)} is the label, which is never an input; "
+                            f"remove it from {key}")
 
 
 _THOUSANDS_COMMA = re.compile(r"[+-]?\d{1,3}(,\d{3})+(\.\d+)?")

@@ -9,6 +9,11 @@ the classes present in ``y_true``; macro F1 averages over the classes present in
 prediction; log loss clips probabilities to [eps, 1 - eps] of their dtype; R² is 1.0 for a
 perfect fit of a constant target and 0.0 for an imperfect one. ROC AUC with one class present is
 undefined and returns NaN.
+
+The map and group families (a table without a target: task ``UNSUPERVISED``) are scored by
+their own engine on each member's validation rows (``labbench.maps``); their four metrics are
+registered here so that the spec, the search and the report know their names, labels and
+directions, but ``compute`` does not score them.
 """
 
 from __future__ import annotations
@@ -29,6 +34,9 @@ class MetricInfo:
 
 
 _CLASS = ("binary", "multiclass")
+#: the task of a table without a target (the map and group families)
+UNSUPERVISED = "unsupervised"
+_MAPS = (UNSUPERVISED,)
 METRICS: dict[str, MetricInfo] = {
     "accuracy": MetricInfo("accuracy", "maximize", _CLASS, "accuracy"),
     "balanced_accuracy": MetricInfo("balanced_accuracy", "maximize", _CLASS, "balanced accuracy"),
@@ -38,12 +46,25 @@ METRICS: dict[str, MetricInfo] = {
     "rmse": MetricInfo("rmse", "minimize", ("regression",), "RMSE"),
     "mae": MetricInfo("mae", "minimize", ("regression",), "MAE"),
     "r2": MetricInfo("r2", "maximize", ("regression",), "R²"),
+    # the map and group families: computed by their engine (labbench.maps), never by compute()
+    "quantisation_error": MetricInfo("quantisation_error", "minimize", _MAPS, "quantisation error"),
+    "topographic_error": MetricInfo("topographic_error", "minimize", _MAPS, "topographic error"),
+    "reconstruction_error": MetricInfo("reconstruction_error", "minimize", _MAPS,
+                                       "reconstruction error"),
+    "penalised_error": MetricInfo("penalised_error", "minimize", _MAPS, "penalised error"),
 }
+#: the metrics the map engine computes itself (``compute`` refuses them)
+ENGINE_METRICS = tuple(n for n, info in METRICS.items() if info.tasks == _MAPS)
 
 _DEFAULTS = {"regression": "rmse", "binary": "roc_auc", "multiclass": "balanced_accuracy"}
 
 
 def default_metric(task: str) -> str:
+    """The default metric of a supervised task; a table without a target is scored by its
+    family's own default (``Family.default_metric``)."""
+    if task not in _DEFAULTS:
+        raise ValueError(f"no default metric for the task {task!r} here; a family without a "
+                         "target names its own (Family.default_metric)")
     return _DEFAULTS[task]
 
 
@@ -145,6 +166,10 @@ def r2(y_true, y_pred) -> float:
 def compute(name: str, y_true, output, task: str, n_classes: int | None = None) -> float:
     """The metric ``name`` of ``output`` (network output format) against ``y_true``."""
     check_metric(name, task)
+    if name in ENGINE_METRICS:
+        raise ValueError(f"the metric {name!r} is computed by the map engine on each member's "
+                         "validation rows (labbench.maps), not from an output and a target; "
+                         "read it from the Training (best_val_metric, measures())")
     if task == "regression":
         y_true = np.asarray(y_true, dtype=np.float64).ravel()
         y_pred = np.asarray(output, dtype=np.float64).ravel()

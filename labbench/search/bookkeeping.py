@@ -82,6 +82,7 @@ def study_attrs(spec, prepared) -> dict[str, Any]:
         "metric": prepared.metric,
         "direction": prepared.direction,
         "classes": list(table.classes) if table.classes is not None else None,
+        "label": getattr(table, "label", None),   # no target: the column shown beside the groups
         "n_rows": int(len(prepared.train_pos)),
         "n_holdout": int(len(prepared.holdout_pos)),
         "versions": versions(),

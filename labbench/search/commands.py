@@ -2,7 +2,12 @@
 
 ``labbench run SPEC.toml``  runs (or resumes) the search of a spec file, then checks the winner
                             (refit, hold-out, seed spread) and writes its files.
-``labbench show SPEC|URL``  lists the trials stored for a spec (or in a database URL).
+``labbench run SPEC.toml --pick N``  no new trial: refits and exports the stored trial N instead
+                            of the best (e.g. one from the trade-off front of a map search), into
+                            ``<spec name>_out/trial_N`` unless ``--out`` says otherwise.
+``labbench show SPEC|URL``  lists the trials stored for a spec (or in a database URL); for a
+                            search without a target also the trade-off front
+                            (``labbench.search.front``).
 
 Exit codes: 0 done, 1 the search ended without any complete trial (no winner), 2 bad input,
 130 interrupted (Ctrl-C or SIGTERM; the trials in flight are told FAIL, none is left RUNNING).
@@ -21,7 +26,7 @@ from typing import Any
 from labbench.errors import SpecError
 from labbench.numbers import duration, number, percent, setting
 from labbench.search import states
-from labbench.search.ending import OUTPUT_NAMES, out_dir
+from labbench.search.ending import OUTPUT_NAMES, out_dir, picked_dir
 from labbench.search.stored import open_for_reading  # noqa: F401  (also used by tests)
 
 log = logging.getLogger("labbench.search.commands")
@@ -54,6 +59,10 @@ def add_parser(subparsers) -> None:
                      help="folder for the winner's files (default: <spec name>_out beside the spec)")
     run.add_argument("--fresh", action="store_true",
                      help="delete the stored search of this name first and start afresh")
+    run.add_argument("--pick", type=int, metavar="TRIAL",
+                     help="no new trial: refit and export the stored trial TRIAL instead of the "
+                     "best (e.g. one of the trade-off front `labbench show` lists), into "
+                     "<spec name>_out/trial_TRIAL unless --out is given")
     run.add_argument("--quiet", action="store_true", help="no progress line, errors only")
     run.add_argument("-v", "--verbose", action="count", default=argparse.SUPPRESS,
                      help="more log lines (-vv: debug)")
@@ -118,6 +127,12 @@ def run_command(args) -> int:
     heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
     if args.workers is not None:
         _check_workers(spec, args.workers)
+    pick = getattr(args, "pick", None)
+    if pick is not None:
+        _check_pick(args)
+        target = picked_dir(spec, pick, args.out)
+        check_out(spec, target, spec_path=args.spec)
+        return _winner_only(args, spec, target, pick=pick)
     target = out_dir(spec, args.out)
     # checked before the search starts, not after it ran for hours
     check_out(spec, target, spec_path=args.spec)
@@ -188,18 +203,31 @@ def _check_workers(spec, workers: int) -> None:
                                                                           workers=workers)))
 
 
-def _finish(spec, study, prepared, target: Path, progress) -> int:
+def _check_pick(args) -> None:
+    if args.pick < 0:
+        raise SpecError(f"--pick: {args.pick} is not a trial number; give the number of a "
+                        "finished trial (labbench show lists them)")
+    for option, given in (("--trials", args.trials), ("--fresh", args.fresh),
+                          ("--minutes", args.minutes), ("--workers", args.workers)):
+        if given:
+            raise SpecError(f"--pick refits a stored trial and runs no new one, so {option} "
+                            f"does nothing with it; drop {option} (or --pick)")
+
+
+def _finish(spec, study, prepared, target: Path, progress, pick: int | None = None) -> int:
     """The one ending (``labbench.search.ending.finish_search``); prints the summary."""
     from labbench.search.ending import finish_search
 
-    summary, _model, files = finish_search(spec, study, prepared, target, progress)
+    options = {} if pick is None else {"trial_number": pick}
+    summary, _model, files = finish_search(spec, study, prepared, target, progress, **options)
     progress.close()
     print(winner_text(summary, files))
     return EXIT_OK
 
 
-def _winner_only(args, spec, target: Path) -> int:
-    """``--trials 0``: no new trial; check the winner of the stored trials and write its files."""
+def _winner_only(args, spec, target: Path, pick: int | None = None) -> int:
+    """``--trials 0`` (or ``--pick N``): no new trial; check the winner of the stored trials (or
+    the picked one) and write its files."""
     from labbench.search.progress import ProgressLine
 
     study, _ = open_for_reading(args.spec, None, args.storage)
@@ -208,7 +236,7 @@ def _winner_only(args, spec, target: Path) -> int:
     with _Interrupts(cancel, lambda text: None) as interrupts:
         interrupts.immediate = True
         try:
-            return _finish(spec, study, None, target, progress)
+            return _finish(spec, study, None, target, progress, pick)
         except KeyboardInterrupt:
             progress.close()
             print(f"labbench: interrupted; the winner's files in {target} are not complete",
@@ -250,7 +278,8 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
     """The winner summary ``labbench run`` prints at the end."""
     s, metric = summary, summary["metric"]
     folds = s.get("fold_scores") or []
-    lines = [f"winner: trial {s['trial_number']} of search '{s.get('study_name', '')}'",
+    who = "picked" if s.get("picked") else "winner"
+    lines = [f"{who}: trial {s['trial_number']} of search '{s.get('study_name', '')}'",
              f"  {metric}, cross-validated over {len(folds)} folds: {number(s['cv_mean'])} "
              f"± {number(s['cv_std'])} (mean ± standard deviation across folds)",
              "  per fold: " + "  ".join(number(v) for v in folds)]
@@ -260,12 +289,17 @@ def winner_text(summary: dict, files: list[str] = ()) -> str:
     if comparison.get("text"):
         lines.append(f"    {comparison['text']}")
     spread = s.get("seed_spread")
-    if spread and spread.get("scores"):
+    if "stability" in s:                     # a family without a target (maps)
+        from labbench.search.map_winner import summary_text
+
+        lines += summary_text(s)
+    elif spread and spread.get("scores"):
         lines.append(f"  seed spread ({len(spread['scores'])} seeds): {number(spread['mean'])} "
                      f"± {number(spread['std'])}, from {number(spread['min'])} to {number(spread['max'])}")
     else:
         lines.append("  seed spread: not measured")
-    warnings = list(s.get("warnings") or [])
+    shown = "\n".join(lines)
+    warnings = [w for w in s.get("warnings") or [] if w not in shown]   # said once
     if s.get("runner_up") and s["runner_up"].get("text") and s["runner_up"]["text"] not in warnings:
         lines.append(f"    {s['runner_up']['text']}")
     settings = s.get("settings") or {}
@@ -302,8 +336,11 @@ def param_label(name: str) -> str:
     return {"l2_on": "l2_used"}.get(name, name)
 
 
-def trials_table(study) -> str:
-    """The text ``labbench show`` prints for a study (also handy in tests)."""
+def trials_table(study, source: str | None = None) -> str:
+    """The text ``labbench show`` prints for a study (also handy in tests); for a search without
+    a target (the maps) it ends with the trade-off front (``labbench.search.front``)."""
+    from labbench.search.front import front_text
+
     from labbench.search.ranking import best_trial
 
     trials = study.get_trials(deepcopy=False)
@@ -342,13 +379,18 @@ def trials_table(study) -> str:
     ended = [t for t in trials if states.trial_key(t) == "failed" and t.user_attrs.get("end_reason")]
     for t in ended[-5:]:
         lines.append(f"trial {t.number} {states.WORDS['failed']}: {t.user_attrs['end_reason']}")
+    hint = ("to refit and export one of them instead of the best: labbench run "
+            f"{source or 'SPEC.toml'} --pick TRIAL")
+    front = front_text(trials, metric, hint)
+    if front:
+        lines += ["", front]
     return "\n".join(lines)
 
 
 def show_command(args) -> int:
     study, _ = open_for_reading(args.source, args.study, args.storage)
     try:
-        print(trials_table(study))
+        print(trials_table(study, args.source if str(args.source).endswith(".toml") else None))
         sys.stdout.flush()
     except BrokenPipeError:           # `labbench show ... | head`
         import os

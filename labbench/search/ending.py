@@ -45,6 +45,13 @@ def out_dir(spec: Any, given: str | os.PathLike | None = None) -> Path:
     return Path.cwd() / f"{safe_file_name(spec.study_name())}_out"
 
 
+def picked_dir(spec: Any, number: int, given: str | os.PathLike | None = None) -> Path:
+    """Where the files of a trial the user picked instead of the best go (``labbench run
+    --pick N``, the window's pick from the trade-off front): ``given``, else
+    ``<output folder>/trial_N``, so the best's own files stay beside it."""
+    return Path(given) if given else out_dir(spec) / f"trial_{int(number)}"
+
+
 def check_out(spec: Any, target: Path, *, spec_path: str | os.PathLike | None = None,
               option: str = "--out") -> Path:
     """Refuse an output folder (or a file in it) that is a file, the spec or the data file: one
@@ -64,9 +71,10 @@ def finish_search(spec: Any, study: Any, prepared: Any = None, target: str | os.
                   ) -> tuple[dict, Any, list[str]]:
     """Check the winner and write all its files; returns ``(summary, model, files written)``.
 
-    ``target``: the output folder (default :func:`out_dir`). ``finalize_options`` go to
-    ``finalize`` (``importance``, ``seed_spread``, ``dtype``). Raises what ``finalize`` raises
-    (no complete trial, every refit diverged); nothing is written then.
+    ``target``: the output folder (default :func:`out_dir`; for a picked trial use
+    :func:`picked_dir`). ``finalize_options`` go to ``finalize`` (``importance``, ``seed_spread``,
+    ``dtype``, ``trial_number``: a trial the user picked instead of the best). Raises what
+    ``finalize`` raises (no complete trial, every refit diverged); nothing is written then.
     """
     from labbench.export import export_all
     from labbench.search.winner import finalize

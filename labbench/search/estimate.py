@@ -13,6 +13,10 @@ This is an upper bound: every trial is counted with all its epochs, while prunin
 lagging ones early. ``at_most_minutes`` is that figure; ``typical_minutes`` assumes half the
 epochs (common practice for a median pruner that stops about half the trials halfway; a rough
 guide, said as such).
+
+Another family (e.g. the maps, which learn without a target) is calibrated the same way through
+its own ``Family.stack``: the middle of each searched setting of its table, all folds stacked,
+random rows of the table's width (``Shape.family``; ``shape_from(..., family=...)``).
 """
 
 from __future__ import annotations
@@ -46,6 +50,8 @@ class Shape:
     batch_size: int = 64
     epochs: int = 200
     activation: str = "relu"
+    family: str = "network"     # the model family (labbench.families) that trains
+    settings: Mapping[str, Any] | None = None   # another family: its resolved middle settings
 
 
 @dataclass(frozen=True)
@@ -94,8 +100,19 @@ def middle(raw: Any, default: Any) -> Any:
 
 
 def shape_from(space: Mapping[str, Any], *, rows: int, inputs: int, outputs: int, task: str,
-               folds: int, repeats: int, holdout: float, trials: int | None, workers: int) -> Shape:
+               folds: int, repeats: int, holdout: float, trials: int | None, workers: int,
+               family: str = "network") -> Shape:
     """A ``Shape`` for a spec's [space] dict (the middle of each searched range)."""
+    if family != "network":
+        from labbench.families import get_family
+
+        settings = middle_settings(space, family)
+        if not get_family(family).needs_target:      # whatever task the caller guessed
+            task, outputs = "unsupervised", 1
+        return Shape(rows=rows, inputs=max(1, inputs), outputs=max(1, outputs), task=task,
+                     folds=folds, repeats=repeats, holdout=holdout, trials=trials,
+                     workers=max(1, workers), epochs=max(1, int(settings["epochs"])),
+                     family=family, settings=settings)
     layers = int(round(float(middle(space.get("hidden_layers", 1), 1))))
     units_raw = space.get("hidden_units", 64)
     if isinstance(units_raw, (list, tuple)):
@@ -112,10 +129,30 @@ def shape_from(space: Mapping[str, Any], *, rows: int, inputs: int, outputs: int
                  epochs=max(1, epochs), activation=str(middle(space.get("activation", "relu"), "relu")))
 
 
+def middle_settings(space: Mapping[str, Any], family: str) -> dict[str, Any]:
+    """Resolved settings of ``family`` at the middle of each searched setting of ``space`` (its
+    default where ``space`` leaves it out); ``epochs`` = the most a trial may run."""
+    from labbench.families import get_family
+
+    model = get_family(family)
+    out: dict[str, Any] = {}
+    for name, info in model.settings.items():
+        raw = space.get(name, info.default)
+        value = middle(raw, info.default)
+        if info.kind == "int" and isinstance(raw, Mapping) and "choices" not in raw:
+            value = int(raw["high"]) if name == "epochs" else int(round(float(value)))
+        out[name] = value
+    out.setdefault("epochs", 1)
+    return model.complete(out)
+
+
 def calibrate(shape: Shape, seed: int = 0) -> float:
     """Seconds for one epoch of all folds together on ``CALIBRATION_ROWS`` rows per fold."""
     from labbench.nets import NetConfig, StackTrainer
     from threadpoolctl import threadpool_limits
+
+    if shape.family != "network":
+        return _calibrate_family(shape, seed)
 
     rng = np.random.default_rng(seed)
     n, d, k = CALIBRATION_ROWS, shape.inputs, shape.outputs
@@ -146,3 +183,29 @@ def estimate(shape: Shape, seconds_calibrated: float) -> Estimate:
     at_most = shape.trials * per_trial / parallel / 60
     typical = shape.trials * (shape.repeats * shape.epochs * per_epoch / 2 + TRIAL_OVERHEAD_S) / parallel / 60
     return Estimate(per_epoch, at_most, typical, shape.trials)
+
+
+def _calibrate_family(shape: Shape, seed: int) -> float:
+    """``calibrate`` for another family: its own ``stack`` on random rows, folds stacked."""
+    from labbench.families import get_family
+    from threadpoolctl import threadpool_limits
+
+    model = get_family(shape.family)
+    rng = np.random.default_rng(seed)
+    n, m = CALIBRATION_ROWS, shape.folds
+    X = rng.normal(size=(n, shape.inputs))
+    if shape.task == "regression":
+        y = rng.normal(size=n)
+    elif shape.task in ("binary", "multiclass"):
+        y = rng.integers(0, max(2, shape.outputs), size=n)
+    else:                                  # no target: the dummy zeros of labbench.data
+        y = np.zeros(n)
+    settings = dict(shape.settings or middle_settings({}, shape.family))
+    with threadpool_limits(1):
+        trainer = model.stack(settings, shape.task, shape.outputs, [X] * m, [y] * m,
+                              [X[:64]] * m, [y[:64]] * m, seeds=list(range(m)),
+                              metric=model.default_metric(shape.task),
+                              epochs=CALIBRATION_EPOCHS + 1)
+        stamps: list[float] = []
+        trainer.run(on_epoch=lambda _scores: stamps.append(time.perf_counter()))
+    return (stamps[-1] - stamps[0]) / max(1, len(stamps) - 1)

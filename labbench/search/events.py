@@ -56,6 +56,9 @@ class TrialEnded(Event):
     reason: str = ""             # why pruned/failed/cancelled, one line
     params: Mapping[str, Any] = field(default_factory=dict)
     epochs_run: int = 0
+    # a family without a target (maps): fold means of its measures and "units" (the trial attr
+    # "measures"); None for the network
+    measures: Mapping[str, Any] | None = None
 
 
 @dataclass(frozen=True)
@@ -96,7 +99,8 @@ class SearchEnded(Event):
 class FinalStage(Event):
     """Progress of the after-search work (refit, hold-out, seed spread, importance, files)."""
 
-    stage: str                   # "refit" | "holdout" | "seed_spread" | "importance" | "files"
+    stage: str                   # "refit" | "holdout" | "seed_spread" | "stability" (maps) |
+                                 # "importance" | "files"
     text: str
 
 

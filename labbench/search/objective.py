@@ -7,6 +7,12 @@ epoch (``best_epoch``: the best of their mean validation loss, see ``labbench.ne
 the fold scores are the metric at that epoch; with patience 0 it is the last epoch. The trial
 value is the mean of the fold scores; the refit trains ``best_epoch`` epochs.
 
+A family that learns without a target (the map and group families) also reports, per fold, the
+measures of its kept epoch (``Training.measures()``: quantisation, topographic, reconstruction
+and relative error on each fold's validation rows) and its ``units``; the trial carries their
+fold means (``measures`` in the result, then the trial attr of the same name), which the
+trade-off front of ``labbench.search.front`` reads.
+
 It also holds the small helpers the controller uses to turn those values into the trial user
 attrs of the storage contract (curve downsampled to at most 200 points, fold scores, spread).
 """
@@ -89,10 +95,28 @@ def run_trial(
                 "duration_s": time.perf_counter() - started}
     best = trainer.best_val_metric
     fold_scores = [] if state["last"] is None or best is None else [float(v) for v in best]
-    return {"end": "stopped" if state["stopped"] else "complete", "reason": "",
-            "fold_scores": fold_scores, "epochs_run": state["epochs"],
-            "best_epoch": int(trainer.best_epoch[0]) if state["last"] is not None else 0,
-            "duration_s": time.perf_counter() - started}
+    out = {"end": "stopped" if state["stopped"] else "complete", "reason": "",
+           "fold_scores": fold_scores, "epochs_run": state["epochs"],
+           "best_epoch": int(trainer.best_epoch[0]) if state["last"] is not None else 0,
+           "duration_s": time.perf_counter() - started}
+    measures = fold_measures(trainer) if state["last"] is not None else None
+    if measures is not None:
+        out["measures"] = measures
+    return out
+
+
+def fold_measures(trainer: Any) -> dict[str, float | int | None] | None:
+    """The fold means of a Training's extra measures at its kept epoch, plus ``units``; None for
+    a family without them (the network). Non-finite means become None (JSON has no NaN)."""
+    get = getattr(trainer, "measures", None)
+    if get is None:
+        return None
+    out: dict[str, float | int | None] = {
+        name: _finite_or_none(_mean(values)) for name, values in get().items()}
+    units = getattr(trainer, "units", None)
+    if units is not None:
+        out["units"] = int(units)
+    return out
 
 
 # --------------------------------------------------------------------------------------------

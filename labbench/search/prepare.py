@@ -8,6 +8,10 @@ Order matters and is fixed here once for the runner and the winner refit alike:
 4. make the folds on the training rows only and fit one preprocessor per fold (``FoldArrays``);
    for regression also one target scaler per fold (``data.target_scaling``), so the networks
    train on a scaled target while every score is computed in the target's own units.
+
+A table without a target (the map and group families) has the task "unsupervised": its hold-out
+and folds are drawn at random (nothing to stratify on), and its metric is the family's default
+(``Family.default_metric``) unless the spec names one the family offers.
 """
 
 from __future__ import annotations
@@ -27,7 +31,7 @@ log = logging.getLogger("labbench.search.prepare")
 @dataclass(frozen=True)
 class Prepared:
     table: Any                         # labbench.data.Table
-    task: str                          # "regression" | "binary" | "multiclass"
+    task: str                          # "regression" | "binary" | "multiclass" | "unsupervised"
     metric: str
     direction: str                     # "maximize" | "minimize"
     train_pos: np.ndarray              # positions into the table: the rows the search sees
@@ -54,7 +58,7 @@ class Prepared:
 
     @property
     def stratify(self) -> bool:
-        return self.task != "regression"
+        return self.table.classes is not None       # classes only (not regression, no target)
 
 
 def metric_direction(metric: str) -> str:
@@ -70,18 +74,18 @@ def prepare(spec: Spec) -> Prepared:
     d, e = spec.data, spec.evaluation
     table = load_table(d.path, d.target, ignore=d.ignore, kinds=dict(d.kinds) or None,
                        task=d.task, missing=d.missing, missing_markers=d.missing_markers,
-                       thousands=d.thousands, decimal=d.decimal, keep=d.keep)
+                       thousands=d.thousands, decimal=d.decimal, keep=d.keep, label=d.label)
     task = table.task
     metric = e.metric or spec.space.model.default_metric(task)
     if e.metric:
         check_metric(metric, task, spec.source_path)
     offered = spec.space.model.metrics(task)
     if metric not in offered:           # the family scores itself with these objectives only
+        what = "a table without a target" if not table.has_target else f"a {task} task"
         raise spec_error(spec.source_path, "evaluation.metric", f"{metric!r} cannot score the "
-                         f"{spec.space.family} family on a {task} task; use one of "
-                         + ", ".join(offered))
+                         f"{spec.space.family} family on {what}; use one of " + ", ".join(offered))
     check_folds(table, e.folds, e.holdout)
-    stratify = task != "regression"
+    stratify = table.classes is not None
     train_pos, holdout_pos = holdout_split(table.y, e.holdout, seed=e.seed, stratify=stratify)
     train_pos = np.asarray(train_pos, dtype=np.int64)
     holdout_pos = np.asarray(holdout_pos, dtype=np.int64)

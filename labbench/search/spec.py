@@ -2,7 +2,7 @@
 
 ```toml
 [data]          path, target, ignore, task, kinds, missing, scaling, target_scaling,
-                missing_markers, thousands, decimal, keep
+                missing_markers, thousands, decimal, keep, label
 [evaluation]    folds, repeats, holdout, seed, metric, seed_spread
 [search]        trials, minutes, sampler, pruner, workers, storage, name
 [model]         family (default "network"; labbench.families)
@@ -12,6 +12,11 @@
 ``load_spec(path)`` reads and checks it (every problem a one-line ``SpecError`` naming the file,
 the dotted key, the value and what is allowed); ``Spec.to_toml()`` / ``save_spec`` write it back.
 The data path is stored absolute and written relative to the folder the spec is saved in.
+
+A family that learns without a target (``needs_target = False``: the map and group families)
+reads a ``[data]`` without ``target`` (or ``target = ""``); ``label = "column"`` then names a
+column shown beside the groups, never an input. The section readers live in
+``labbench.search.spec_reading``.
 """
 
 from __future__ import annotations
@@ -30,13 +35,15 @@ from labbench.errors import SpecError
 from labbench.families import DEFAULT as DEFAULT_FAMILY
 from labbench.families import get_family
 from labbench.nets.losses import TASKS         # the one list of tasks
+from labbench.nets.metrics import UNSUPERVISED    # the task of a table without a target
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
                                     MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
+from labbench.search.spec_reading import (DECIMALS, THOUSANDS,  # noqa: F401  (kept importable here)
+                                          Section, check_target_for_family, number_format,
+                                          target_text)
 
 MISSING, SCALING, TARGET_SCALING = MISSING_POLICIES, SCALINGS, TARGET_SCALINGS   # labbench.data's
-THOUSANDS = (",", ".", " ", "'", "_")     # as labbench.data.reading.THOUSANDS
-DECIMALS = (".", ",")
 SAMPLERS = ("tpe", "random", "grid", "qmc", "cmaes")
 PRUNERS = ("none", "median", "halving", "hyperband")
 DEFAULT_TRIALS = 40
@@ -48,7 +55,7 @@ _SECTIONS = ("data", "evaluation", "search", "model", "space")
 @dataclass(frozen=True)
 class DataSpec:
     path: str                                   # absolute path of the CSV
-    target: str
+    target: str = ""                            # "": no target (a family that learns without one)
     ignore: tuple[str, ...] = ()
     task: str | None = None                     # None: inferred from the target column
     kinds: Mapping[str, str] = field(default_factory=dict)   # column -> numeric | categorical
@@ -59,6 +66,7 @@ class DataSpec:
     thousands: str | None = None                # declared thousands separator
     decimal: str | None = None                  # declared decimal mark; None: "." (a semicolon file's "," found)
     keep: tuple[str, ...] = ()                  # columns used even when they look like row ids
+    label: str | None = None                    # no target: a column shown beside the groups
 
 
 @dataclass(frozen=True)
@@ -108,7 +116,11 @@ class Spec:
         PostgreSQL's client library takes it from PGPASSWORD or ~/.pgpass."""
         base = Path(base_dir if base_dir is not None else self.base_dir()).resolve()
         d, e, s = self.data, self.evaluation, self.search
-        data: dict[str, Any] = {"path": _relative(d.path, base), "target": d.target}
+        data: dict[str, Any] = {"path": _relative(d.path, base)}
+        if d.target:
+            data["target"] = d.target
+        if d.label:
+            data["label"] = d.label
         if d.ignore:
             data["ignore"] = list(d.ignore)
         if d.task:
@@ -117,7 +129,8 @@ class Spec:
             data["kinds"] = dict(d.kinds)
         data["missing"] = d.missing
         data["scaling"] = d.scaling
-        data["target_scaling"] = d.target_scaling
+        if d.target:
+            data["target_scaling"] = d.target_scaling
         if d.missing_markers:
             data["missing_markers"] = list(d.missing_markers)
         if d.thousands is not None:
@@ -244,75 +257,6 @@ def save_spec(spec: Spec, path: str | os.PathLike) -> Spec:
     return dataclasses.replace(spec, source_path=str(p))
 
 
-class _Section:
-    """Reads one table of the file with typed getters that name the dotted key on error."""
-
-    def __init__(self, d: Any, name: str, known: tuple[str, ...], source: str | None):
-        self.name, self.source = name, source
-        if not isinstance(d, Mapping):
-            raise spec_error(source, name, f"{show(d)} is not a table; write [{name}] with keys "
-                             + ", ".join(known))
-        unknown = [k for k in d if k not in known]
-        if unknown:
-            raise spec_error(source, f"{name}.{unknown[0]}", "unknown key; known keys are "
-                             + ", ".join(known))
-        self.d = d
-
-    def fail(self, key: str, message: str):
-        return spec_error(self.source, f"{self.name}.{key}", message)
-
-    def has(self, key: str) -> bool:
-        return key in self.d
-
-    def text(self, key: str, default: Any = None, *, required: bool = False,
-             choices: tuple[str, ...] | None = None) -> Any:
-        if key not in self.d:
-            if required:
-                raise self.fail(key, "missing; this key is required")
-            return default
-        v = self.d[key]
-        if choices is not None and v not in choices:
-            raise self.fail(key, f"{show(v)} is not allowed; use one of "
-                            + ", ".join(f'"{c}"' for c in choices))
-        if not isinstance(v, str) or not v.strip():
-            raise self.fail(key, f"{show(v)} is not allowed; write a non-empty text in quotes")
-        return v
-
-    def integer(self, key: str, default: Any, *, least: int, most: int | None = None,
-                why: str = "") -> Any:
-        if key not in self.d:
-            return default
-        v = self.d[key]
-        if isinstance(v, bool) or not isinstance(v, int) or v < least:
-            rule = f" (at most {most})" if most is not None else ""
-            raise self.fail(key, f"{show(v)} is not allowed; write a whole number >= {least}{rule}")
-        if most is not None and v > most:
-            raise self.fail(key, f"{show(v)} is more than labbench allows ({most}"
-                            + (f"; {why}" if why else "") + f"); write a whole number from "
-                            f"{least} to {most}")
-        return v
-
-    def number(self, key: str, default: Any, *, above: float, below: float | None = None) -> Any:
-        if key not in self.d:
-            return default
-        v = self.d[key]
-        ok = not isinstance(v, bool) and isinstance(v, (int, float)) and v > above \
-            and (below is None or v < below)
-        if not ok:
-            rule = f"a number above {show(above)}" + (f" and below {show(below)}" if below else "")
-            raise self.fail(key, f"{show(v)} is not allowed; write {rule}")
-        return float(v)
-
-    def texts(self, key: str) -> tuple[str, ...]:
-        v = self.d.get(key, [])
-        if not isinstance(v, list) or not all(isinstance(x, str) and x for x in v):
-            raise self.fail(key, f"{show(v)} is not allowed; write a list of column names, "
-                            'e.g. ["id"]')
-        if len(set(v)) != len(v):
-            raise self.fail(key, f"{show(v)} names a column twice")
-        return tuple(v)
-
-
 def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
                    source: str | None = None) -> Spec:
     """Check a parsed spec (all sections) and build the Spec. ``base_dir``: where a relative
@@ -322,12 +266,13 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         raise spec_error(source, unknown[0], "unknown section; known sections are "
                          + ", ".join(f"[{s}]" for s in _SECTIONS))
     if "data" not in d:
-        raise spec_error(source, "data", "missing section; a spec needs [data] with path and target")
+        raise spec_error(source, "data", "missing section; a spec needs [data] with path and target "
+                         "(or label, for a family that learns without a target)")
 
-    ds = _Section(d["data"], "data", ("path", "target", "ignore", "task", "kinds", "missing",
-                                      "scaling", "target_scaling", "missing_markers", "thousands",
-                                      "decimal", "keep"),
-                  source)
+    ds = Section(d["data"], "data", ("path", "target", "ignore", "task", "kinds", "missing",
+                                     "scaling", "target_scaling", "missing_markers", "thousands",
+                                     "decimal", "keep", "label"),
+                 source)
     path = ds.text("path", required=True)
     kinds = ds.d.get("kinds", {})
     if not isinstance(kinds, Mapping):
@@ -338,7 +283,7 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
                           + ", ".join(f'"{k}"' for k in KINDS))
     data = DataSpec(
         path=os.path.normpath(os.path.join(os.path.abspath(base_dir), path)),
-        target=ds.text("target", required=True),
+        target=target_text(ds),
         ignore=ds.texts("ignore"),
         task=ds.text("task", choices=TASKS),
         kinds=dict(kinds),
@@ -346,8 +291,18 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         scaling=ds.text("scaling", "standard", choices=SCALING),
         # a spec written before this key existed gets the default (the target standardised)
         target_scaling=ds.text("target_scaling", "standard", choices=TARGET_SCALING),
-        **_number_format(ds),
+        label=ds.text("label"),
+        **number_format(ds),
     )
+    if not data.target and data.task is not None:
+        raise ds.fail("task", f"{show(data.task)} but no target is named; a table without a target "
+                      "has no task to set: remove task (or name the target)")
+    for key in ("ignore", "keep", "kinds"):
+        if data.label and data.label in getattr(data, key):
+            raise ds.fail(key, f"lists the label {show(data.label)}, which is never an input; "
+                          f"remove it from {key}")
+    if data.label and data.label == data.target:
+        raise ds.fail("label", f"{show(data.label)} is the target; name another column or remove label")
     if data.target in data.ignore:
         raise ds.fail("ignore", f"lists the target {show(data.target)}; remove it from ignore")
     if data.target in data.keep:
@@ -355,9 +310,14 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
     if set(data.keep) & set(data.ignore):
         raise ds.fail("keep", f"{show(sorted(set(data.keep) & set(data.ignore))[0])} is also in ignore; "
                       "remove it from one of them")
+    # [model] family: which kind of model (labbench.families); none = the network. Whether the
+    # data needs a target depends on it.
+    ms = Section(d.get("model", {}), "model", ("family",), source)
+    family = get_family(ms.text("family", DEFAULT_FAMILY), source).name
+    check_target_for_family(ds, data.target, data.label, get_family(family))
 
-    es = _Section(d.get("evaluation", {}), "evaluation",
-                  ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
+    es = Section(d.get("evaluation", {}), "evaluation",
+                 ("folds", "repeats", "holdout", "seed", "metric", "seed_spread"), source)
     spread = es.integer("seed_spread", 5, least=0, most=MAX_SEED_SPREAD,
                         why="each seed retrains every fold of the winner")
     if spread == 1:
@@ -373,14 +333,14 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         seed_spread=spread,
     )
     if evaluation.metric is not None:
-        check_metric(evaluation.metric, data.task, source)
+        check_metric(evaluation.metric, data.task if data.target else UNSUPERVISED, source)
     if evaluation.folds * evaluation.repeats > MAX_MODELS:
         raise es.fail("repeats", f"{evaluation.folds} folds × {evaluation.repeats} repeats = "
                       f"{evaluation.folds * evaluation.repeats} networks per trial, more than "
                       f"{MAX_MODELS}; lower folds or repeats")
 
-    ss = _Section(d.get("search", {}), "search",
-                  ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
+    ss = Section(d.get("search", {}), "search",
+                 ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
     trials = ss.integer("trials", None, least=1)
     minutes = ss.number("minutes", None, above=0.0)
     if trials is None and minutes is None:
@@ -400,9 +360,6 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         name=ss.text("name"),
     )
 
-    # [model] family: which kind of model (labbench.families); none = the network.
-    ms = _Section(d.get("model", {}), "model", ("family",), source)
-    family = get_family(ms.text("family", DEFAULT_FAMILY), source).name
     # No [space] at all: the family's default searched space (labbench.search.defaults for the
     # network); with a [space] section, settings left out are fixed at their defaults.
     space_raw = d["space"] if "space" in d else _plain_copy(get_family(family).default_space)
@@ -420,24 +377,6 @@ def _plain_copy(space: Mapping[str, Any]) -> dict[str, Any]:
     return {k: (dict(v) if isinstance(v, Mapping) else v) for k, v in space.items()}
 
 
-def _number_format(ds: _Section) -> dict[str, Any]:
-    """[data] missing_markers, thousands, decimal, keep (see labbench.data.reading)."""
-    markers = ds.d.get("missing_markers", [])
-    if not isinstance(markers, list) or not all(isinstance(m, str) for m in markers):
-        raise ds.fail("missing_markers", f"{show(markers)} is not allowed; write a list of texts that "
-                      'mean "missing", e.g. ["not measured", "unknown"]')
-    thousands = ds.d.get("thousands")
-    if thousands is not None and thousands not in THOUSANDS:
-        raise ds.fail("thousands", f"{show(thousands)} is not allowed; use one of "
-                      + ", ".join(f'"{t}"' for t in THOUSANDS) + " (or leave it out)")
-    decimal = ds.text("decimal", None, choices=DECIMALS)
-    if thousands is not None and thousands == (decimal or "."):
-        raise ds.fail("thousands", f"{show(thousands)} is also the decimal mark; they must differ "
-                      '(e.g. thousands = "." with decimal = ",")')
-    return {"missing_markers": tuple(dict.fromkeys(markers)), "thousands": thousands,
-            "decimal": decimal, "keep": ds.texts("keep")}
-
-
 def _check_sampler_space(search: SearchSettings, space: SearchSpace, source: str | None) -> None:
     if search.sampler == "grid":
         space.grid()            # raises a SpecError naming the setting that cannot be gridded
@@ -453,5 +392,6 @@ def check_metric(metric: str, task: str | None, source: str | None = None,
                          + ", ".join(METRICS))
     if task is not None and task not in METRICS[metric].tasks:
         fits = [n for n, info in METRICS.items() if task in info.tasks]
-        raise spec_error(source, key, f"{show(metric)} does not fit a {task} task; use one of "
+        what = "a table without a target" if task == UNSUPERVISED else f"a {task} task"
+        raise spec_error(source, key, f"{show(metric)} does not fit {what}; use one of "
                          + ", ".join(fits))

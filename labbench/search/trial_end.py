@@ -1,7 +1,8 @@
 """How the controller takes in a trial's epochs and ends it: a mixin of ``SearchRunner``.
 
 Each epoch: the fold-mean values join the trial's curve, the validation loss is reported (in
-batches, see ``_report``) and the pruner is asked. When the worker is done, or the trial is
+batches, see ``_report``; for a family without a target the metric, see ``_judged``) and the
+pruner is asked. When the worker is done, or the trial is
 pruned, cancelled, lost or diverged, ``_finish`` writes the trial's attrs, tells Optuna, and
 emits ``TrialEnded`` (and ``NewBest``, ``Progress``). The attributes it uses (``study``, ``spec``,
 ``pool``, ``beats``, ``should_prune``, ``emit``, ``best``, ...) are set by ``SearchRunner.run``.
@@ -35,14 +36,24 @@ class TrialEndings:
 
     def _epoch(self, flight: InFlight, epoch, train_loss, val_loss, val_metric) -> None:
         flight.points.append((int(epoch), float(train_loss), float(val_loss), float(val_metric)))
-        if math.isfinite(val_loss):
-            self._report(flight, int(epoch), self.sign * float(val_loss))
+        judged = self._judged(val_loss, val_metric)
+        if math.isfinite(judged):
+            self._report(flight, int(epoch), self.sign * float(judged))
         self.emit(ev.EpochScored(flight.number, int(epoch), float(train_loss), float(val_loss),
                                  float(val_metric), int(flight.settings["epochs"])))
         most = int(flight.settings["epochs"])
         if self.stop_reason != "cancelled" and self.should_prune(flight.trial, int(epoch), most):
             flight.stopping, flight.stop_epoch = "pruned", int(epoch)
             self.pool.stop(flight.slot, flight.number)
+
+    def _judged(self, val_loss: float, val_metric: float) -> float:
+        """What the pruner compares each epoch: the fold-mean validation loss; for a family
+        without a target (the maps) the metric itself, since their held-out loss (quantisation
+        error) always falls with more units and a pruner comparing it would stop the small maps
+        the (penalised) metric may prefer."""
+        if getattr(self, "_by_metric", None) is None:
+            self._by_metric = not self.spec.space.model.needs_target
+        return float(val_metric) if self._by_metric else float(val_loss)
 
     def _report(self, flight: InFlight, step: int, value: float) -> None:
         """``trial.report`` in batches: the trial's own copy (what the pruner reads) now, the
@@ -68,8 +79,11 @@ class TrialEndings:
     def _done(self, flight: InFlight, result: Mapping[str, Any]) -> None:
         self.worker_cpu_s += float(result.get("cpu_s", 0.0))
         if flight.stopping == "pruned":
-            last = flight.points[-1][2] if flight.points else float("nan")
-            reason = (f"pruned after epoch {flight.stop_epoch}: validation loss {last:.4g} was "
+            by_metric = bool(getattr(self, "_by_metric", False))
+            last = flight.points[-1][3 if by_metric else 2] if flight.points else float("nan")
+            what = f"validation {self.prepared.metric}".replace("_", " ") if by_metric \
+                else "validation loss"
+            reason = (f"pruned after epoch {flight.stop_epoch}: {what} {last:.4g} was "
                       f"behind the other trials at that epoch ({self.spec.search.pruner} pruner)")
             self._finish(flight, "PRUNED", reason=reason, epochs_run=flight.stop_epoch)
         elif flight.stopping == "cancelled":
@@ -86,14 +100,15 @@ class TrialEndings:
                              "fold", fold_scores=scores, epochs_run=result["epochs_run"])
             else:
                 self._finish(flight, "COMPLETE", value=mean, fold_scores=scores,
-                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"))
+                             epochs_run=result["epochs_run"], best_epoch=result.get("best_epoch"),
+                             measures=result.get("measures"))
 
     # ------------------------------------------------------------------------------------
     # ending trials
 
     def _finish(self, flight: InFlight, state: str, *, value: float | None = None,
                 reason: str = "", fold_scores=(), epochs_run: int | None = None,
-                best_epoch: int | None = None) -> None:
+                best_epoch: int | None = None, measures: Mapping[str, Any] | None = None) -> None:
         trial = flight.trial
         duration = time.monotonic() - flight.started if flight.training else 0.0
         points = [p for p in flight.points if epochs_run is None or p[0] <= epochs_run]
@@ -104,6 +119,8 @@ class TrialEndings:
                  "duration_s": float(duration), "epochs_run": int(runs), "end_reason": reason}
         if best_epoch is not None:             # the epoch the fold scores (and the refit) use
             attrs["best_epoch"] = int(best_epoch)
+        if measures is not None:               # a map family: fold means of its measures + units
+            attrs["measures"] = dict(measures)
         try:
             self._save_values(flight)
             write_user_attrs(trial, plain(attrs))
@@ -120,7 +137,7 @@ class TrialEndings:
             self.durations.append(duration)
         shown = key_of(state, reason)          # the one state table (labbench.search.states)
         self.emit(ev.TrialEnded(trial.number, shown, value, tuple(attrs["fold_scores"]), duration,
-                                reason, dict(trial.params), int(runs)))
+                                reason, dict(trial.params), int(runs), attrs.get("measures")))
         if state == "COMPLETE" and self._better(value):
             self.best = (trial.number, float(value), attrs["cv_std"] or 0.0,
                          tuple(attrs["fold_scores"]), dict(trial.params))

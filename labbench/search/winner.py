@@ -12,7 +12,10 @@
 5. parameter importance (PED-ANOVA, or fANOVA with a fixed seed);
 6. ``winner.json`` (the summary) and ``winner.toml`` (a spec with every setting fixed).
 
-It returns the summary and the refit ``TrainedModel``.
+It returns the summary and the refit ``TrainedModel``. ``trial_number`` takes a trial the user
+picked (e.g. from the trade-off front) instead of the best. A family that learns without a target
+(the maps) is refit, scored and checked across seeds by ``labbench.search.map_winner``: hold-out
+measures, and the stability of its groups instead of the seed spread of a score.
 """
 
 from __future__ import annotations
@@ -30,6 +33,7 @@ import numpy as np
 from labbench.errors import DivergenceError, LabbenchError
 from labbench.numbers import number as fmt
 from labbench.search import events, ranking
+from labbench.search import map_winner
 from labbench.search.insight import (compare_cv_holdout, counts_by_state, lead_inside_spread,
                                      param_importance, spread_stats)
 from labbench.search.prepare import Prepared, prepare
@@ -168,14 +172,32 @@ def winner_spec(spec: Spec, settings: Mapping[str, Any]) -> Spec:
     return dataclasses.replace(spec, search=search, space=spec.space.fixed_at(settings))
 
 
+def picked(trials: list[Any], number: int, study_name: str) -> Any:
+    """The finished trial ``number`` (the user's pick); one clear line when it is not one."""
+    from labbench.search import states
+
+    done = [t for t in trials if states.trial_key(t) == "complete" and t.value is not None
+            and math.isfinite(t.value)]
+    for t in done:
+        if t.number == number:
+            return t
+    shown = ", ".join(str(t.number) for t in done[:12]) + (", ..." if len(done) > 12 else "")
+    known = next((t for t in trials if t.number == number), None)
+    what = f"there is no trial {number}" if known is None else \
+        f"trial {number} is not a finished trial with a score ({states.WORDS[states.trial_key(known)]})"
+    raise LabbenchError(f"--pick {number}: {what} in search {study_name!r}; pick one of the "
+                        f"finished trials: {shown or 'none yet'}")
+
+
 def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
              emit: events.Emit = events.ignore, out_dir: str | Path | None = None,
              importance: str = "ped_anova", seed_spread: int | None = None, *,
-             dtype: str = "float32") -> tuple[dict, Any]:
+             dtype: str = "float32", trial_number: int | None = None) -> tuple[dict, Any]:
     """Refit, hold-out, seed spread, importance, files. Returns ``(summary, TrainedModel)``.
 
     ``seed_spread``: number of seeds (default ``spec.evaluation.seed_spread``; 0 or 1 skips it).
     ``out_dir``: where winner.json / winner.toml go (default: the spec's folder).
+    ``trial_number``: refit this finished trial (the user's pick) instead of the best.
     """
     from labbench.model import TrainedModel
 
@@ -185,6 +207,11 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     trials = study.get_trials(deepcopy=False)
     candidates = ranked_candidates(trials, direction)
     best, runner_up = pick_winner(trials, direction)
+    if trial_number is not None:          # the user's pick: that trial only, no fallback
+        best, runner_up = picked(trials, int(trial_number), study.study_name), None
+        candidates = [best]
+    maps = not prepared.model.needs_target
+    fit = None
     if best is None:
         raise LabbenchError(f"study {study.study_name}: no complete trial yet, so there is no "
                             "winner; run more trials (or widen the search if every trial failed)")
@@ -210,9 +237,14 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         stage("refit", f"Refitting trial {best.number} on all {len(prepared.train_pos)} training "
               f"rows for {best_epoch} epochs")
         try:
-            pre, weights, target_scaler = refit(prepared, settings, seed=seed,
-                                                scaling=spec.data.scaling, dtype=dtype,
-                                                epochs=best_epoch)
+            if maps:
+                fit = map_winner.refit_map(prepared, settings, seed=seed, scaling=spec.data.scaling,
+                                           dtype=dtype, epochs=best_epoch)
+                pre, weights, target_scaler = fit.preprocessor, fit.record, None
+            else:
+                pre, weights, target_scaler = refit(prepared, settings, seed=seed,
+                                                    scaling=spec.data.scaling, dtype=dtype,
+                                                    epochs=best_epoch)
         except DivergenceError as exc:
             diverged.append((best, str(exc)))
             if attempt + 1 < min(len(candidates), MAX_REFITS):
@@ -242,14 +274,20 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
                          id_column=table.id_column, target_scaler=target_scaler)
 
     stage("holdout", f"Scoring the refit model once on {len(prepared.holdout_pos)} hold-out rows")
-    h_score = holdout_score(model, prepared)
+    h_score = fit.holdout_score if fit is not None else holdout_score(model, prepared)
     comparison = compare_cv_holdout(cv_mean, cv_std, h_score, metric, direction)
     if comparison["differs"]:
         warnings.append(comparison["text"])
 
     spread = None
     lead = lead_inside_spread(cv_mean, None if runner_up is None else runner_up.value, None, metric)
-    if n_seeds >= 2:
+    stable = None
+    if fit is not None:       # maps: seeds are compared by their groups (stability), not a score
+        lead = {**lead, "text": ""}
+    if n_seeds >= 2 and fit is not None:
+        stable = map_winner.checked_stability(prepared, settings, _seed_list(seed, n_seeds), fit,
+                                              best_epoch, dtype, stage, emit, warnings)
+    elif n_seeds >= 2:
         seeds = _seed_list(seed, n_seeds)
         stage("seed_spread", f"Retraining the winner with {n_seeds} seeds × "
               f"{len(prepared.fold_arrays.X_train)} folds in one stack")
@@ -266,11 +304,17 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
     stage("importance", "What moved the score: each setting's share of the score's variation")
     imp = param_importance(study, importance, seed=seed)
 
-    model = dataclasses.replace(model, scores={
-        "cv_mean": cv_mean, "cv_std": cv_std, "fold_scores": fold_scores, "holdout_score": h_score,
-        "seed_spread_mean": None if spread is None else spread["mean"],
-        "seed_spread_std": None if spread is None else spread["std"],
-        "trial_number": int(best.number)})
+    if fit is not None:        # MAPS.md: the scores of a map winner
+        scores = {"cv_mean": cv_mean, "cv_std": cv_std, "fold_scores": fold_scores,
+                  "holdout_score": h_score, "holdout_measures": fit.holdout_measures,
+                  "stability": stable, "trial_number": int(best.number)}
+    else:
+        scores = {"cv_mean": cv_mean, "cv_std": cv_std, "fold_scores": fold_scores,
+                  "holdout_score": h_score,
+                  "seed_spread_mean": None if spread is None else spread["mean"],
+                  "seed_spread_std": None if spread is None else spread["std"],
+                  "trial_number": int(best.number)}
+    model = dataclasses.replace(model, scores=_plain(scores))
     summary = _plain({
         "study_name": study.study_name,
         "task": prepared.task, "target": table.target,
@@ -283,6 +327,10 @@ def finalize(spec: Spec, study: Any, prepared: Prepared | None = None,
         "train_rows": int(len(prepared.train_pos)),
         "cv_vs_holdout": comparison,
         "seed_spread": spread,
+        **({"label": table.label, "measures": best.user_attrs.get("measures"),
+            "holdout_measures": fit.holdout_measures, "stability": stable}
+           if fit is not None else {}),
+        "picked": trial_number is not None,
         "runner_up": None if runner_up is None else {
             "trial_number": int(runner_up.number), "value": float(runner_up.value),
             "lead": lead["lead"], "inside_spread": lead["inside"], "text": lead["text"]},
@@ -335,7 +383,8 @@ def write_winner_files(spec: Spec, summary: Mapping[str, Any], out_dir: Path) ->
     write_text(json_path, mask_password_text(
         json.dumps(_plain(summary), indent=2, allow_nan=False)) + "\n")
     fixed = dataclasses.replace(winner_spec(spec, summary["settings"]), source_path=str(toml_path))
-    header = (f"# The winning settings of search {summary['study_name']!r} (trial "
+    which = "The settings you picked" if summary.get("picked") else "The winning settings"
+    header = (f"# {which} of search {summary['study_name']!r} (trial "
               f"{summary['trial_number']}), every setting fixed.\n"
               f"# CV {summary['metric']} {fmt(summary['cv_mean'])} ± {fmt(summary['cv_std'])}, "
               f"hold-out {fmt(summary['holdout_score'])}. Run it as-is: labbench run winner.toml\n")

@@ -35,7 +35,7 @@ def test_generator_is_deterministic_and_the_committed_files_are_its_output(tmp_p
     assert "invented" in gen.__doc__.lower() and "invented" in (DEMO / "README.md").read_text().lower()
     gen.main([str(tmp_path / "a")])
     gen.main([str(tmp_path / "b")])
-    for name in ("orchard.csv", "bakery.csv"):
+    for name in ("orchard.csv", "bakery.csv", "pumps.csv"):
         fresh = (tmp_path / "a" / name).read_bytes()
         assert fresh == (tmp_path / "b" / name).read_bytes()
         assert fresh == (DEMO / name).read_bytes(), f"{name} differs from the generator's output; rerun it"
@@ -122,3 +122,26 @@ def test_a_small_network_beats_a_linear_model_on_both_sets():
                                          transformer=StandardScaler())
         rmse = mean_squared_error(yh, net.fit(X, y).predict(Xh)) ** 0.5
         assert rmse < 0.7 * ridge and rmse < 0.35 * np.std(yh), (rmse, ridge)
+
+
+def test_pumps_table_has_no_target_and_its_states_are_groups_to_find():
+    # the spec reads as a table without a target, the state beside the rows, never an input
+    d = spec_of("pumps")["data"]
+    assert "target" not in d and d["label"] == "state" and spec_of("pumps")["model"]["family"] == "som"
+    table = load_table(DEMO / d["path"], None, ignore=d["ignore"], label=d["label"])
+    assert table.task == "unsupervised" and table.classes is None and table.n_rows == 1000
+    assert table.features == ("flow_m3h", "head_m", "vibration_mm_s", "bearing_temp_c",
+                              "motor_current_a", "noise_db")
+    assert table.id_column == "reading_id" and table.ids[0] == "R0001"
+    assert sorted(set(table.labels)) == ["blocked inlet", "cavitating", "steady", "worn bearing"]
+    gappy = table.frame.isna().mean()
+    assert list(gappy[gappy > 0].index) == ["bearing_temp_c"] and gappy.max() < 0.02
+    check_folds(table, spec_of("pumps")["evaluation"]["folds"], spec_of("pumps")["evaluation"]["holdout"])
+    # reference: scikit-learn's KMeans (n_init=10) finds the four invented states again
+    # (adjusted_rand_score, sklearn.metrics); a map has real groups to find here
+    from sklearn.cluster import KMeans
+    from sklearn.metrics import adjusted_rand_score
+
+    X = Preprocessor(table.numeric, table.categorical).fit_transform(table.frame)
+    found = KMeans(4, n_init=10, random_state=0).fit_predict(X)
+    assert adjusted_rand_score(table.labels, found) > 0.95

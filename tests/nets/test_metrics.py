@@ -77,7 +77,14 @@ def test_roc_auc_with_many_ties_equals_sklearn(pairs):
 def test_metric_table_directions_tasks_and_defaults():
     assert {m: i.direction for m, i in metrics.METRICS.items()} == {
         "accuracy": "maximize", "balanced_accuracy": "maximize", "log_loss": "minimize", "roc_auc": "maximize",
-        "macro_f1": "maximize", "rmse": "minimize", "mae": "minimize", "r2": "maximize"}
+        "macro_f1": "maximize", "rmse": "minimize", "mae": "minimize", "r2": "maximize",
+        # the map families' (MAPS.md contract): all minimised, for a table without a target
+        "quantisation_error": "minimize", "topographic_error": "minimize",
+        "reconstruction_error": "minimize", "penalised_error": "minimize"}
+    assert [m for m, i in metrics.METRICS.items() if "unsupervised" in i.tasks] == [
+        "quantisation_error", "topographic_error", "reconstruction_error", "penalised_error"]
+    assert all(i.tasks == ("unsupervised",) for m, i in metrics.METRICS.items()
+               if m in metrics.ENGINE_METRICS)
     assert metrics.default_metric("regression") == "rmse"
     assert metrics.default_metric("binary") == "roc_auc"
     assert metrics.default_metric("multiclass") == "balanced_accuracy"
@@ -91,3 +98,12 @@ def test_unknown_or_misapplied_metric_is_a_spec_error():
         metrics.compute("auc", [0, 1], [0.2, 0.8], "binary")
     with pytest.raises(SpecError, match="does not apply to a multiclass task"):
         metrics.compute("roc_auc", [0, 1, 2], np.eye(3), "multiclass")
+
+
+def test_the_map_metrics_are_not_computed_from_an_output():
+    # the map engine computes them on each member's validation rows; compute() must say so
+    for name in ("quantisation_error", "topographic_error", "reconstruction_error", "penalised_error"):
+        with pytest.raises(ValueError, match="computed by the map engine"):
+            metrics.compute(name, np.zeros(3), np.zeros(3), "unsupervised")
+    with pytest.raises(ValueError, match="Family.default_metric"):
+        metrics.default_metric("unsupervised")
