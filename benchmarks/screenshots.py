@@ -5,6 +5,10 @@
 Saves OUT_DIR/{data,search,run}_{1366x768,1920x1080,1366x768@2x}.png. Each size runs in its own
 process (the scale factor must be set before Qt starts); the search runs once, in the first, and
 the other two open the stored search (the run page shows what storage holds, as after a restart).
+
+When the invented pump readings are there (demo_sets/pumps.*, a self-organising map without a
+target), also OUT_DIR/map_{data,search,run,page,front}_<size>.png: a short SOM search of them (in the
+first process; the others open it from storage and draw the map from the bundle it left).
 """
 
 from __future__ import annotations
@@ -70,6 +74,58 @@ def shoot(out: Path, work: Path, tag: str, width: int, height: int, run: bool, t
         print(f"{path} ({window.width()}x{window.height()} logical)")
     window.session.close()
     QApplication.closeAllWindows()
+    if (work / "pumps.toml").exists():
+        shoot_map(app, out, work, tag, width, height, run, trials)
+
+
+def shoot_map(app, out: Path, work: Path, tag: str, width: int, height: int, run: bool, trials: int) -> None:
+    """The map family's pages: the data without a target, its settings, the run, its map."""
+    from PySide6.QtCore import QSettings
+    from PySide6.QtWidgets import QApplication
+
+    from labbench.gui.window import MainWindow
+
+    window = MainWindow(QSettings(str(work / f"settings_map_{tag}.ini"), QSettings.Format.IniFormat))
+    window.quiet_dialogs = True
+    window.resize(width, height - 64)
+    window.show()
+
+    def wait(cond, seconds: float) -> bool:
+        end = time.monotonic() + seconds
+        while time.monotonic() < end:
+            app.processEvents()
+            if cond():
+                return True
+            time.sleep(0.02)
+        return False
+
+    assert window.open_path(str(work / "pumps.toml")), "the pumps spec did not open"
+    wait(lambda: False, 1.0)
+    if run:
+        window.space.trials.setValue(trials)
+        window.space.rows["groups"].set_raw(4)        # four regions: one per pump state, if it learns them
+        assert window.start(), window.problem_label.toolTip()
+        wait(lambda: not window.session.running and window.session.synced, 900)
+    else:
+        window.steps.setCurrentRow(2)
+        wait(lambda: window.session.synced and window.session.book.winner is not None, 60)
+        window.update_map()
+    wait(lambda: False, 3.0)
+    window.session.flush()
+    for row, name in enumerate(("data", "search", "run", "page")):
+        window.steps.setCurrentRow(row)
+        wait(lambda: False, 0.6)
+        path = out / f"map_{name}_{tag}.png"
+        window.grab().save(str(path))
+        print(f"{path} ({window.width()}x{window.height()} logical)")
+    window.maps.right.setCurrentIndex(1)           # the trade-off front beside the groups
+    wait(lambda: bool(window.maps.front.front), 20)
+    wait(lambda: False, 0.6)
+    path = out / f"map_front_{tag}.png"
+    window.grab().save(str(path))
+    print(f"{path} ({window.width()}x{window.height()} logical)")
+    window.session.close()
+    QApplication.closeAllWindows()
 
 
 def main(argv=None) -> int:
@@ -85,8 +141,9 @@ def main(argv=None) -> int:
         shoot(out, Path(work), tag, int(w), int(h), run == "1", args.trials)
         return 0
     work = Path(tempfile.mkdtemp(prefix="labbench-shots-"))
-    for name in ("orchard.csv", "orchard.toml"):
-        shutil.copy(ROOT / "demo_sets" / name, work / name)
+    for name in ("orchard.csv", "orchard.toml", "pumps.csv", "pumps.toml"):
+        if (ROOT / "demo_sets" / name).exists():
+            shutil.copy(ROOT / "demo_sets" / name, work / name)
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     for i, (tag, w, h, scale) in enumerate(SIZES):
         child_env = dict(env)

@@ -101,6 +101,13 @@ class ActionsMixin:
             a.setShortcut(QKeySequence(f"Ctrl+{num}"))
             a.triggered.connect(lambda _c=False, i=i: self.steps.setCurrentRow(i))
             v.addAction(a)
+        # step 4, the winner of a map or group family (there only when such a winner is)
+        self.act_map_step = QAction("Map and groups", self)
+        self.act_map_step.setShortcut(QKeySequence("Ctrl+4"))
+        self.act_map_step.setStatusTip("The map and groups of a map or group family's winner")
+        self.act_map_step.triggered.connect(
+            lambda _c=False: not self.map_step.isHidden() and self.steps.setCurrentRow(3))
+        v.addAction(self.act_map_step)
         from labbench.gui.cost import CostEstimate
         from labbench.gui.notices import make_dock
 

@@ -43,9 +43,14 @@ def sureness_lines(best, summary: Mapping[str, Any] | None, metric: str, running
             lines.append(f"hold-out {num(s['holdout_score'])}"
                          + (f" on {rows} rows kept aside, scored once" if rows else ", scored once"))
         spread = s.get("seed_spread") or {}
+        stability = s.get("stability") or {}
         if spread.get("scores"):
             lines.append(f"across {len(spread['scores'])} seeds {num(spread.get('mean'))} "
                          f"± {num(spread.get('std'))}")
+        elif stability.get("verdict"):      # maps and groups: do other seeds give the same groups?
+            verdict = str(stability["verdict"]).split(":")[0]
+            ari = f", groups agree {num(stability['ari_mean'])}" if stability.get("ari_mean") is not None else ""
+            lines.append(f"across {len(stability.get('seeds') or [])} seeds: {verdict}{ari}")
         else:
             lines.append("seed spread not measured")
     elif running:

@@ -51,7 +51,31 @@ def param_label(name: str) -> str:
     if name == L2_SWITCH:
         return "L2 penalty on"
     info = SETTINGS.get(name)
+    if info is None:            # another family's setting (the maps' grid rows, neighbourhood ...)
+        info = family_setting(name)
     return info.label if info is not None else name.replace("_", " ")
+
+
+def family_setting(name: str):
+    """The ``SettingInfo`` of ``name`` in any registered family's table (network first), or None."""
+    from labbench.families import family_names, get_family
+
+    for fam in family_names():
+        info = get_family(fam).settings.get(name)
+        if info is not None:
+            return info
+    return None
+
+
+def loss_label(family: str | None) -> str:
+    """What a family's per-epoch validation loss is, for the learning-curve axis (MAPS.md: the
+    held-out quantisation error for the prototype families, the held-out reconstruction error for
+    Hebbian features; short, it is an axis title)."""
+    if family in ("som", "competitive", "neural_gas"):
+        return "quantisation error"
+    if family == "hebbian":
+        return "reconstruction error"
+    return "validation loss"
 
 
 def searched_names(book: TrialBook) -> list[str]:

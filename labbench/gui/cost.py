@@ -57,11 +57,15 @@ class CostEstimate(QObject):
             return
         from labbench.search.estimate import calibrate, estimate, shape_from
 
-        target = data.target_box.currentText()
+        target, family = data.target(), w.space.family_name()
+        if (target is None) != (family != "network"):
+            return                      # the data and the family do not go together (yet)
         task = data.effective_task() or "regression"
         frame = data.frame
         kinds = {name: kind.currentText() for name, kind, _use in data._row_widgets()}
-        features = [n for n, _k, use in data._row_widgets() if n != target and use.isChecked()]
+        features = [n for n, _k, use in data._row_widgets()
+                    if n not in (target, data.label()) and use.isChecked()]
+        more = {} if family == "network" else {"family": family}      # another family's own stack
         sp = w.space
         space = sp.space_dict()
         trials = sp.trials.value() if sp.trials_on.isChecked() else None
@@ -69,11 +73,11 @@ class CostEstimate(QObject):
                                             sp.workers.value())
 
         def work():
-            rows = int(frame[target].notna().sum())
+            rows = int(frame[target].notna().sum()) if target is not None else len(frame)
             outputs = int(frame[target].nunique(dropna=True)) if task == "multiclass" else 1
             shape = shape_from(space, rows=rows, inputs=input_width(frame, features, kinds),
                                outputs=outputs, task=task, folds=folds, repeats=repeats,
-                               holdout=holdout, trials=trials, workers=workers)
+                               holdout=holdout, trials=trials, workers=workers, **more)
             return estimate(shape, calibrate(shape))
 
         if not self.worker.submit("estimate", work):

@@ -39,9 +39,10 @@ class ChecksMixin:
             return
         from labbench.data.profile import find_traps, profile_columns
 
-        frame, target = self.frame, self.target_box.currentText()
+        frame, target = self.frame, self.target()         # None: a table without a target
         kinds = {name: kind.currentText() for name, kind, _use in self._row_widgets()}
-        features = [n for n, _k, use in self._row_widgets() if n != target and use.isChecked()]
+        features = [n for n, _k, use in self._row_widgets()
+                    if n not in (target, self.label()) and use.isChecked()]
         task, effective = self.task(), self.effective_task()
         forced = set(self._explicit_kinds) | set(self.keep)
         where = Path(self.path or "table").name
@@ -75,7 +76,7 @@ class ChecksMixin:
         self.columns.resizeColumnToContents(3)
         shown = self.profile.shown
         if shown is None and self.columns.rowCount():
-            shown = self.target_box.currentText()
+            shown = self.target()
         self.profile.show_profile(profiles.get(shown) if shown else None)
 
     def _show_profile_row(self, row: int) -> None:

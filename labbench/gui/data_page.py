@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Mapping
 
 import pandas as pd
-from PySide6.QtCore import QAbstractTableModel, QModelIndex, Qt, QTimer, Signal
-from PySide6.QtGui import QPalette
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QFormLayout, QGroupBox,
                                QHBoxLayout, QHeaderView, QLabel, QLineEdit, QPushButton, QScrollArea, QSplitter,
                                QTableView, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
@@ -15,89 +14,22 @@ from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QFormLay
 from labbench.gui import core, theme
 from labbench.gui.bridge import Background
 from labbench.gui.data_checks import ChecksMixin
+from labbench.gui.data_spec import AUTO, NO_LABEL, NO_TARGET, SpecSectionMixin
+from labbench.gui.data_preview import PREVIEW_ROWS, PreviewModel
 from labbench.gui.profile import ProfileView
 from labbench.gui.traps import TrapList
 
-PREVIEW_ROWS = 200
-AUTO = "auto"
+UNSUPERVISED = "unsupervised"             # Table.task of a table without a target
 CHECK_DELAY_MS = 150     # the profile and the traps are recomputed this long after the last change
 TARGET_SCALINGS = ("standard", "log", "none")
 
 
-class PreviewModel(QAbstractTableModel):
-    """The first rows of the file, headers showing each column's name and kind."""
-
-    def __init__(self, parent=None):
-        super().__init__(parent)
-        self.frame = pd.DataFrame()
-        self.kinds: dict[str, str] = {}
-        self.roles: dict[str, str] = {}
-        self.text: list[list[str]] = []          # the shown cells, made once per file
-        self.names: list[str] = []
-        self.dim = QPalette().color(QPalette.ColorGroup.Disabled, QPalette.ColorRole.Text)
-
-    def set_frame(self, frame: pd.DataFrame, kinds: Mapping[str, str]) -> None:
-        self.beginResetModel()
-        self.frame = frame.head(PREVIEW_ROWS)
-        self.kinds = dict(kinds)
-        self.names = [str(c) for c in self.frame.columns]
-        missing = self.frame.isna().to_numpy()
-        cells = self.frame.astype(str).to_numpy()
-        cells[missing] = ""
-        self.text = cells.tolist()
-        self.endResetModel()
-
-    def widths(self, metrics, limit: int = 260) -> list[int]:
-        """Column widths from the longest shown text (instead of asking every cell)."""
-        out = []
-        for j, name in enumerate(self.names):
-            longest = max((row[j] for row in self.text), key=len, default="")
-            head = max(name, f"{self.kinds.get(name, '')} · ignored", key=len)
-            out.append(min(limit, max(metrics.horizontalAdvance(longest), metrics.horizontalAdvance(head)) + 18))
-        return out
-
-    def set_roles(self, roles: Mapping[str, str]) -> None:
-        self.roles = dict(roles)
-        if self.frame.shape[1]:
-            self.headerDataChanged.emit(Qt.Orientation.Horizontal, 0, self.frame.shape[1] - 1)
-            self.dataChanged.emit(self.index(0, 0), self.index(self.rowCount() - 1, self.columnCount() - 1))
-
-    def rowCount(self, parent=QModelIndex()) -> int:
-        return 0 if parent.isValid() else len(self.frame)
-
-    def columnCount(self, parent=QModelIndex()) -> int:
-        return 0 if parent.isValid() else self.frame.shape[1]
-
-    def data(self, index: QModelIndex, role: int = Qt.ItemDataRole.DisplayRole) -> Any:
-        if not index.isValid():
-            return None
-        if role == Qt.ItemDataRole.DisplayRole:
-            return self.text[index.row()][index.column()]
-        col = self.names[index.column()]
-        if role == Qt.ItemDataRole.TextAlignmentRole and self.kinds.get(col) == "numeric":
-            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-        if role == Qt.ItemDataRole.ForegroundRole and self.roles.get(col) == "ignored":
-            return self.dim
-        if role == Qt.ItemDataRole.ToolTipRole and self.text[index.row()][index.column()] == "":
-            return "missing value"
-        return None
-
-    def headerData(self, section: int, orientation: Qt.Orientation, role: int = Qt.ItemDataRole.DisplayRole):
-        if role != Qt.ItemDataRole.DisplayRole:
-            return None
-        if orientation == Qt.Orientation.Vertical:
-            return str(section + 1)
-        col = str(self.frame.columns[section])
-        role_word = self.roles.get(col, "")
-        tail = {"target": " · target", "ignored": " · ignored"}.get(role_word, "")
-        return f"{col}\n{self.kinds.get(col, '')}{tail}"
-
-
-class DataPage(ChecksMixin, QWidget):
+class DataPage(SpecSectionMixin, ChecksMixin, QWidget):
     """Reads the file with ``labbench.data.read_csv`` and asks the core for kinds and task."""
 
     changed = Signal()
     open_requested = Signal()
+    target_mode = Signal(bool)     # the user chose a target (True) or "no target" (False)
 
     def __init__(self, parent=None):
         super().__init__(parent)
@@ -106,6 +38,7 @@ class DataPage(ChecksMixin, QWidget):
         self.inferred_kinds: dict[str, str] = {}
         self.inferred_task: str | None = None
         self.task_error = ""
+        self.family = "network"        # the space page's model family: it decides the metrics offered
         self.read_warnings: list[str] = []
         self._explicit_kinds: set[str] = set()
         self._loading = False
@@ -156,10 +89,15 @@ class DataPage(ChecksMixin, QWidget):
         side = QWidget()
         side_layout = QVBoxLayout(side)
         side_layout.setContentsMargins(0, 0, 0, 0)
-        goal = QGroupBox("What to predict")
+        goal = QGroupBox("What to learn")
         form = QFormLayout(goal)
         self.target_box = QComboBox()
-        self.target_box.setToolTip("The column the network learns to predict")
+        self.target_box.setToolTip("The column the network learns to predict, or no target: the map and "
+                                   "group families then find groups in the rows")
+        self.label_box = QComboBox()
+        self.label_box.setToolTip("Without a target: a column shown beside the groups (how they line up "
+                                  "with it); never an input, never used in training")
+        self.label_box.setAccessibleName("Label column shown beside the groups")
         self.task_box = QComboBox()
         self.task_box.setToolTip("Regression predicts a number; binary and multiclass predict a class label")
         self.metric_box = QComboBox()
@@ -179,6 +117,7 @@ class DataPage(ChecksMixin, QWidget):
         self.markers_edit.setToolTip("Cells holding one of these words (comma separated) are read as "
                                      "missing, besides empty cells and the usual NA markers")
         form.addRow("Target column", self.target_box)
+        form.addRow("Label column", self.label_box)
         form.addRow("Task", self.task_box)
         form.addRow("Score by", self.metric_box)
         form.addRow("Missing values", self.missing_box)
@@ -224,6 +163,7 @@ class DataPage(ChecksMixin, QWidget):
         outer.addWidget(split, 1)
 
         self.target_box.currentTextChanged.connect(self._target_changed)
+        self.label_box.currentIndexChanged.connect(self._label_changed)
         self.task_box.currentIndexChanged.connect(self._task_changed)
         for box in (self.metric_box, self.missing_box, self.scaling_box, self.target_scaling_box):
             box.currentIndexChanged.connect(self._emit)
@@ -259,8 +199,13 @@ class DataPage(ChecksMixin, QWidget):
             self.file_label.setText(f"<b>{Path(path).name}</b> — {len(frame):,} rows × {frame.shape[1]} columns"
                                     f" <span style='color:gray'>({self.path})</span>")
             self.target_box.clear()
+            self.target_box.addItem(NO_TARGET)
             self.target_box.addItems([str(c) for c in frame.columns])
-            self.target_box.setCurrentIndex(frame.shape[1] - 1)
+            self.target_box.setCurrentIndex(frame.shape[1])
+            self.label_box.clear()
+            self.label_box.addItem(NO_LABEL)
+            self.label_box.addItems([str(c) for c in frame.columns])
+            self.label_box.setEnabled(False)
             self._fill_columns([])
         finally:
             self._loading = False
@@ -298,28 +243,38 @@ class DataPage(ChecksMixin, QWidget):
             yield (self.columns.item(row, 0).text(), self.columns.cellWidget(row, 1),
                    self.columns.cellWidget(row, 2))
 
+    def target(self) -> str | None:
+        """The target column, or None for a table without a target."""
+        text = self.target_box.currentText()
+        return None if text in ("", NO_TARGET) else text
+
+    def label(self) -> str | None:
+        """The label column shown beside the groups (no target only), or None."""
+        text = self.label_box.currentText()
+        return None if self.target() is not None or text in ("", NO_LABEL) else text
+
     def _sync_roles(self) -> None:
-        target = self.target_box.currentText()
+        target, label = self.target(), self.label()
         roles = {}
         for name, kind, use in self._row_widgets():
-            is_target = name == target
-            use.setEnabled(not is_target)
-            kind.setEnabled(not is_target)
-            roles[name] = "target" if is_target else ("" if use.isChecked() else "ignored")
+            role = "target" if name == target else ("label" if name == label else "")
+            use.setEnabled(not role)
+            kind.setEnabled(not role)
+            roles[name] = role or ("" if use.isChecked() else "ignored")
         self.preview_model.set_roles(roles)
         if not getattr(self, "_batch", False):     # set_data shows the notes once, at its end
             self._show_column_notes(target, [n for n, r in roles.items() if r == ""])
         self.target_scaling_box.setEnabled(self.effective_task() in (None, "regression"))
         self._check_timer.start()
 
-    def _show_column_notes(self, target: str, features: list[str]) -> None:
+    def _show_column_notes(self, target: str | None, features: list[str]) -> None:
         """The notices ``labbench run`` prints for these columns (one shared rule in the core)."""
         from labbench.data import screen_columns
         from labbench.errors import LabbenchError
 
         notes = list(self.read_warnings)
-        if self.frame is not None and features and target in self.frame.columns:
-            rows = self.frame[self.frame[target].notna()]
+        if self.frame is not None and features and (target is None or target in self.frame.columns):
+            rows = self.frame if target is None else self.frame[self.frame[target].notna()]
             try:
                 notes += screen_columns(rows, features, Path(self.path or "").name,
                                         forced=self._explicit_kinds | set(self.keep))[1]
@@ -328,27 +283,54 @@ class DataPage(ChecksMixin, QWidget):
         self.column_notes.setText("\n".join(notes))
 
     # ------------------------------------------------------------------ choices
-    def _target_changed(self, target: str) -> None:
-        if self._loading or self.frame is None or not target:
+    def _target_changed(self, text: str) -> None:
+        if self._loading or self.frame is None or not text:
             return
         from labbench.data import infer_task
 
-        try:
-            self.inferred_task, self.task_error = infer_task(self.frame[target]), ""
-        except Exception as exc:  # the core's one-line DataError (a constant target, ...)
-            self.inferred_task, self.task_error = None, str(exc)
+        target = self.target()
+        if target is None:      # no target: the rows are grouped, nothing is predicted
+            self.inferred_task, self.task_error = UNSUPERVISED, ""
+        else:
+            try:
+                self.inferred_task, self.task_error = infer_task(self.frame[target]), ""
+            except Exception as exc:  # the core's one-line DataError (a constant target, ...)
+                self.inferred_task, self.task_error = None, str(exc)
         self._loading = True
         keep = self.task_box.currentData()
         self.task_box.clear()
         self.task_box.addItem(f"{AUTO} ({self.inferred_task or 'unknown'})", AUTO)
-        for task in ("regression", "binary", "multiclass"):
-            self.task_box.addItem(task, task)
+        if target is not None:
+            for task in ("regression", "binary", "multiclass"):
+                self.task_box.addItem(task, task)
         i = self.task_box.findData(keep) if keep else 0
         self.task_box.setCurrentIndex(max(i, 0))
+        self.task_box.setEnabled(target is not None)
+        self.label_box.setEnabled(target is None)
         self._loading = False
+        if not getattr(self, "_batch", False):
+            self.target_mode.emit(target is not None)
         self.task_note.setText(self.task_error)
         self._sync_roles()
         self._task_changed()
+
+    def set_family(self, name: str) -> None:
+        """The model family changed on the space page: offer its metrics."""
+        if name != self.family:
+            self.family = name
+            if self.frame is not None:
+                self._task_changed()
+
+    def set_target_mode(self, has_target: bool) -> None:
+        """Choose "no target", or (from "no target") the last column as the target."""
+        if self.frame is None or (self.target() is not None) == has_target:
+            return
+        self.target_box.setCurrentIndex(self.target_box.count() - 1 if has_target else 0)
+
+    def _label_changed(self, *_a) -> None:
+        if not self._loading and self.frame is not None:
+            self._sync_roles()
+            self._emit()
 
     def task(self) -> str | None:
         data = self.task_box.currentData()
@@ -365,9 +347,12 @@ class DataPage(ChecksMixin, QWidget):
         self._loading = True
         self.metric_box.clear()
         try:
-            default = core.default_metric(task) if task else None
-            names = core.metrics_for(task)
-        except ImportError:     # the metric table is not there yet
+            from labbench.families import get_family
+
+            fam = get_family(self.family)
+            default = fam.default_metric(task) if task else None
+            names = list(fam.metrics(task)) if task else core.metrics_for(None)
+        except (ImportError, KeyError, ValueError, LookupError):   # not in this build's metric table
             default, names = None, []
         self.metric_box.addItem(f"{AUTO} ({core.metric_label(default) if default else '—'})", AUTO)
         for n in names:
@@ -385,87 +370,3 @@ class DataPage(ChecksMixin, QWidget):
     def _emit(self, *_a) -> None:
         if not self._loading and not getattr(self, "_batch", False):
             self.changed.emit()
-
-    # ------------------------------------------------------------------ spec
-    def metric(self) -> str | None:
-        data = self.metric_box.currentData()
-        return None if data in (None, AUTO) else str(data)
-
-    def data_dict(self) -> dict[str, Any] | None:
-        """The [data] section (path absolute), or None before a file is loaded."""
-        if self.frame is None or not self.path:
-            return None
-        target = self.target_box.currentText()
-        ignore, kinds = [], {}
-        for name, kind, use in self._row_widgets():
-            if name == target:
-                continue
-            if not use.isChecked():
-                ignore.append(name)
-            elif kind.currentText() != self.inferred_kinds.get(name) or name in self._explicit_kinds:
-                kinds[name] = kind.currentText()
-        d: dict[str, Any] = {"path": self.path, "target": target}
-        if ignore:
-            d["ignore"] = ignore
-        if self.task():
-            d["task"] = self.task()
-        if kinds:
-            d["kinds"] = kinds
-        d["missing"] = self.missing_box.currentText()
-        d["scaling"] = self.scaling_box.currentText()
-        d["target_scaling"] = self.target_scaling_box.currentText()
-        if self.markers:
-            d["missing_markers"] = list(self.markers)
-        if self.thousands is not None:
-            d["thousands"] = self.thousands
-        if self.decimal is not None:
-            d["decimal"] = self.decimal
-        keep = [c for c in self.keep if c not in ignore and c != target]
-        if keep:
-            d["keep"] = keep
-        return d
-
-    def set_from_spec(self, data, metric: str | None) -> None:
-        """Show a loaded spec's [data] (the file is read again; DataError propagates)."""
-        self.set_data({"path": data.path, "target": data.target, "ignore": list(data.ignore),
-                       "task": data.task, "kinds": dict(data.kinds), "missing": data.missing,
-                       "scaling": data.scaling, "target_scaling": data.target_scaling,
-                       "missing_markers": list(data.missing_markers), "thousands": data.thousands,
-                       "decimal": data.decimal, "keep": list(data.keep)}, metric)
-
-    def set_data(self, d: Mapping[str, Any], metric: str | None = None) -> None:
-        """Show a [data] section (a dict with the spec's keys; the file is read again)."""
-        self._batch = True
-        try:
-            self._set_data(d, metric)
-        finally:
-            self._batch = False
-        self._sync_roles()
-        self._emit()
-
-    def _set_data(self, d: Mapping[str, Any], metric: str | None) -> None:
-        markers = list(d.get("missing_markers") or ())
-        same_file = (self.frame is not None and self.path == str(Path(d["path"]).resolve())
-                     and (markers, d.get("thousands"), d.get("decimal"))
-                     == (self.markers, self.thousands, self.decimal))
-        if not same_file:       # read again only when the file or how it is read changed
-            self.load(d["path"], missing_markers=tuple(markers), thousands=d.get("thousands"),
-                      decimal=d.get("decimal"))
-        kinds = dict(d.get("kinds") or {})
-        self._explicit_kinds = set(kinds)
-        self.keep = list(d.get("keep") or ())
-        self._loading = True
-        self.target_box.setCurrentText(d["target"])
-        self._loading = False
-        self._target_changed(d["target"])
-        self._loading = True
-        self._fill_columns(list(d.get("ignore") or ()), kinds)
-        self.task_box.setCurrentIndex(max(self.task_box.findData(d.get("task") or AUTO), 0))
-        self.missing_box.setCurrentText(d.get("missing", "impute"))
-        self.scaling_box.setCurrentText(d.get("scaling", "standard"))
-        self.target_scaling_box.setCurrentText(d.get("target_scaling", "standard"))
-        self._loading = False
-        self._task_changed()
-        self._loading = True
-        self.metric_box.setCurrentIndex(max(self.metric_box.findData(metric or AUTO), 0))
-        self._loading = False

@@ -60,6 +60,10 @@ class FilesMixin:
         finally:
             self.unsetCursor()
         self.space.use_default_space()      # a new table starts from a searched space, as the CLI does
+        from labbench.families import get_family
+
+        self.data.set_family(self.space.family_name())
+        self.data.set_target_mode(bool(getattr(get_family(self.space.family_name()), "needs_target", True)))
         self.spec_path = None
         self.dirty = True
         self.steps.setCurrentRow(0)
@@ -72,6 +76,7 @@ class FilesMixin:
         from labbench.search.storage import resolve_url
 
         spec = load_spec(path)
+        self.data.family = getattr(spec.space, "family", "network") or "network"
         self.data.set_from_spec(spec.data, spec.evaluation.metric)
         self.space.set_from_spec(spec)
         self.spec_path = str(Path(path).resolve())

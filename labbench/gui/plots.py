@@ -91,6 +91,11 @@ class CurvesPanel(Panel):
         self._view = None
         self._drawn = None
 
+    def set_loss_label(self, text: str) -> None:
+        """The left axis: what the curves are (the family's held-out loss)."""
+        if self.plot.getAxis("left").labelText != text:
+            self.plot.setLabel("left", text)
+
     def reset(self) -> None:
         self._band_key = self._view = self._drawn = None
         for line in self.lines.values():

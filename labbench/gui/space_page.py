@@ -3,86 +3,28 @@
 from __future__ import annotations
 
 import os
-import re
 from typing import Any
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtGui import QUndoCommand, QUndoStack
+from PySide6.QtGui import QUndoStack
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGridLayout,
-                               QGroupBox, QHBoxLayout, QLabel, QLineEdit, QScrollArea, QSizePolicy,
-                               QSpinBox, QVBoxLayout, QWidget)
+                               QGroupBox, QHBoxLayout, QLabel, QLineEdit, QScrollArea, QSpinBox,
+                               QVBoxLayout, QWidget)
 
+from labbench.errors import LabbenchError
+from labbench.families import DEFAULT as DEFAULT_FAMILY
+from labbench.families import family_names, get_family
 from labbench.gui.setting_row import SettingRow
+from labbench.gui.space_parts import FAMILY_TIP, TIPS, SpaceEdit, error_label, family_label, key_of  # noqa: F401
 from labbench.gui.wording import plain
-
-KEY = re.compile(r"(?:^|: )(data|evaluation|search|space)\.([A-Za-z_0-9]+)")
-
-# one sentence each (the tooltips of the evaluation and search settings)
-TIPS = {
-    "folds": "Each trial trains this many models, each scored on the rows the others trained on.",
-    "repeats": "Run the whole fold split this many times with different shuffles and average them.",
-    "holdout": "Share of rows locked away before the search and used once, to check the winner.",
-    "seed": "Fixes the hold-out split, the folds and the sampler so a search can be repeated.",
-    "seed_spread": "Retrain the winner with this many seeds to show how much its score moves (0 skips it).",
-    "trials": "Stop after this many trials have been added by this run.",
-    "minutes": "Stop starting new trials after this many minutes.",
-    "sampler": "How the next trial's settings are picked: tpe learns from earlier trials, random does not.",
-    "pruner": "Stops trials early whose validation loss lags behind earlier trials at the same epoch.",
-    "workers": "Trials trained at the same time in separate processes (one per core is plenty).",
-    "storage": "Database the trials are kept in; empty means a SQLite file next to the spec file.",
-    "name": "Name of the search inside the storage; empty means the spec file's name.",
-}
-
-
-def error_label() -> QLabel:
-    """An inline message line whose space is always kept: a message appearing moves nothing."""
-    err = QLabel("")
-    err.setObjectName("errorText")
-    err.setWordWrap(False)
-    err.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
-    err.setFixedHeight(err.fontMetrics().lineSpacing() + 2)
-    return err
-
-
-class SpaceEdit(QUndoCommand):
-    """One change of one network setting; consecutive edits of the same setting merge."""
-
-    def __init__(self, page: "SpacePage", name: str, before, after):
-        super().__init__(f"change {page.rows[name].info.label.lower()}")
-        self.page, self.name, self.before, self.after = page, name, before, after
-        self.first = True
-
-    def id(self) -> int:
-        return 7301
-
-    def mergeWith(self, other) -> bool:
-        if not isinstance(other, SpaceEdit) or other.name != self.name:
-            return False
-        self.after = other.after
-        return True
-
-    def redo(self) -> None:
-        if self.first:          # the editor already shows it
-            self.first = False
-            return
-        self.page._put(self.name, self.after)
-
-    def undo(self) -> None:
-        self.page._put(self.name, self.before)
-
-
-def key_of(message: str) -> tuple[str, str] | None:
-    """("space", "learning_rate") from a SpecError text naming the dotted key."""
-    m = KEY.search(message)
-    return (m.group(1), m.group(2)) if m else None
 
 
 class SpacePage(QWidget):
     changed = Signal()
+    family_changed = Signal(str)     # the user picked another model family
 
     def __init__(self, parent=None):
         super().__init__(parent)
-        from labbench.search.space import SETTINGS
         from labbench.search.spec import PRUNERS, SAMPLERS
 
         outer = QVBoxLayout(self)
@@ -101,25 +43,31 @@ class SpacePage(QWidget):
         self.banner.hide()
         page.addWidget(self.banner)
 
-        net = QGroupBox("Network settings")
-        grid = QGridLayout(net)
-        grid.setColumnStretch(1, 1)
-        self.rows: dict[str, SettingRow] = {}
+        fam = QHBoxLayout()
+        fam_label = QLabel("Model family")
+        self.family = QComboBox()
+        self.family.setAccessibleName("Model family")
+        for name in family_names():
+            self.family.addItem(family_label(name), name)
+        self.family.setToolTip(FAMILY_TIP)
+        fam_label.setToolTip(FAMILY_TIP)
+        fam_label.setBuddy(self.family)
+        self.family_note = QLabel("")
+        self.family_note.setObjectName("panelHint")
+        self.family_note.setWordWrap(True)
+        fam.addWidget(fam_label)
+        fam.addWidget(self.family)
+        fam.addWidget(self.family_note, 1)
+        page.addLayout(fam)
         self.errors: dict[str, QLabel] = {}
-        for i, (name, info) in enumerate(SETTINGS.items()):
-            label = QLabel(info.label)
-            label.setToolTip(info.help)
-            row = SettingRow(info)
-            row.setToolTip(info.help)
-            label.setBuddy(row.mode)
-            err = error_label()
-            grid.addWidget(label, 2 * i, 0, Qt.AlignmentFlag.AlignTop)
-            grid.addWidget(row, 2 * i, 1)
-            grid.addWidget(err, 2 * i + 1, 1)
-            row.changed.connect(lambda name=name: self._row_changed(name))
-            self.rows[name] = row
-            self.errors[f"space.{name}"] = err
-        page.addWidget(net)
+        self.rows: dict[str, SettingRow] = {}
+        self.net = QGroupBox("Network settings")
+        self.grid = QGridLayout(self.net)
+        self.grid.setColumnStretch(1, 1)
+        self._family = ""
+        self._build_rows(DEFAULT_FAMILY)
+        self.family.currentIndexChanged.connect(self._family_chosen)
+        page.addWidget(self.net)
 
         lower = QHBoxLayout()
         ev = QGroupBox("How each trial is scored")
@@ -192,32 +140,104 @@ class SpacePage(QWidget):
         """Start from the spec's own defaults (labbench.search.spec), not from guesses here."""
         from labbench.search.spec import EvaluationSpec, SearchSettings
 
-        from labbench.search.defaults import default_space_dict
-
         self._quiet = True
         try:
             self._show_run_fields(EvaluationSpec(), SearchSettings())
-            for name, raw in default_space_dict().items():
-                if name in self.rows:
-                    self.rows[name].set_raw(raw)
+            self._show_space(self.default_space_dict())
         finally:
             self._quiet = False
 
-    def use_default_space(self) -> None:
-        """A new table: the searched space the command line uses for a spec without [space]."""
-        from labbench.search.defaults import default_space_dict
+    def default_space_dict(self, family: str | None = None) -> dict[str, Any]:
+        """The searched space the command line gives a spec of this family without [space]."""
         from labbench.search.space import SearchSpace
 
+        name = family or self.family_name()
+        if name == DEFAULT_FAMILY:
+            from labbench.search.defaults import default_space_dict
+
+            raw = default_space_dict()
+        else:
+            raw = dict(get_family(name).default_space)
+        try:
+            return SearchSpace.from_dict(raw, family=name).to_dict()
+        except LabbenchError:
+            return dict(raw)
+
+    def _show_space(self, raw: dict[str, Any]) -> None:
+        for name, value in raw.items():
+            if name in self.rows:
+                self.rows[name].set_raw(value)
+
+    def use_default_space(self) -> None:
+        """A new table: the searched space the command line uses for a spec without [space]."""
         self._quiet = True
         try:
-            for name, raw in SearchSpace.from_dict(default_space_dict()).to_dict().items():
-                if name in self.rows:
-                    self.rows[name].set_raw(raw)
+            self._show_space(self.default_space_dict())
         finally:
             self._quiet = False
         self._last = self.space_dict()
         self.undo.clear()
         self.changed.emit()
+
+    # ------------------------------------------------------------------ the model family
+    def family_name(self) -> str:
+        return self._family or DEFAULT_FAMILY
+
+    def _build_rows(self, name: str) -> None:
+        """One editor row per setting of the family's table (``Family.settings``)."""
+        fam = get_family(name)
+        while self.grid.count():
+            widget = self.grid.takeAt(0).widget()
+            if widget is not None:
+                widget.setParent(None)
+                widget.deleteLater()
+        for key in [k for k in self.errors if k.startswith("space.")]:
+            del self.errors[key]
+        self.rows = {}
+        for i, (key, info) in enumerate(fam.settings.items()):
+            label = QLabel(info.label)
+            label.setToolTip(info.help)
+            row = SettingRow(info)
+            row.setToolTip(info.help)
+            label.setBuddy(row.mode)
+            err = error_label()
+            self.grid.addWidget(label, 2 * i, 0, Qt.AlignmentFlag.AlignTop)
+            self.grid.addWidget(row, 2 * i, 1)
+            self.grid.addWidget(err, 2 * i + 1, 1)
+            row.changed.connect(lambda key=key: self._row_changed(key))
+            self.rows[key] = row
+            self.errors[f"space.{key}"] = err
+        self._family = name
+        self.net.setTitle(f"{fam.label or name} settings" if name != DEFAULT_FAMILY else "Network settings")
+        needs = getattr(fam, "needs_target", True)
+        self.family_note.setText("predicts the target column" if needs else
+                                 "learns without a target: it groups the rows (the Data page's target is "
+                                 "set to none; a label column may be shown beside the groups)")
+        i = self.family.findData(name)
+        if i >= 0 and self.family.currentIndex() != i:
+            self.family.blockSignals(True)
+            self.family.setCurrentIndex(i)
+            self.family.blockSignals(False)
+
+    def set_family(self, name: str, *, space: dict[str, Any] | None = None) -> None:
+        """Show ``name``'s settings, at ``space`` (spec shape) or at the family's default space."""
+        if name != self._family:
+            self._build_rows(name)
+        self._quiet = True
+        try:
+            self._show_space(space if space is not None else self.default_space_dict(name))
+        finally:
+            self._quiet = False
+        self._last = self.space_dict()
+        self.undo.clear()
+
+    def _family_chosen(self, _index: int) -> None:
+        name = self.family.currentData()
+        if not name or name == self._family:
+            return
+        self.set_family(str(name))
+        self.family_changed.emit(str(name))
+        self._changed()
 
     def _row_changed(self, name: str) -> None:
         if self._quiet:
@@ -286,6 +306,10 @@ class SpacePage(QWidget):
     def space_dict(self) -> dict[str, Any]:
         return {name: row.raw() for name, row in self.rows.items()}
 
+    def model_dict(self) -> dict[str, Any] | None:
+        """The [model] section: None for the network (a network spec reads as it always did)."""
+        return None if self.family_name() == DEFAULT_FAMILY else {"family": self.family_name()}
+
     def evaluation_dict(self, metric: str | None) -> dict[str, Any]:
         d: dict[str, Any] = {"folds": self.folds.value(), "repeats": self.repeats.value(),
                              "holdout": round(self.holdout.value(), 4), "seed": self.seed.value(),
@@ -309,6 +333,9 @@ class SpacePage(QWidget):
         return d
 
     def set_from_spec(self, spec) -> None:
+        family = getattr(spec.space, "family", DEFAULT_FAMILY) or DEFAULT_FAMILY
+        if family != self._family:
+            self._build_rows(family)
         self._quiet = True
         try:
             for name, raw in spec.space.to_dict().items():
@@ -329,14 +356,15 @@ class SpacePage(QWidget):
 
         problems: dict[str, str] = {}
         raw = self.space_dict()
+        family = self.family_name()
         for name, value in raw.items():
             try:
-                SearchSpace.from_dict({name: value})
+                SearchSpace.from_dict({name: value}, family=family)
             except SpecError as exc:
                 problems[f"space.{name}"] = plain(str(exc))     # the window's words everywhere
         if not problems:
             try:
-                SearchSpace.from_dict(raw)
+                SearchSpace.from_dict(raw, family=family)
             except SpecError as exc:
                 k = key_of(str(exc))
                 problems[f"{k[0]}.{k[1]}" if k else "space"] = plain(str(exc))

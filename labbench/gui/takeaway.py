@@ -32,17 +32,19 @@ def has(name: str) -> bool:
     return api is not None and callable(getattr(api, name, None))
 
 
-def space_text(settings: dict, *, trial: int | None = None, score: str = "") -> str:
+def space_text(settings: dict, *, trial: int | None = None, score: str = "", family: str = "network") -> str:
     """The winning settings as a ``[space]`` section ``labbench run`` reads as is: every setting
-    fixed, in the spec's own keys (hidden_layers / hidden_units, not the resolved list)."""
+    fixed, in the spec's own keys (hidden_layers / hidden_units, not the resolved list); another
+    family's settings come with their ``[model]`` line."""
     import tomlkit
 
     from labbench.search.space import SearchSpace
 
-    fixed = SearchSpace.default().fixed_at(settings).to_dict()
+    fixed = SearchSpace.default(family).fixed_at(settings).to_dict()
     head = "# the winning settings" + (f" (trial {trial}{', ' + score if score else ''})" if trial is not None
                                        else "") + "; every setting fixed\n"
-    return head + tomlkit.dumps({"space": fixed})
+    doc = {"model": {"family": family}, "space": fixed} if family != "network" else {"space": fixed}
+    return head + tomlkit.dumps(doc)
 
 
 class Takeaway:
@@ -135,7 +137,9 @@ class Takeaway:
         if not settings:
             return None
         number = (summary or {}).get("trial_number", best.number if best else None)
-        text = space_text(dict(settings), trial=number)
+        spec = self.session.spec
+        family = getattr(spec.space, "family", "network") if spec is not None else "network"
+        text = space_text(dict(settings), trial=number, family=family or "network")
         QGuiApplication.clipboard().setText(text)
         self._status("The winning settings are on the clipboard")
         return text
@@ -157,7 +161,9 @@ class Takeaway:
             return []
         written: list[str] = []
         self.session.flush()
-        for panel in self.window.watch.panels:
+        maps = getattr(self.window, "maps", None)
+        extra = maps.visible_panels() if maps is not None and maps.data is not None else []
+        for panel in list(self.window.watch.panels) + extra:      # a map winner: its pictures too
             stem = panel.title.lower().replace(" ", "_")
             for suffix in (".png", ".svg"):
                 p = self._guard("Save pictures", lambda: panel.export(Path(folder) / f"{stem}{suffix}"))

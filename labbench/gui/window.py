@@ -15,6 +15,8 @@ from labbench.gui import theme
 from labbench.gui.actions import STEPS, ActionsMixin
 from labbench.gui.data_page import DataPage
 from labbench.gui.files import FilesMixin
+from labbench.gui.map_page import MapPage
+from labbench.gui.map_winner import MapWinnerMixin
 from labbench.gui.session import SearchSession
 from labbench.gui.space_page import SpacePage, key_of
 from labbench.gui.takeaway import Takeaway
@@ -25,7 +27,7 @@ log = logging.getLogger("labbench.gui")
 HIDDEN_STOP_MS = 30_000    # a closed window waits this long for its search to stop, then ends it
 
 
-class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
+class MainWindow(ActionsMixin, FilesMixin, MapWinnerMixin, QMainWindow):
     """Steps on the left (data, search, run and watch); menus and tool bar in ``actions``,
     opening and saving in ``files``, the running search in ``session``."""
 
@@ -45,6 +47,7 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         self.watch = WatchPage()
         self.session = SearchSession(self.watch, self)
         self.take = Takeaway(self)
+        self.maps = MapPage()
 
         self.steps = QListWidget()
         self.steps.setObjectName("stepList")
@@ -57,6 +60,12 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
             item.setSizeHint(QSize(178, 40))
             self.steps.addItem(item)
             self.stack.addWidget(page)
+        # step 4 shows the winner of a map or group family; hidden for the networks
+        self.map_step = QListWidgetItem(theme.icon("step_map"), "4  Map and groups")
+        self.map_step.setSizeHint(QSize(178, 40))
+        self.steps.addItem(self.map_step)
+        self.stack.addWidget(self.maps)
+        self.map_step.setHidden(True)
         self.steps.currentRowChanged.connect(self.stack.setCurrentIndex)
         central = QWidget()
         lay = QHBoxLayout(central)
@@ -77,12 +86,18 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         self._make_menus()
         self.data.open_requested.connect(self.open_csv_dialog)
         self.data.changed.connect(self._edited)
+        self.data.target_mode.connect(self._target_mode)
+        self.space.family_changed.connect(self._family_changed)
         self.space.changed.connect(self._edited)
         self.watch.start_button.clicked.connect(self.act_start.trigger)
         self.watch.stop_button.clicked.connect(self.act_stop.trigger)
         self.session.changed.connect(self.update_actions)
         self.session.failed.connect(self._search_failed)
         self.session.finished.connect(self._search_finished)
+        self.session.changed.connect(self.update_map)
+        self.space.family_changed.connect(lambda _name: self.update_map())
+        self.data.changed.connect(self.update_map)
+        self._connect_maps()
         self._restore()
         self.validate()
         self.update_actions()
@@ -94,6 +109,28 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         self.validate()
         self._title()
 
+    def _target_mode(self, has_target: bool) -> None:
+        """A target chosen or dropped on the Data page: the family follows when it must (a network
+        needs a target; the map and group families learn without one)."""
+        from labbench.families import family_names, get_family
+
+        if get_family(self.space.family_name()).needs_target == has_target:
+            return
+        want = "network" if has_target else next(
+            (n for n in family_names() if not getattr(get_family(n), "needs_target", True)), None)
+        if want is None:
+            return
+        self.space.set_family(want)
+        self.data.set_family(want)
+        self.statusBar().showMessage(f"Model family: {get_family(want).label or want}", 6000)
+
+    def _family_changed(self, name: str) -> None:
+        """Another family picked on the Search page: the Data page's target follows when it must."""
+        from labbench.families import get_family
+
+        self.data.set_family(name)
+        self.data.set_target_mode(bool(getattr(get_family(name), "needs_target", True)))
+
     def _title(self) -> None:
         name = Path(self.spec_path).name if self.spec_path else (
             Path(self.data.path).name if self.data.path else "new experiment")
@@ -103,8 +140,12 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
         data = self.data.data_dict()
         if data is None:
             return None
-        return {"data": data, "evaluation": self.space.evaluation_dict(self.data.metric()),
-                "search": self.space.search_dict(), "space": self.space.space_dict()}
+        d = {"data": data, "evaluation": self.space.evaluation_dict(self.data.metric()),
+             "search": self.space.search_dict(), "space": self.space.space_dict()}
+        model = self.space.model_dict()
+        if model is not None:
+            d["model"] = model
+        return d
 
     def current_spec(self):
         """The Spec the window shows (raises the core's SpecError), or None without data."""
@@ -180,6 +221,9 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
             self.close()
             return
         book = self.session.book
+        self.update_map()
+        if self.maps.data is not None and self.steps.currentRow() == 2:
+            self.steps.setCurrentRow(3)       # the search of a map family ended: its map
         if book.ended is not None:
             words = {"budget": "Search finished", "time": "Time limit reached",
                      "cancelled": "Search stopped; start again to continue it",
@@ -245,6 +289,8 @@ class MainWindow(ActionsMixin, FilesMixin, QMainWindow):
             return
         if not self._close_when_stopped:
             self.remember_layout()
+        if self._front_reader is not None:
+            self._front_reader.close()
         self.session.close()
         super().closeEvent(event)
 

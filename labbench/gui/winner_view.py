@@ -23,6 +23,15 @@ def winner_html(summary: Mapping[str, Any], metric: str = "", files: Sequence[st
     runner = summary.get("runner_up") or {}
     if runner.get("text"):
         parts.append(f"<p style='margin:2px 0 0 0'>{e(runner['text'])}</p>")
+    stability = summary.get("stability") or (summary.get("scores") or {}).get("stability") or {}
+    if stability.get("message") or stability.get("verdict"):
+        # maps and groups: do other seeds give the same groups? (labbench.maps.stability)
+        words = str(stability.get("verdict") or "").capitalize()
+        message = str(stability.get("message") or "")
+        if message in (summary.get("warnings") or []):
+            message = ""            # said in full among the warnings below
+        parts.append(f"<p style='margin:2px 0 0 0'><b>Groups across seeds: {e(words)}</b>"
+                     f"{': ' + e(message) if message else ''}</p>")
     for w in summary.get("warnings") or []:
         parts.append(f"<p style='margin:2px 0 0 0'><b>⚠ {e(w)}</b></p>")
     if files:       # the hand-off files the search left, as labbench run leaves them

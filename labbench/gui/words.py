@@ -48,6 +48,8 @@ def settings_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None
         from labbench.gui.core import param_label
 
         return ", ".join(f"{param_label(k).lower()} {num(v)}" for k, v in (params or {}).items())
+    if "hidden" not in s and "learning_rate" not in s or "unit_cost" in s:
+        return family_words(s, params)
     parts = []
     if "hidden" in s:
         parts.append(hidden_words(s["hidden"]))
@@ -64,6 +66,38 @@ def settings_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None
     l2 = s.get("l2")
     if l2:
         parts.append(f"L2 penalty {num(l2, 2)}")
+    if "epochs" in s:
+        parts.append(f"{num(s['epochs'])} epochs")
+    return ", ".join(parts)
+
+
+#: a map family's settings always named (its shape); the others only when the search varied them
+SHAPE_SETTINGS = ()
+
+
+def family_words(settings: Mapping[str, Any], params: Mapping[str, Any] | None = None) -> str:
+    """Another family's settings in words, by their table's labels: its shape ("5 × 9 hexagonal
+    grid", "4 groups", "8 units"), then the settings the search varied, then the epochs."""
+    from labbench.gui.core import param_label
+
+    s = dict(settings)
+    searched = set(params or ())
+    parts = []
+    if "rows" in s and "cols" in s:
+        parts.append(f"{num(s.pop('rows'))} × {num(s.pop('cols'))} {s.pop('topology', '')} grid".replace("  ", " "))
+        groups = s.pop("groups", 0)
+        if groups or "groups" in searched:
+            parts.append(f"{num(groups)} groups" if groups else "no groups")
+    if "units" in s:
+        parts.append(f"{num(s.pop('units'))} units")
+    if "components" in s:
+        rule = {"oja": "Oja's rule", "sanger": "Sanger's rule", "hebb": "the plain Hebbian rule"}.get(
+            str(s.pop("rule", "")), "")
+        parts.append(f"{num(s.pop('components'))} component(s)" + (f" by {rule}" if rule else ""))
+    for key, value in s.items():
+        if key == "epochs" or (key not in SHAPE_SETTINGS and key not in searched):
+            continue
+        parts.append(f"{param_label(key).lower()} {num(value, 3) if isinstance(value, float) else num(value)}")
     if "epochs" in s:
         parts.append(f"{num(s['epochs'])} epochs")
     return ", ".join(parts)
