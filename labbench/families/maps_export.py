@@ -218,20 +218,13 @@ def output_table(record: Any, scaled: np.ndarray) -> dict[str, np.ndarray]:
 # -- the map's grid (U-matrix) --------------------------------------------------------------------
 
 def grid_neighbours(shape: tuple[int, int], topology: str) -> list[np.ndarray]:
-    """For each unit of a map, the indices of its grid neighbours: rectangular, the 8 units at
-    Chebyshev distance 1; hexagonal, the 6 at distance 1 (the neighbourhood of the topographic
-    error, MAPS.md)."""
-    rows, cols = shape
-    k = rows * cols
-    if topology == "hexagonal":
-        pos = grid_positions(rows, cols, topology)
-        d = np.sqrt(((pos[:, None, :] - pos[None, :, :]) ** 2).sum(axis=2))
-        near = (d > 0) & (d < 1.0 + 1e-9)
-    else:
-        r, c = np.divmod(np.arange(k), cols)
-        cheb = np.maximum(abs(r[:, None] - r[None, :]), abs(c[:, None] - c[None, :]))
-        near = cheb == 1
-    return [np.flatnonzero(near[u]) for u in range(k)]
+    """For each unit of a map, the indices of its grid neighbours: the neighbourhood of the
+    topographic error (``labbench.maps.measures.grid_neighbours``: rectangular, the 8 units at
+    Chebyshev distance 1; hexagonal, the 6 at distance 1)."""
+    from labbench.maps.measures import grid_neighbours as neighbour_matrix
+
+    near = neighbour_matrix(grid_positions(shape[0], shape[1], topology), topology)
+    return [np.flatnonzero(row) for row in near]
 
 
 def u_matrix(record: PrototypeRecord) -> np.ndarray:
