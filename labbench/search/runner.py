@@ -42,7 +42,7 @@ from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
                                          best_of, count_states, positive, study_attrs)
 from labbench.search.objective import one_line
-from labbench.search.optuna_adapter import trial_id
+from labbench.search.optuna_adapter import deferred_params, trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
@@ -241,11 +241,19 @@ class SearchRunner(TrialEndings):
         search stays reproducible; the sampler just sees the last result one trial later."""
         for depth in range(1, 2 + self.prefetch):
             for slot in self.pool.with_room(depth):
-                if depth > 1 and not self._time_for_another():
+                if depth > 1 and not (self._time_for_another() and self._enough_left()):
                     return
                 if not self._budget_left():
                     return
                 self._start_trial(slot)
+
+    def _enough_left(self) -> bool:
+        """Queue a trial behind another only while the trials left keep every other worker busy
+        too: at the end of the budget a trial queued behind a busy worker would wait while
+        another worker idles (with two workers that tail cost up to one trial's time)."""
+        if self.trials is None:
+            return True
+        return self.trials - self.asked > len(self.pool.alive())
 
     def _time_for_another(self) -> bool:
         """Queue a trial only when the time budget will probably not end before it starts."""
@@ -264,7 +272,8 @@ class SearchRunner(TrialEndings):
         trial = self.study.ask()
         self.asked += 1
         try:
-            settings = self.spec.space.suggest(trial)
+            with deferred_params(self.study):    # one transaction for all the trial's params
+                settings = self.spec.space.suggest(trial)
         except ValueError as exc:             # a parameter changed kind/choices within the study
             self.study.tell(trial, state=optuna.trial.TrialState.FAIL, skip_if_finished=True)
             raise SpecError(
