@@ -83,20 +83,24 @@ def _models():
     return models, _create_scoped_session
 
 
-@contextlib.contextmanager
-def _trial_transaction(storage, trial_id: int, change=None):
-    """``(session, models)`` of one transaction on a trial that may still be written (Optuna's
-    own check: a finished trial raises ``UpdateFinishedTrialError``). TypeError when the storage
-    is not a database one (the callers then take the public, per-value calls)."""
+def _on_trial(storage, trial_id: int, work, change=None) -> None:
+    """Run ``work(session, models)`` in one transaction on a trial that may still be written
+    (Optuna's own check: a finished trial raises ``UpdateFinishedTrialError``), or, inside
+    ``one_transaction``, queue it for that block's transaction. TypeError when the storage is not
+    a database one (the callers then take the public, per-value calls)."""
     backend = rdb_backend(storage)
     if backend is None:
         raise TypeError("not an RDB storage")
     models, scoped = _models()
+    queued = backend.__dict__.get("_deferred")
+    if queued is not None:
+        queued.append((trial_id, work, change))
+        return
     try:
         with scoped(backend.scoped_session, True) as session:
             row = models.TrialModel.find_or_raise_by_id(trial_id, session)
             backend.check_trial_is_updatable(trial_id, row.state)
-            yield session, models
+            work(session, models)
     except BaseException:
         _written(backend, trial_id)           # whatever happened: read it again
         raise
@@ -137,15 +141,17 @@ def write_intermediate_values(study, trial_id: int, values: list[tuple[int, floa
         for step, value in values:
             frozen.intermediate_values[int(step)] = float(value)
 
+    def work(session, models):
+        value_model = models.TrialIntermediateValueModel
+        rows = []
+        for step, value in values:
+            stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
+            rows.append(value_model(trial_id=trial_id, step=int(step),
+                                    intermediate_value=stored, intermediate_value_type=kind))
+        session.add_all(rows)
+
     try:
-        with _trial_transaction(storage, trial_id, change) as (session, models):
-            value_model = models.TrialIntermediateValueModel
-            rows = []
-            for step, value in values:
-                stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
-                rows.append(value_model(trial_id=trial_id, step=int(step),
-                                        intermediate_value=stored, intermediate_value_type=kind))
-            session.add_all(rows)
+        _on_trial(storage, trial_id, work, change)
     except (ImportError, AttributeError, TypeError) as exc:
         log.debug("per-step intermediate values (%s)", exc)
         for step, value in values:
@@ -160,10 +166,12 @@ def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
     def change(frozen):
         frozen.user_attrs.update(_json_copy(dict(attrs)))
 
+    def work(session, models):
+        model = models.TrialUserAttributeModel
+        _upsert(session, model, {"trial_id": tid}, model.where_trial_id(tid, session), attrs)
+
     try:
-        with _trial_transaction(storage, tid, change) as (session, models):
-            model = models.TrialUserAttributeModel
-            _upsert(session, model, {"trial_id": tid}, model.where_trial_id(tid, session), attrs)
+        _on_trial(storage, tid, work, change)
         trial._cached_frozen_trial.user_attrs.update(attrs)
     except (ImportError, AttributeError, TypeError) as exc:
         log.debug("per-key user attrs (%s)", exc)
@@ -355,7 +363,7 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
 
     def _set_trial_param(self, trial_id, param_name, param_value_internal, distribution,
                          previous_distribution):
-        pending = self.__dict__.get("_deferred_params")
+        pending = self.__dict__.get("_deferred")
         if pending is None:
             try:
                 RDBStorage._set_trial_param(self, trial_id, param_name, param_value_internal,
@@ -366,28 +374,36 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             self.mark_written(trial_id, _param_change(param_name, param_value_internal,
                                                       distribution))
             return
-        pending.append((trial_id, param_name, param_value_internal, distribution,
-                        previous_distribution))
+        args = (param_name, param_value_internal, distribution, previous_distribution)
+        pending.append((trial_id,
+                        lambda session, models: self._set_trial_param_without_commit(
+                            session, trial_id, *args),
+                        _param_change(param_name, param_value_internal, distribution)))
 
-    def flush_params(self) -> None:
-        """Write the parameters collected by ``deferred_params`` in one transaction."""
-        pending = self.__dict__.pop("_deferred_params", None)
+    def flush(self) -> None:
+        """Run the writes collected by ``one_transaction`` in one transaction."""
+        pending = self.__dict__.pop("_deferred", None)
         if not pending:
             return
-        _, scoped = _models()
+        models, scoped = _models()
         try:
             with scoped(self.scoped_session, True) as session:
-                for args in pending:
-                    self._set_trial_param_without_commit(session, *args)
+                checked = set()
+                for trial_id, work, _ in pending:
+                    if trial_id not in checked:
+                        row = models.TrialModel.find_or_raise_by_id(trial_id, session)
+                        self.check_trial_is_updatable(trial_id, row.state)
+                        checked.add(trial_id)
+                    work(session, models)
         except BaseException:
-            for args in pending:
-                self.mark_written(args[0])
+            for trial_id, _, _ in pending:
+                self.mark_written(trial_id)
             raise
-        for trial_id, name, value, distribution, _ in pending:
-            self.mark_written(trial_id, _param_change(name, value, distribution))
+        for trial_id, _, change in pending:
+            self.mark_written(trial_id, change)
 
     StartingStorage._set_trial_param = _set_trial_param
-    StartingStorage.flush_params = flush_params
+    StartingStorage.flush = flush
 
     def _marking(name, change_of=None):
         def write(self, trial_id, *args, **kwargs):
@@ -429,23 +445,27 @@ def _param_change(param_name: str, param_value_internal: float, distribution):
 
 
 @contextlib.contextmanager
-def deferred_params(study):
-    """Within the block, the parameters a trial's suggestions store are collected and written
-    in ONE transaction at its end (Optuna writes each in its own; ≈1 ms of commit apiece). The
-    trial's own copy has them at once, as usual. A storage without this ability writes as usual.
-    An error of the write (a parameter whose kind changed within the study) is raised at the end
-    of the block."""
+def one_transaction(study):
+    """Within the block, the parameters a trial's suggestions store and the writes of this
+    module (``write_user_attrs``, ``write_intermediate_values``) are collected and run in ONE
+    transaction at its end (Optuna writes each parameter in its own; a commit costs ≈1 ms, far
+    more on a loaded machine). Trials' own copies change at once, as usual. An error of the
+    writes (a parameter whose kind changed within the study, a trial finished elsewhere) is
+    raised at the end of the block, and nothing of the block is written. A storage without this
+    ability (not made by ``starting_storage_class``) writes as usual."""
     backend = rdb_backend(study._storage)
-    if backend is None or not hasattr(backend, "flush_params"):
+    if backend is None or not hasattr(backend, "flush") or "_deferred" in backend.__dict__:
         yield
         return
-    backend.__dict__["_deferred_params"] = []
+    backend.__dict__["_deferred"] = []
     try:
         yield
     except BaseException:
-        backend.__dict__.pop("_deferred_params", None)
+        pending = backend.__dict__.pop("_deferred", None) or ()
+        for trial_id, _, _ in pending:
+            backend.mark_written(trial_id)
         raise
-    backend.flush_params()
+    backend.flush()
 
 
 def grid_points_started(sampler, study) -> bool:

@@ -42,7 +42,7 @@ from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
                                          best_of, count_states, positive, study_attrs)
 from labbench.search.objective import one_line
-from labbench.search.optuna_adapter import deferred_params, trial_id
+from labbench.search.optuna_adapter import one_transaction, trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
@@ -272,8 +272,10 @@ class SearchRunner(TrialEndings):
         trial = self.study.ask()
         self.asked += 1
         try:
-            with deferred_params(self.study):    # one transaction for all the trial's params
+            with one_transaction(self.study):   # the trial's params and attrs: one commit
                 settings = self.spec.space.suggest(trial)
+                write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
+                                         "end_reason": LOST})   # overwritten when it ends here
         except ValueError as exc:             # a parameter changed kind/choices within the study
             self.study.tell(trial, state=optuna.trial.TrialState.FAIL, skip_if_finished=True)
             raise SpecError(
@@ -281,8 +283,6 @@ class SearchRunner(TrialEndings):
                 "used this name differently, run with --fresh or set another [search] name"
             ) from None
         self.beats.add(trial_id(trial))
-        write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
-                                 "end_reason": LOST})   # overwritten when the trial ends here
         self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
         self.pool.assign(slot, trial.number, plain(settings))
 

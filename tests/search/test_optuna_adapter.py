@@ -226,7 +226,7 @@ def test_the_read_view_never_loses_trials_another_process_starts(tmp_path):
     assert study.get_trials()[1].value == 3.0
 
 
-def test_deferred_params_store_what_suggestions_store_one_by_one(tmp_path):
+def test_one_transaction_stores_what_the_writes_store_one_by_one(tmp_path):
     # Reference: the same suggestions on a plain RDBStorage (Optuna writes each parameter in
     # its own transaction); stored trials must read back identical (params and distributions).
     cls = oa.starting_storage_class(lambda store, tid: None)
@@ -240,9 +240,13 @@ def test_deferred_params_store_what_suggestions_store_one_by_one(tmp_path):
 
     for _ in range(3):
         a, b = ours.ask(), plain.ask()
-        with oa.deferred_params(ours):
+        with oa.one_transaction(ours):
             got = suggest(a)
             assert a.params == dict(zip(("lr", "units", "act"), got))   # the trial's own copy
+            oa.write_user_attrs(a, {"settings": list(got)})
+            oa.write_intermediate_values(ours, oa.trial_id(a), [(1, 0.5)])
+        b.set_user_attr("settings", list(got))
+        b.report(0.5, 1)
         assert got == suggest(b)
         ours.tell(a, 1.0)
         plain.tell(b, 1.0)
@@ -250,10 +254,11 @@ def test_deferred_params_store_what_suggestions_store_one_by_one(tmp_path):
         f"sqlite:///{tmp_path}/deferred.db"))
     for x, y in zip(fresh.get_trials(), plain.get_trials()):
         assert x.params == y.params and x.distributions == y.distributions
+        assert x.user_attrs == y.user_attrs and x.intermediate_values == y.intermediate_values
     # a parameter that changes kind within the study fails as Optuna's own write does
     trial = ours.ask()
     with pytest.raises(ValueError):
-        with oa.deferred_params(ours):
+        with oa.one_transaction(ours):
             trial.suggest_int("lr", 1, 3)
 
 
