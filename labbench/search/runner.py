@@ -50,7 +50,7 @@ from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
 from labbench.search.trial_end import TrialEndings
-from labbench.search.workers import WorkerPool
+from labbench.search.workers import TRAIN_DTYPE, WorkerPool
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
@@ -90,7 +90,7 @@ class SearchRunner(TrialEndings):
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
-        prepared = self.prepared = prepare(self.spec)
+        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE)
         self.direction = prepared.direction
         self.sign = intermediate_sign(prepared.direction)
         self.url = resolve_url(self.spec, self.storage_override)

@@ -61,6 +61,14 @@ class _ControllerGone(Exception):
     pass
 
 
+#: The dtype trials train in (``objective.run_trial``'s default): the fold inputs are prepared in
+#: it (half the memory of float64; the values the engine would convert them to anyway, and a
+#: stack too large for an epoch block then trains on these very arrays, ``labbench.nets.stack``).
+TRAIN_DTYPE = "float32"
+
+
+
+
 def worker_main(index: int, spec_blob: bytes, data_sha256: str, conn, stop, halt,
                 threads: int, log_level: int) -> None:
     """Entry point of a worker process (module-level so ``spawn`` can import it)."""
@@ -88,7 +96,7 @@ def _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level) -> N
         spec = pickle.loads(spec_blob)
         root = logging.getLogger("labbench")
         root.setLevel(max(log_level, logging.ERROR))   # the controller already said its warnings
-        prepared = prepare(spec)
+        prepared = prepare(spec, fold_dtype=TRAIN_DTYPE)
         root.setLevel(log_level)
         if data_sha256 and prepared.table.sha256 != data_sha256:
             raise DataError(f"{spec.data.path}: the file changed while the search was starting; "
