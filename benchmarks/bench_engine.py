@@ -21,7 +21,9 @@ Rows:
   1k / 50k rows, 256 units       the same workload at other sizes (50k rows: 10 epochs on both
                                  sides to keep a round short; the ratio does not depend on it)
   estimator API                  NetClassifier.fit per fold in a user's own loop
-  4 configurations × 5 folds     four learning rates as four trials, vs ONE scikit-learn trial
+  4 configurations × 5 folds     four learning rates as four trials, vs ONE scikit-learn trial;
+                                 then the same stacked as one run (20 members), and 16 rates
+                                 (80 members) against one scikit-learn trial
   accuracy                       labbench − scikit-learn mean fold accuracy, W1 float32
 
     python benchmarks/bench_engine.py [--rounds 3] [--quick]
@@ -134,6 +136,23 @@ def run_four_configs(folds):
     return float(np.mean([run_engine(folds, engine_config(lr=lr)) for lr in CONFIG_RATES]))
 
 
+def run_configs_stacked(folds, rates):
+    """Configurations of one shape (here: learning rates) × 5 folds in ONE stack, one group per
+    configuration (``StackTrainer(learning_rate=...)``); each member trains as it would alone."""
+    members = [(lr, i) for lr in rates for i in range(len(folds))]
+    trainer = StackTrainer(engine_config(), "binary", 1, [folds[i][0] for _, i in members],
+                           [folds[i][1] for _, i in members], [folds[i][2] for _, i in members],
+                           [folds[i][3] for _, i in members], seeds=[SEED + i for _, i in members],
+                           metric="accuracy", groups=[c for c, _ in enumerate(rates)
+                                                      for _ in range(len(folds))],
+                           learning_rate=[lr for lr, _ in members])
+    trainer.run()
+    return float(np.mean(trainer.best_val_metric))
+
+
+SIXTEEN_RATES = tuple(float(r) for r in np.geomspace(1e-4, 3e-2, 16))
+
+
 def blas_line() -> str:
     try:
         from threadpoolctl import threadpool_info
@@ -181,7 +200,12 @@ def main(argv=None) -> int:
         row("256 hidden units", 0.12, lambda: run_sklearn(w1, units=256),
             lambda: run_engine(w1, engine_config(units=256)))
         row("estimator API (NetClassifier per fold)", 0.10, sk, lambda: run_estimator(w1))
-        row("4 configurations × 5 folds vs one sklearn trial", 0.30, sk, lambda: run_four_configs(w1))
+        row("4 configurations × 5 folds as 4 trials (one sklearn trial)", None, sk,
+            lambda: run_four_configs(w1))
+        row("4 configurations × 5 folds stacked (one sklearn trial)", 0.30, sk,
+            lambda: run_configs_stacked(w1, CONFIG_RATES))
+        row("16 configurations × 5 folds stacked (one sklearn trial)", 0.25, sk,
+            lambda: run_configs_stacked(w1, SIXTEEN_RATES))
     low, high = accuracy.spread
     ok = abs(accuracy.median) <= 0.004
     print(f"{accuracy.label:<58s} median {accuracy.median:+.4f}  spread {low:+.4f}–{high:+.4f}  "

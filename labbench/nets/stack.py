@@ -88,7 +88,9 @@ class StackTrainer:
                  y_val: Sequence[np.ndarray] | None = None, *, seeds: Sequence[int],
                  metric: str | None = None,
                  target_inverse: Sequence[Callable[[np.ndarray], np.ndarray]] | None = None,
-                 groups: Sequence[int] | None = None, metric_every: int | None = None):
+                 groups: Sequence[int] | None = None, metric_every: int | None = None,
+                 learning_rate: Sequence[float] | None = None, l2: Sequence[float] | None = None,
+                 momentum: Sequence[float] | None = None):
         if task not in TASKS:
             raise ValueError(f"task {task!r} is not one of {', '.join(TASKS)}")
         X_train, y_train = _as_list(X_train, "X_train"), _as_list(y_train, "y_train")
@@ -120,8 +122,15 @@ class StackTrainer:
         self._WT = [w[:, :-1, :].transpose(0, 2, 1) for w in self._W]
         self._grad = np.zeros_like(self._params)
         self._gW = layout.views(self._grad)
-        self._l2 = float(config.l2)
-        self._l2w = (layout.weight_mask() * self._l2).astype(dtype)
+        # per-member settings (stacked configurations of one shape): one value per member, else
+        # the config's; each member's numbers are exactly those of its solo run
+        self._lr = self._per_member(learning_rate, "learning_rate", m)
+        self._mu = self._per_member(momentum, "momentum", m)
+        l2s = self._per_member(l2, "l2", m)
+        self._l2 = float(config.l2) if l2s is None else l2s
+        self._l2_on = bool(np.any(np.asarray(self._l2) != 0))
+        mask = layout.weight_mask()
+        self._l2w = (mask * self._l2 if l2s is None else mask[None, :] * l2s[:, None]).astype(dtype)
         self._l2tmp = np.zeros_like(self._params)
 
         # training rows. Small stacks: each member's rows with a column of ones, copied in
@@ -182,6 +191,15 @@ class StackTrainer:
         self.stopped_early = False
 
     # ---------------------------------------------------------------- set-up helpers
+    @staticmethod
+    def _per_member(values, name: str, m: int) -> np.ndarray | None:
+        if values is None:
+            return None
+        values = np.asarray(values, dtype=np.float64).reshape(-1)
+        if values.shape[0] != m or not np.all(np.isfinite(values)) or np.any(values < 0):
+            raise ValueError(f"{name}: give one finite value >= 0 per member ({m})")
+        return values
+
     def _augment(self, x) -> np.ndarray:
         x = np.asarray(x)
         out = np.empty((x.shape[0], x.shape[1] + 1), self.dtype)
@@ -205,7 +223,8 @@ class StackTrainer:
                     buf.x[..., -1] = 1
             positions.append((start, stop, np.clip(n - start, 0, width)))
         active = np.array([counts > 0 for _, _, counts in positions])
-        self._optimizer = make_optimizer(self.config, self._params, active)
+        self._optimizer = make_optimizer(self.config, self._params, active, learning_rate=self._lr,
+                                         momentum=self._mu)
         plan: Steps = []
         for j, (start, stop, counts) in enumerate(positions):
             width = stop - start
@@ -286,7 +305,7 @@ class StackTrainer:
             steps += act.backward(buf.hv[j - 1], back, buf.scratch[j - 1])
             delta = back
         steps.append((np.matmul, (xb.transpose(0, 2, 1), delta, gW[0])))
-        if self._l2:
+        if self._l2_on:
             steps += [(np.multiply, (self._params, self._l2w, self._l2tmp)),
                       (np.add, (self._grad, self._l2tmp, self._grad))]
         return steps
@@ -455,7 +474,7 @@ class StackTrainer:
         steps = self._batch_steps(X, Y, q, _Buffers(m, n_max, self._layout.sizes, self.dtype), rowmask)
         with np.errstate(over="ignore", under="ignore"):
             run_steps(steps)
-        penalty = self._l2 * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
+        penalty = np.asarray(self._l2) * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
         loss = np.array([self._out.epoch_loss(q[i, :self._n[i]], self.dtype) for i in range(m)])
         loss += 0.5 * penalty / self._n
         grads = [self._layout.unpack(self._grad[i].astype(np.float64) / self._n[i]) for i in range(m)]
