@@ -56,8 +56,10 @@ def timed(fn: Callable[[], object]) -> tuple[float, object]:
 
 
 def paired(reference: Callable[[], object], candidate: Callable[[], object], rounds: int,
-           ratio: Ratio, *, on_round: Callable[[int, float, float, object, object], None] | None = None):
-    """``rounds`` rounds of (reference, candidate), order alternating; adds candidate/reference."""
+           ratio: Ratio, *, on_round: Callable[[int, float, float, object, object], None] | None = None,
+           per: float = 1.0):
+    """``rounds`` rounds of (reference, candidate), order alternating; adds candidate/reference
+    (divided by ``per``: a candidate doing ``per`` times the reference's work, per unit)."""
     for r in range(rounds):
         if r % 2 == 0:
             t_ref, v_ref = timed(reference)
@@ -65,7 +67,7 @@ def paired(reference: Callable[[], object], candidate: Callable[[], object], rou
         else:
             t_new, v_new = timed(candidate)
             t_ref, v_ref = timed(reference)
-        ratio.add(t_new / t_ref)
+        ratio.add(t_new / t_ref / per)
         if on_round is not None:
             on_round(r, t_ref, t_new, v_ref, v_new)
     return ratio

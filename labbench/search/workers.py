@@ -67,8 +67,6 @@ class _ControllerGone(Exception):
 TRAIN_DTYPE = "float32"
 
 
-
-
 def worker_main(index: int, spec_blob: bytes, data_sha256: str, conn, stop, halt,
                 threads: int, log_level: int) -> None:
     """Entry point of a worker process (module-level so ``spawn`` can import it)."""
