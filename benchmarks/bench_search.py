@@ -143,13 +143,36 @@ class Phases:
         setattr(owner, name, timed)
         self._undo.append((owner, name, original))
 
+    def _statement(self, *args, **kwargs) -> None:
+        if threading.get_ident() == self._thread:
+            self.calls["SQL statements"] += 1
+
     def install(self) -> None:
         import optuna
+        import sqlalchemy
         from optuna.storages import RDBStorage
 
-        from labbench.search import orphans, runner, strategy, trial_end, workers
+        from labbench.search import optuna_adapter, orphans, runner, strategy, trial_end, workers
 
         self._thread = threading.get_ident()
+        # database round trips of the controller's thread (a count the machine's load cannot
+        # inflate, unlike the times)
+        sqlalchemy.event.listen(sqlalchemy.engine.Engine, "before_cursor_execute", self._statement)
+        self._undo.append((None, "sql", self._statement))
+        # writes collected by optuna_adapter.one_transaction run when its block ends
+        make = optuna_adapter.starting_storage_class
+        phases = self
+
+        def starting(*args, **kwargs):
+            cls = make(*args, **kwargs)
+            if hasattr(cls, "flush"):
+                phases.wrap(cls, "flush", "writes")
+            return cls
+
+        for module in (optuna_adapter, orphans):
+            if hasattr(module, "starting_storage_class"):
+                self._undo.append((module, "starting_storage_class", make))
+                setattr(module, "starting_storage_class", starting)
         self.wrap(optuna.study.Study, "ask", "suggestion")
         self.wrap(optuna.study.Study, "tell", "writes")
         self.wrap(optuna.study.Study, "get_trials", "storage reads")
@@ -172,8 +195,13 @@ class Phases:
         self.wrap(runner.SearchRunner, "_handle", "hand-off")
 
     def uninstall(self) -> None:
+        import sqlalchemy
+
         for owner, name, original in reversed(self._undo):
-            setattr(owner, name, original)
+            if owner is None:
+                sqlalchemy.event.remove(sqlalchemy.engine.Engine, "before_cursor_execute", original)
+            else:
+                setattr(owner, name, original)
         self._undo.clear()
 
 
@@ -251,7 +279,8 @@ def overhead(spec: Path, rounds: int, label: str, goal: float, seed: int) -> Non
         n_trials = len(work)
         for phase, seconds in phases.total.items():
             per_trial[phase] += seconds / n_trials / rounds
-            counts[phase] += phases.calls[phase] / n_trials / rounds
+        for phase, calls in phases.calls.items():
+            counts[phase] += calls / n_trials / rounds
         print(f"    round {r + 1}: {n_trials} trials, search span {span:.2f} s, reference "
               f"{reference:.2f} s ({1000 * reference / n_trials:.0f} ms per trial), overhead "
               f"{100 * ratio.values[-1]:.1f} %   ({load_avg()})", flush=True)
@@ -261,6 +290,7 @@ def overhead(spec: Path, rounds: int, label: str, goal: float, seed: int) -> Non
     for phase in ("suggestion", "storage reads", "writes", "prune checks", "hand-off"):
         print(f"      {phase:<14s} {1000 * per_trial[phase]:7.2f} ms   ({counts[phase]:.1f} calls)")
     print(f"      {'total':<14s} {1000 * sum(per_trial.values()):7.2f} ms")
+    print(f"    database statements of the controller per trial: {counts['SQL statements']:.1f}")
 
 
 def _train_all(spec_path: str, work) -> float:

@@ -122,12 +122,22 @@ def _json_copy(value):
 
 def _upsert(session, model, owner: Mapping[str, int], rows, attrs: Mapping[str, Any]) -> None:
     existing = {a.key: a for a in rows}
+    new = []
     for key, value in attrs.items():
         text = json.dumps(value)
         if key in existing:
             existing[key].value_json = text
         else:
-            session.add(model(**owner, key=key, value_json=text))
+            new.append({**owner, "key": key, "value_json": text})
+    _insert_many(session, model, new)
+
+
+def _insert_many(session, model, rows: list[dict]) -> None:
+    """New rows in one executed statement (the ORM sends one INSERT ... RETURNING per row)."""
+    import sqlalchemy
+
+    if rows:
+        session.execute(sqlalchemy.insert(model.__table__), rows)
 
 
 def write_intermediate_values(study, trial_id: int, values: list[tuple[int, float]]) -> None:
@@ -146,9 +156,9 @@ def write_intermediate_values(study, trial_id: int, values: list[tuple[int, floa
         rows = []
         for step, value in values:
             stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
-            rows.append(value_model(trial_id=trial_id, step=int(step),
-                                    intermediate_value=stored, intermediate_value_type=kind))
-        session.add_all(rows)
+            rows.append({"trial_id": trial_id, "step": int(step), "intermediate_value": stored,
+                         "intermediate_value_type": kind})
+        _insert_many(session, value_model, rows)
 
     try:
         _on_trial(storage, trial_id, work, change)
@@ -275,7 +285,7 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             if view is None:
                 view = self.__dict__["_read_view"] = {
                     "lock": threading.Lock(), "written": set(), "seen": {}, "full_at": {},
-                    "copies": {}}
+                    "copies": {}, "study_of": {}}
             return view
 
         def mark_written(self, trial_id: int, change=None) -> None:
@@ -320,6 +330,7 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
                         view["copies"].pop(t._trial_id, None)
                     else:
                         view["copies"][t._trial_id] = t
+                        view["study_of"][t._trial_id] = study_id
             if trials:
                 view["seen"][study_id] = max([-1 if seen is None else seen, *returned])
             elif seen is None:
@@ -336,19 +347,22 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             view = self._view()
             with view["lock"]:      # Optuna's cache keeps this object: later writes update it
                 view["copies"][frozen._trial_id] = frozen
-                view["just_created"] = frozen._trial_id
+                view["study_of"][frozen._trial_id] = study_id
             if template_trial is None or template_trial.state == TrialState.RUNNING:
                 on_start(self, frozen._trial_id)
             return frozen
 
         def get_trial(self, trial_id):
-            # ``study.ask`` reads the trial it has just created: the copy is what the database
-            # holds (this process made it, a moment ago, and applied its own writes since)
+            # an unfinished trial this process keeps up to date (created or read here, every
+            # write of it repeated on the copy, nothing failed since): the copy is what the
+            # database holds, so no query (Optuna's cache asks for unfinished trials each time)
             view = self._view()
             with view["lock"]:
-                fresh = view.pop("just_created", None) == trial_id and trial_id not in view["written"]
-                frozen = view["copies"].get(trial_id) if fresh else None
-                if frozen is not None:
+                frozen = view["copies"].get(trial_id)
+                study_id = view["study_of"].get(trial_id)
+                fresh = (frozen is not None and trial_id not in view["written"]
+                         and time.monotonic() - view["full_at"].get(study_id, -1e300) < every)
+                if fresh:
                     return copy.deepcopy(frozen)
             return super().get_trial(trial_id)
 

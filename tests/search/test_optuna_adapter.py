@@ -262,6 +262,22 @@ def test_one_transaction_stores_what_the_writes_store_one_by_one(tmp_path):
             trial.suggest_int("lr", 1, 3)
 
 
+def test_a_trial_ended_by_another_process_is_seen_as_ended_after_a_failed_write(tmp_path):
+    # The runner's order when a trial was failed elsewhere (a stale heartbeat): its write raises
+    # UpdateFinishedTrialError, then tell(skip_if_finished=True) must see the trial finished (the
+    # read view must not answer from its copy) and return quietly, as on a plain storage.
+    url = f"sqlite:///{tmp_path}/stale.db"
+    cls = oa.starting_storage_class(lambda store, tid: None, refresh_s=3600)
+    study = _study(cls(url))
+    trial = study.ask()
+    other = optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(url))
+    other.tell(trial.number, state=TrialState.FAIL)
+    with pytest.raises(UpdateFinishedTrialError):
+        oa.write_user_attrs(trial, {"end_reason": "x"})
+    study.tell(trial, 1.0, skip_if_finished=True)
+    assert study.get_trials()[0].state == TrialState.FAIL
+
+
 def test_grid_points_started_against_is_exhausted(storage):
     from labbench.search.strategy import _grid_sampler
 
