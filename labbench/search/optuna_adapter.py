@@ -272,7 +272,11 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
     touched keep their cached copy; every ``refresh_s`` seconds (default ``READ_REFRESH_S``) the
     full query runs, so changes other processes make to older trials (a shared PostgreSQL search)
     arrive within that time. With nothing written and nothing due, a read costs no query at all.
-    A search of one process therefore reads exactly what the full query would return.
+    Writes made here are repeated on the cached copy of an unfinished trial (``mark_written``
+    with a change) instead of re-reading it, and ``get_trial`` of such a trial answers from that
+    copy; a write that fails (say the trial was ended elsewhere) sends the trial back to the
+    database for its next read. A search of one process therefore reads exactly what the full
+    query would return (tests/search/test_optuna_adapter.py compares it with a fresh reader).
     """
     from optuna.storages import RDBStorage
     from optuna.trial import TrialState
