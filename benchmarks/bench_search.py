@@ -14,8 +14,9 @@
    (pipes to the worker and handling its messages). ``--workload second`` adds a workload of
    ~1 s trials (goal ≤ 2 %).
 2. Two workers vs one over a whole 40-trial run (``--scaling-trials``) of ~1 s trials (digits,
-   random sampler, no pruning), rounds alternating 1 and 2 workers; goal ≥ 1.7 ×. Beside it the
-   machine's own ceiling: the same trainings in two plain processes vs one.
+   random sampler, no pruning, no early stopping), rounds alternating 1 and 2 workers;
+   goal ≥ 1.7 ×. Beside it the machine's own ceiling: the same trainings in two plain
+   processes vs one.
 
 The machine may be shared with other jobs: the load average is printed with every line.
 
@@ -84,6 +85,7 @@ learning_rate = {{ low = 0.001, high = 0.05, log = true }}
 hidden_layers = 1
 hidden_units = {{ low = 96, high = 128 }}
 epochs = {epochs}
+patience = 0
 batch_size = 32
 activation = {{ choices = ["relu", "tanh"] }}
 """
@@ -344,7 +346,7 @@ def main() -> int:
     parser.add_argument("--rounds", type=int, default=3)
     parser.add_argument("--trials", type=int, default=200)
     parser.add_argument("--scaling-trials", type=int, default=40)
-    parser.add_argument("--scaling-epochs", type=int, default=60,
+    parser.add_argument("--scaling-epochs", type=int, default=120,
                         help="epochs per trial of the scaling test (≈1 s trials on an idle machine)")
     parser.add_argument("--only", choices=("overhead", "scaling"))
     parser.add_argument("--workload", choices=("orchard", "second"), action="append",
