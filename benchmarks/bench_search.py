@@ -1,56 +1,75 @@
-"""Search overhead and worker scaling of ``labbench.search.runner`` (issue 3 §7).
+"""Search overhead, its phases, and two workers against one (issue 13), as medians of rounds.
 
-1. Overhead: a 200-trial search (seeded TPE, no pruning, one worker, SQLite on disk) of a small
-   workload (the orchard demo, ≈50 ms per trial), a tiny one (≈10 ms) and a medium one (≈250 ms),
-   each against a reference measured in the same run: the same 200 settings trained directly
-   in this process, one after another, with no Optuna, no storage and no processes. The overhead
-   is (search wall time − reference) / reference; goal ≤ 5 %. Worker start-up (spawn, imports,
-   preparing the folds once) is reported apart, since it is paid once per run, not per trial.
-2. Throughput with 2 workers vs 1 on the same trials (random sampler, no pruning); goal ≥ 1.8 ×.
+1. Overhead: the shipped orchard demo spec (TPE, median pruner, one worker, SQLite on disk) with
+   ``--trials`` trials (default 200). In each round the search runs, then (order alternating)
+   the same settings are trained directly in this process, one after another, each for exactly
+   the epochs it trained in the search (pruned trials stop where they stopped): no Optuna, no
+   storage, no processes. Overhead = (first trial start → last trial end) / reference − 1, the
+   time outside training as a share of the training time; goal ≤ 10 % (stretch 5 %). Worker
+   start-up (spawn, imports, preparing the folds once) is paid once per run and reported apart.
+   The controller's own time is split into phases by wrapping the calls it makes (exclusive
+   time, so a storage read inside the sampler counts as a read): suggestion (the sampler in
+   ``study.ask``), storage reads (every read of the trial list or one trial, and the orphan
+   check), writes (claim, user attrs, intermediate values, tell), prune checks and hand-off
+   (pipes to the worker and handling its messages). ``--workload second`` adds a workload of
+   ~1 s trials (goal ≤ 2 %).
+2. Two workers vs one over a whole 40-trial run (``--scaling-trials``) of ~1 s trials (digits,
+   random sampler, no pruning, no early stopping), rounds alternating 1 and 2 workers;
+   goal ≥ 1.7 ×. Beside it the machine's own ceiling: the same trainings in two plain
+   processes vs one.
 
-Data: the orchard demo set; scikit-learn's bundled breast-cancer set (569 rows, 30 features) for
-the tiny workload and its digits set (1,797 rows, 64 features) for the heavier scaling test.
+The machine may be shared with other jobs: the load average is printed with every line.
 
-Run:  python benchmarks/bench_search.py [--trials 200] [--scaling-trials 24]
-The machine may be shared: the load average is printed before and after each part.
+    python benchmarks/bench_search.py [--rounds 3] [--trials 200] [--only overhead|scaling]
 """
 
 from __future__ import annotations
 
 import argparse
+import collections
+import functools
 import os
+import shutil
 import sys
 import tempfile
 import threading
 import time
 from pathlib import Path
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from paired import Ratio, load_avg  # noqa: E402
+
+ROOT = Path(__file__).resolve().parents[1]
+
 
 def write_table(folder: Path, which: str) -> Path:
     if which == "orchard":                 # the project's own (invented) demo set
-        import shutil
-
-        demo = Path(__file__).resolve().parents[1] / "demo_sets" / "orchard.csv"
-        return Path(shutil.copy(demo, folder / "orchard.csv"))
+        return Path(shutil.copy(ROOT / "demo_sets" / "orchard.csv", folder / "orchard.csv"))
     from sklearn import datasets
 
-    loader = {"cancer": datasets.load_breast_cancer, "digits": datasets.load_digits}[which]
-    frame = loader(as_frame=True).frame
+    frame = datasets.load_digits(as_frame=True).frame
     frame["target"] = frame["target"].map(lambda v: f"c{v}")
     path = folder / f"{which}.csv"
     frame.to_csv(path, index=False)
     return path
 
 
-def write_spec(folder: Path, csv: Path, *, name: str, sampler: str, epochs: int, trials: int,
-               units: str, workers: int = 1) -> Path:
-    target = "grade" if csv.stem == "orchard" else "target"
-    ignore = 'ignore = ["crate_id"]' if csv.stem == "orchard" else ""
+def orchard_spec(folder: Path, trials: int) -> Path:
+    write_table(folder, "orchard")
+    text = (ROOT / "demo_sets" / "orchard.toml").read_text(encoding="utf-8")
+    text = text.replace("trials = 20", f"trials = {trials}")
+    path = folder / "orchard.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def digits_spec(folder: Path, name: str, *, trials: int, epochs: int, sampler="random",
+                pruner="none") -> Path:
+    csv = write_table(folder, "digits")
     text = f"""
 [data]
 path = "{csv.name}"
-target = "{target}"
-{ignore}
+target = "target"
 [evaluation]
 folds = 5
 holdout = 0.2
@@ -59,14 +78,15 @@ seed_spread = 0
 [search]
 trials = {trials}
 sampler = "{sampler}"
-pruner = "none"
-workers = {workers}
+pruner = "{pruner}"
+workers = 1
 [space]
 learning_rate = {{ low = 0.001, high = 0.05, log = true }}
 hidden_layers = 1
-hidden_units = {units}
+hidden_units = {{ low = 96, high = 128 }}
 epochs = {epochs}
-batch_size = {{ choices = [32, 64] }}
+patience = 0
+batch_size = 32
 activation = {{ choices = ["relu", "tanh"] }}
 """
     path = folder / f"{name}.toml"
@@ -75,11 +95,10 @@ activation = {{ choices = ["relu", "tanh"] }}
 
 
 class Clock:
-    """Records when the first trial started and when the search ended (event times)."""
+    """When the first trial started and the last one ended (event times)."""
 
     def __init__(self):
-        self.first_start = None
-        self.ended = None
+        self.first_start = self.last_end = None
         self.trials = 0
 
     def __call__(self, event):
@@ -91,140 +110,232 @@ class Clock:
         elif isinstance(event, ev.TrialEnded):
             self.trials += 1
             self.last_end = now
-        elif isinstance(event, ev.SearchEnded):
-            self.ended = now
 
 
-def search(spec_path: Path, workers: int):
+class Phases:
+    """Exclusive time of the controller's calls, by phase (nested calls are subtracted)."""
+
+    def __init__(self):
+        self.total = collections.Counter()
+        self.calls = collections.Counter()
+        self._stack: list[list[float]] = []
+        self._thread = None
+        self._undo = []
+
+    def wrap(self, owner, name: str, phase: str) -> None:
+        original = getattr(owner, name)
+        phases = self
+
+        @functools.wraps(original)
+        def timed(*args, **kwargs):
+            if threading.get_ident() != phases._thread:      # the heartbeat thread: not counted
+                return original(*args, **kwargs)
+            phases._stack.append([0.0])
+            start = time.perf_counter()
+            try:
+                return original(*args, **kwargs)
+            finally:
+                spent = time.perf_counter() - start
+                inner = phases._stack.pop()[0]
+                phases.total[phase] += spent - inner
+                phases.calls[phase] += 1
+                if phases._stack:
+                    phases._stack[-1][0] += spent
+
+        setattr(owner, name, timed)
+        self._undo.append((owner, name, original))
+
+    def _statement(self, *args, **kwargs) -> None:
+        if threading.get_ident() == self._thread:
+            self.calls["SQL statements"] += 1
+
+    def install(self) -> None:
+        import optuna
+        import sqlalchemy
+        from optuna.storages import RDBStorage
+
+        from labbench.search import optuna_adapter, orphans, runner, strategy, trial_end, workers
+
+        self._thread = threading.get_ident()
+        # database round trips of the controller's thread (a count the machine's load cannot
+        # inflate, unlike the times)
+        sqlalchemy.event.listen(sqlalchemy.engine.Engine, "before_cursor_execute", self._statement)
+        self._undo.append((None, "sql", self._statement))
+        # writes collected by optuna_adapter.one_transaction run when its block ends
+        make = optuna_adapter.starting_storage_class
+        phases = self
+
+        def starting(*args, **kwargs):
+            cls = make(*args, **kwargs)
+            if hasattr(cls, "flush"):
+                phases.wrap(cls, "flush", "writes")
+            return cls
+
+        for module in (optuna_adapter, orphans):
+            if hasattr(module, "starting_storage_class"):
+                self._undo.append((module, "starting_storage_class", make))
+                setattr(module, "starting_storage_class", starting)
+        self.wrap(optuna.study.Study, "ask", "suggestion")
+        self.wrap(optuna.study.Study, "tell", "writes")
+        self.wrap(optuna.study.Study, "get_trials", "storage reads")
+        # Optuna wraps an RDB storage in its (private) cache class; time that class's reads too.
+        # A benchmark may; labbench's own modules reach private Optuna names only through
+        # labbench.search.optuna_adapter.
+        from optuna.storages._cached_storage import _CachedStorage
+        for cls in (RDBStorage, _CachedStorage):
+            for name in ("get_all_trials", "get_trial", "get_study_user_attrs",
+                         "get_study_system_attrs", "get_study_directions"):
+                if name in vars(cls):
+                    self.wrap(cls, name, "storage reads")
+        self.wrap(runner, "reclaim_orphans", "storage reads")
+        self.wrap(orphans, "claim", "writes")
+        self.wrap(runner, "write_user_attrs", "writes")
+        self.wrap(trial_end, "write_user_attrs", "writes")
+        self.wrap(trial_end, "write_intermediate_values", "writes")
+        self.wrap(strategy.PruneCheck, "__call__", "prune checks")
+        self.wrap(workers.WorkerPool, "assign", "hand-off")
+        self.wrap(runner.SearchRunner, "_handle", "hand-off")
+
+    def uninstall(self) -> None:
+        import sqlalchemy
+
+        for owner, name, original in reversed(self._undo):
+            if owner is None:
+                sqlalchemy.event.remove(sqlalchemy.engine.Engine, "before_cursor_execute", original)
+            else:
+                setattr(owner, name, original)
+        self._undo.clear()
+
+
+def search(spec_path: Path, workers: int, phases: Phases | None = None):
     from labbench.search.runner import SearchRunner
     from labbench.search.spec import load_spec
 
     clock = Clock()
     runner = SearchRunner(load_spec(spec_path), clock, workers=workers, fresh=True)
-    t0 = clock.t0 = time.perf_counter()
-    outcome = runner.run(threading.Event())
-    total = time.perf_counter() - t0
+    if phases is not None:
+        phases.install()
+    try:
+        t0 = clock.t0 = time.perf_counter()
+        outcome = runner.run(threading.Event())
+        total = time.perf_counter() - t0
+    finally:
+        if phases is not None:
+            phases.uninstall()
     return runner, clock, outcome, total
 
 
-def controller_cpu() -> float:
-    """CPU seconds used by this process (all its threads), not by the workers."""
-    import resource
-
-    usage = resource.getrusage(resource.RUSAGE_SELF)
-    return usage.ru_utime + usage.ru_stime
-
-
-def load_avg() -> str:
-    return "load average %.2f %.2f %.2f" % os.getloadavg()
+def stored_work(runner) -> list[tuple[dict, int]]:
+    """(settings, epochs it trained) of every trial the search trained."""
+    out = []
+    for t in runner.study.get_trials(deepcopy=False):
+        if "settings" in t.user_attrs and t.user_attrs.get("epochs_run"):
+            out.append((t.user_attrs["settings"], int(t.user_attrs["epochs_run"])))
+    return out
 
 
-WORKLOADS = {
-    # name: (data set, epochs, units range, description)
-    "tiny": ("cancer", 15, "{ low = 8, high = 32 }",
-             "breast cancer (455 training rows × 30), 5 folds, 15 epochs, 8–32 units"),
-    "small": ("orchard", 30, "{ low = 16, high = 64 }",
-              "the orchard demo (1,200 training rows × 12 columns, 3 classes), 5 folds, "
-              "30 epochs, 16–64 units"),
-    "medium": ("digits", 40, "{ low = 64, high = 128 }",
-               "digits (1,437 training rows × 61), 5 folds, 40 epochs, 64–128 units"),
-}
-
-
-def overhead(folder: Path, trials: int, workload: str) -> None:
+def train_directly(prepared, work, seed: int) -> float:
+    """Wall time of training ``work`` in this process on one BLAS thread, nothing else."""
     from threadpoolctl import threadpool_limits
 
     from labbench.search.objective import run_trial
 
-    which, epochs, units, text = WORKLOADS[workload]
-    csv = write_table(folder, which)
-    spec = write_spec(folder, csv, name=f"overhead_{workload}", sampler="tpe", epochs=epochs,
-                      trials=trials, units=units)
-    print(f"\n[1] overhead, {workload} workload: {trials} trials of {text}; TPE, no pruning, "
-          f"SQLite, 1 worker   ({load_avg()})")
-    cpu0 = controller_cpu()
-    runner, clock, outcome, total = search(spec, 1)
-    cpu = controller_cpu() - cpu0
-    startup = clock.first_start - clock.t0
-    searching = clock.last_end - clock.first_start
-    settings = [t.user_attrs["settings"] for t in runner.study.get_trials(deepcopy=False)]
-    prepared = runner.prepared
-    with threadpool_limits(1):            # as in a worker (one BLAS thread each)
-        t0, c0 = time.perf_counter(), time.process_time()
-        for s in settings:
-            run_trial(prepared, s, seed=11, on_epoch=lambda v: None, should_stop=lambda: False)
-        reference = time.perf_counter() - t0
-        reference_cpu = time.process_time() - c0
-    n = len(settings)
-    print(f"    reference (same {n} settings trained in-process, nothing else): {reference:.2f} s "
-          f"({1000 * reference / n:.0f} ms per trial)")
-    print(f"    search, first trial start → last trial end: {searching:.2f} s; worker start-up "
-          f"{startup:.2f} s (once per run); whole run {total:.2f} s")
-    print(f"    overhead (sampler + storage + hand-off): {1000 * (searching - reference) / n:.1f} ms "
-          f"per trial = {100 * (searching - reference) / reference:.1f} % of trial time "
-          f"(goal ≤ 5 %)")
-    print(f"    with start-up: {100 * (total - reference) / reference:.1f} %   ({load_avg()})")
-    worker_cpu = runner.worker_cpu_s
-    print(f"    CPU time (less sensitive to other load than wall time): training in the worker "
-          f"{worker_cpu:.2f} s vs {reference_cpu:.2f} s in-process "
-          f"({100 * (worker_cpu - reference_cpu) / reference_cpu:+.1f} %: the hand-off on the "
-          f"worker's side); controller {cpu:.2f} s = {1000 * cpu / n:.1f} ms per trial = "
-          f"{100 * cpu / reference_cpu:.1f} % of trial CPU, spent beside the worker on the other core")
+    with threadpool_limits(1):
+        t0 = time.perf_counter()
+        for settings, epochs in work:
+            seen = []
+            run_trial(prepared, settings, seed=seed, on_epoch=seen.append,
+                      should_stop=lambda: len(seen) >= epochs)
+        return time.perf_counter() - t0
 
 
-def scaling(folder: Path, trials: int, epochs: int = 40) -> None:
-    csv = write_table(folder, "digits")
-    spec = write_spec(folder, csv, name="scaling", sampler="random", epochs=epochs, trials=trials,
-                      units="{ low = 64, high = 128 }")
-    print(f"\n[2] throughput: {trials} trials, digits (1,437 training rows × 61), 5 folds, "
-          f"{epochs} epochs, 64–128 units, random sampler   ({load_avg()})")
-    rates: dict[int, list[float]] = {1: [], 2: []}
-    settings: list = []
-    for workers in (1, 2, 1, 2):         # alternated: the machine's load drifts
-        runner, clock, outcome, total = search(spec, workers)
-        settings = settings or [t.user_attrs["settings"] for t in runner.study.get_trials()]
+def overhead(spec: Path, rounds: int, label: str, goal: float, seed: int) -> None:
+    ratio = Ratio(f"overhead, {label}: time outside training / training", goal)
+    per_trial = collections.Counter()
+    counts = collections.Counter()
+    startups, n_trials = [], 0
+    for r in range(rounds):
+        phases = Phases()
+        runner = reference = None
+
+        def run_search():
+            nonlocal runner
+            runner, clock, _, total = search(spec, 1, phases)
+            return clock
+
+        if r % 2 == 0:
+            clock = run_search()
+            work = stored_work(runner)
+            reference = train_directly(runner.prepared, work, seed)
+        else:                                # the reference first needs the settings: take
+            prev = work                      # those of the previous round (same spec, same seed)
+            reference = train_directly(prepared, prev, seed)
+            clock = run_search()
+            work = stored_work(runner)
+            if work != prev:
+                reference = train_directly(runner.prepared, work, seed)
+        prepared = runner.prepared
         span = clock.last_end - clock.first_start
-        rates[workers].append(clock.trials / span)
-        print(f"    {workers} worker(s): {clock.trials} trials in {span:.2f} s "
-              f"({rates[workers][-1]:.2f} trials/s; whole run {total:.2f} s)   ({load_avg()})")
-    best = max(rates[2]) / max(rates[1])
-    print(f"    2 workers vs 1 (best run of each): {best:.2f} × (goal ≥ 1.8 ×) on "
-          f"{os.cpu_count()} cores; per pair: "
-          + ", ".join(f"{b / a:.2f} ×" for a, b in zip(rates[1], rates[2])))
-    ceiling = machine_ceiling(spec, settings)
-    print(f"    reference: the same trainings in 2 plain processes vs 1 (no search, no storage): "
-          f"{ceiling:.2f} × — what this machine gives two busy processes   ({load_avg()})")
+        ratio.add(span / reference - 1.0)
+        startups.append(clock.first_start - clock.t0)
+        n_trials = len(work)
+        for phase, seconds in phases.total.items():
+            per_trial[phase] += seconds / n_trials / rounds
+        for phase, calls in phases.calls.items():
+            counts[phase] += calls / n_trials / rounds
+        print(f"    round {r + 1}: {n_trials} trials, search span {span:.2f} s, reference "
+              f"{reference:.2f} s ({1000 * reference / n_trials:.0f} ms per trial), overhead "
+              f"{100 * ratio.values[-1]:.1f} %   ({load_avg()})", flush=True)
+    print(ratio.line(70))
+    print(f"    worker start-up (once per run): median {sorted(startups)[len(startups) // 2]:.2f} s")
+    print("    controller time per trial, by phase (mean over rounds; calls per trial):")
+    for phase in ("suggestion", "storage reads", "writes", "prune checks", "hand-off"):
+        print(f"      {phase:<14s} {1000 * per_trial[phase]:7.2f} ms   ({counts[phase]:.1f} calls)")
+    print(f"      {'total':<14s} {1000 * sum(per_trial.values()):7.2f} ms")
+    print(f"    database statements of the controller per trial: {counts['SQL statements']:.1f}")
 
 
-def _train_all(spec_path: str, settings: list) -> float:
-    """Train the settings one after another in this process; returns the wall time."""
+def _train_all(spec_path: str, work) -> float:
     import logging
 
-    from threadpoolctl import threadpool_limits
-
-    from labbench.search.objective import run_trial
     from labbench.search.prepare import prepare
     from labbench.search.spec import load_spec
 
     logging.getLogger("labbench").setLevel(logging.ERROR)
     prepared = prepare(load_spec(spec_path))
-    with threadpool_limits(1):
-        t0 = time.perf_counter()
-        for s in settings:
-            run_trial(prepared, s, seed=11, on_epoch=lambda v: None, should_stop=lambda: False)
-        return time.perf_counter() - t0
+    return train_directly(prepared, work, 11)
 
 
-def machine_ceiling(spec: Path, settings: list) -> float:
-    """Throughput of 2 processes training half the list each, over 1 process training it all."""
+def scaling(folder: Path, trials: int, epochs: int, rounds: int) -> None:
+    spec = digits_spec(folder, "scaling", trials=trials, epochs=epochs)
+    print(f"\n[2] two workers vs one: whole runs of {trials} trials, digits (1,437 training rows × 61), "
+          f"5 folds, {epochs} epochs, 96–128 units, random sampler, no pruning   ({load_avg()})")
+    ratio = Ratio("two workers vs one, whole run (one / two)", 1.7, at_least=True)
+    steady = Ratio("two workers vs one, first start → last end", None)
+    ceiling = Ratio("the machine's ceiling: 2 plain processes vs 1", None)
     import multiprocessing
 
     ctx = multiprocessing.get_context("spawn")
-    with ctx.Pool(2) as pool:
-        one = pool.apply(_train_all, (str(spec), settings))
-        halves = [settings[0::2], settings[1::2]]
-        two = max(pool.starmap(_train_all, [(str(spec), h) for h in halves]))
-    return one / two
+    work = None
+    for r in range(rounds):
+        times = {}
+        spans = {}
+        for workers in ((1, 2) if r % 2 == 0 else (2, 1)):
+            runner, clock, _, total = search(spec, workers)
+            times[workers], spans[workers] = total, clock.last_end - clock.first_start
+            work = work or stored_work(runner)
+            print(f"    round {r + 1}, {workers} worker(s): whole run {total:.2f} s, trials "
+                  f"{spans[workers]:.2f} s   ({load_avg()})", flush=True)
+        ratio.add(times[1] / times[2])
+        steady.add(spans[1] / spans[2])
+        with ctx.Pool(2) as pool:
+            one = pool.apply(_train_all, (str(spec), work))
+            two = max(pool.starmap(_train_all, [(str(spec), work[0::2]), (str(spec), work[1::2])]))
+        ceiling.add(one / two)
+        print(f"    round {r + 1}: plain processes, 1: {one:.2f} s, 2: {two:.2f} s   ({load_avg()})",
+              flush=True)
+    for line in (ratio, steady, ceiling):
+        print(line.line(70))
 
 
 def main() -> int:
@@ -232,32 +343,35 @@ def main() -> int:
 
     logging.getLogger("labbench").setLevel(logging.ERROR)   # the digits' blank pixels warn
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--rounds", type=int, default=3)
     parser.add_argument("--trials", type=int, default=200)
-    parser.add_argument("--scaling-trials", type=int, default=32)
-    parser.add_argument("--scaling-epochs", type=int, default=40,
-                        help="epochs per trial of the scaling test (longer trials: less overhead)")
+    parser.add_argument("--scaling-trials", type=int, default=40)
+    parser.add_argument("--scaling-epochs", type=int, default=120,
+                        help="epochs per trial of the scaling test (≈1 s trials on an idle machine)")
     parser.add_argument("--only", choices=("overhead", "scaling"))
-    parser.add_argument("--workload", choices=tuple(WORKLOADS), action="append",
-                        help="overhead workload(s) (default: both)")
+    parser.add_argument("--workload", choices=("orchard", "second"), action="append",
+                        help="overhead workload(s) (default: orchard)")
     args = parser.parse_args()
     import numpy  # noqa: F401  (loaded so threadpoolctl can see its BLAS)
 
-    try:
-        from threadpoolctl import threadpool_info
-
-        blas = [f"{i.get('internal_api')} {i.get('version')} ({i.get('threading_layer')}, "
-                f"{i.get('num_threads')} threads, {i.get('architecture')})" for i in threadpool_info()]
-        print("BLAS:", "; ".join(blas) or "unknown")
-    except ImportError:
-        print("BLAS: threadpoolctl not installed")
-    print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores")
+    print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores; {load_avg()}")
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         if args.only in (None, "overhead"):
-            for workload in args.workload or tuple(WORKLOADS):
-                overhead(folder, args.trials, workload)
+            for workload in args.workload or ("orchard",):
+                if workload == "orchard":
+                    spec = orchard_spec(folder, args.trials)
+                    print(f"\n[1] overhead: the orchard demo, {args.trials} trials, TPE, median pruner, "
+                          f"SQLite, 1 worker   ({load_avg()})")
+                    overhead(spec, args.rounds, "orchard demo", 0.10, seed=7)
+                else:
+                    spec = digits_spec(folder, "second", trials=max(10, args.trials // 10),
+                                       epochs=args.scaling_epochs, sampler="tpe", pruner="median")
+                    print(f"\n[1b] overhead: ≈1 s trials (digits, {args.scaling_epochs} epochs), TPE, "
+                          f"median pruner   ({load_avg()})")
+                    overhead(spec, args.rounds, "≈1 s trials", 0.02, seed=11)
         if args.only in (None, "scaling"):
-            scaling(folder, args.scaling_trials, args.scaling_epochs)
+            scaling(folder, args.scaling_trials, args.scaling_epochs, args.rounds)
     return 0
 
 

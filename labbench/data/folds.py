@@ -51,13 +51,15 @@ class FoldArrays:
 
 def prepare_folds(table: Table, rows: Sequence[int] | np.ndarray,
                   folds: Sequence[tuple[np.ndarray, np.ndarray]], scaling: str = "standard",
-                  target_scaling: str = DEFAULT_TARGET_SCALING) -> FoldArrays:
+                  target_scaling: str = DEFAULT_TARGET_SCALING, dtype=None) -> FoldArrays:
     """Arrays for each fold. ``rows``: positions into ``table`` (the search's training rows);
     ``folds``: (train_pos, val_pos) pairs of positions into ``rows`` (as :func:`make_folds` gives).
 
     Each fold's Preprocessor (and, for regression, its TargetScaler) sees ``table.frame`` /
     ``table.y`` at that fold's training rows and nothing else. ``target_scaling`` is ignored for
-    classification tables.
+    classification tables. ``dtype``: the inputs' dtype (default float64; the search keeps them
+    in float32, the dtype it trains in, converted fold by fold so no float64 copy of all folds
+    is ever held).
     """
     rows = np.asarray(rows, dtype=np.int64)
     numeric, categorical = table.numeric, table.categorical
@@ -72,8 +74,8 @@ def prepare_folds(table: Table, rows: Sequence[int] | np.ndarray,
         tr = rows[np.asarray(train_pos, dtype=np.int64)]
         va = rows[np.asarray(val_pos, dtype=np.int64)]
         pre = Preprocessor(numeric, categorical, scaling, levels=levels).fit(table.frame.iloc[tr])
-        out["X_train"].append(pre.transform(table.frame.iloc[tr]))
-        out["X_val"].append(pre.transform(table.frame.iloc[va]))
+        out["X_train"].append(pre.transform(table.frame.iloc[tr]).astype(dtype or np.float64, copy=False))
+        out["X_val"].append(pre.transform(table.frame.iloc[va]).astype(dtype or np.float64, copy=False))
         if regression:
             target = TargetScaler(target_scaling, table.target).fit(table.y[tr], where)
             out["y_train"].append(target.transform(table.y[tr], where))

@@ -34,9 +34,13 @@ if TYPE_CHECKING:       # config reads OPTIMIZERS' names, so the import runs one
 
 
 class Optimizer:
-    def __init__(self, params: np.ndarray, config: NetConfig, active: np.ndarray):
+    def __init__(self, params: np.ndarray, config: NetConfig, active: np.ndarray,
+                 learning_rate: np.ndarray | None = None, momentum: np.ndarray | None = None):
         self.params = params
-        self.lr = float(config.learning_rate)
+        # one rate per member (stacked configurations) as an (m, 1) column, else the config's
+        self.lr = float(config.learning_rate) if learning_rate is None else \
+            np.asarray(learning_rate, dtype=np.float64).reshape(-1, 1)
+        self._momentum = momentum
         self.active = np.asarray(active, dtype=bool)     # (steps per epoch, m)
         self._tmp = np.empty_like(params)
 
@@ -61,9 +65,10 @@ class SGD(Optimizer):
 
 
 class Momentum(Optimizer):
-    def __init__(self, params, config, active):
-        super().__init__(params, config, active)
-        self.mu = float(config.momentum)
+    def __init__(self, params, config, active, **per_member):
+        super().__init__(params, config, active, **per_member)
+        self.mu = float(config.momentum) if self._momentum is None else \
+            np.asarray(self._momentum, dtype=params.dtype).reshape(-1, 1)
         self.velocity = np.zeros_like(params)
 
     def state(self):
@@ -82,12 +87,13 @@ class Adam(Optimizer):
     beta2 = 0.999
     eps = 1e-8
 
-    def __init__(self, params, config, active):
-        super().__init__(params, config, active)
+    def __init__(self, params, config, active, **per_member):
+        super().__init__(params, config, active, **per_member)
         self.m1 = np.zeros_like(params)
         self.v = np.zeros_like(params)
         self.t = np.zeros(params.shape[0], dtype=np.int64)     # steps taken so far, per member
-        width = 1 if self.active.all() else params.shape[0]
+        per_rate = not np.isscalar(self.lr)
+        width = 1 if self.active.all() and not per_rate else params.shape[0]
         self._rates = np.zeros((self.active.shape[0], width, 1), dtype=params.dtype)
 
     def state(self):
@@ -98,7 +104,8 @@ class Adam(Optimizer):
         t = self.t[None, :] + np.cumsum(self.active, axis=0)
         self.t = t[-1].copy()
         t = np.maximum(t[:, :self._rates.shape[1]], 1).astype(np.float64)
-        rates = self.lr * np.sqrt(1.0 - self.beta2**t) / (1.0 - self.beta1**t)
+        lr = self.lr if np.isscalar(self.lr) else self.lr[:, 0]
+        rates = lr * np.sqrt(1.0 - self.beta2**t) / (1.0 - self.beta1**t)
         self._rates[...] = rates[..., None]
 
     def steps(self, grad, scale, j):
@@ -123,5 +130,10 @@ class Adam(Optimizer):
 OPTIMIZERS: dict[str, type[Optimizer]] = {"sgd": SGD, "momentum": Momentum, "adam": Adam}
 
 
-def make_optimizer(config: NetConfig, params: np.ndarray, active: np.ndarray) -> Optimizer:
-    return OPTIMIZERS[config.optimizer](params, config, active)
+def make_optimizer(config: NetConfig, params: np.ndarray, active: np.ndarray, *,
+                   learning_rate: np.ndarray | None = None,
+                   momentum: np.ndarray | None = None) -> Optimizer:
+    """``learning_rate`` / ``momentum``: one value per member (stacked configurations), or None
+    for the config's."""
+    return OPTIMIZERS[config.optimizer](params, config, active, learning_rate=learning_rate,
+                                        momentum=momentum)

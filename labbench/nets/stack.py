@@ -56,6 +56,7 @@ class _Buffers:
 
     def __init__(self, m: int, width: int, sizes: tuple[int, ...], dtype: np.dtype, *, backward: bool = True):
         hidden, k = sizes[1:-1], sizes[-1]
+        self.x = None                    # index path: the batch's gathered inputs (+ ones)
         self.h = [np.ones((m, width, fo + 1), dtype) for fo in hidden]   # last column stays 1
         self.hv = [h[..., :-1] for h in self.h]
         self.hT = [h.transpose(0, 2, 1) for h in self.h]
@@ -74,12 +75,22 @@ def _as_list(arrays, what: str) -> list[np.ndarray]:
 
 
 class StackTrainer:
+    #: Above this size of the shuffled epoch block, batches are gathered by index step by step
+    #: (measured: the per-step gathers cost ~15 % of a W1 step, the epoch block ~7 %).
+    BLOCK_BYTES = 48 << 20
+    #: The validation metric is computed every this many epochs (and whenever it is needed: an
+    #: epoch a group may keep, the last epoch); NaN in ``EpochScores.val_metric`` elsewhere. The
+    #: validation LOSS is computed every epoch (pruning and patience use it).
+    METRIC_EVERY = 5
+
     def __init__(self, config: NetConfig, task: str, n_outputs: int, X_train: Sequence[np.ndarray],
                  y_train: Sequence[np.ndarray], X_val: Sequence[np.ndarray] | None = None,
                  y_val: Sequence[np.ndarray] | None = None, *, seeds: Sequence[int],
                  metric: str | None = None,
                  target_inverse: Sequence[Callable[[np.ndarray], np.ndarray]] | None = None,
-                 groups: Sequence[int] | None = None):
+                 groups: Sequence[int] | None = None, metric_every: int | None = None,
+                 learning_rate: Sequence[float] | None = None, l2: Sequence[float] | None = None,
+                 momentum: Sequence[float] | None = None):
         if task not in TASKS:
             raise ValueError(f"task {task!r} is not one of {', '.join(TASKS)}")
         X_train, y_train = _as_list(X_train, "X_train"), _as_list(y_train, "y_train")
@@ -91,6 +102,7 @@ class StackTrainer:
         if (task == "multiclass") != (k > 1) or (task == "multiclass" and k < 2):
             raise ValueError(f"n_outputs={k} does not fit a {task} task (1 for regression and binary, C >= 2 classes)")
         self.config, self.task, self.n_outputs, self.seeds = config, task, k, tuple(seeds)
+        self.metric_every = max(1, int(self.METRIC_EVERY if metric_every is None else metric_every))
         self.dtype = dtype = np.dtype(config.dtype)
         d = int(np.shape(X_train[0])[1])
         for i, (x, y) in enumerate(zip(X_train, y_train)):
@@ -110,22 +122,38 @@ class StackTrainer:
         self._WT = [w[:, :-1, :].transpose(0, 2, 1) for w in self._W]
         self._grad = np.zeros_like(self._params)
         self._gW = layout.views(self._grad)
-        self._l2 = float(config.l2)
-        self._l2w = (layout.weight_mask() * self._l2).astype(dtype)
+        # per-member settings (stacked configurations of one shape): one value per member, else
+        # the config's; each member's numbers are exactly those of its solo run
+        self._lr = self._per_member(learning_rate, "learning_rate", m)
+        self._mu = self._per_member(momentum, "momentum", m)
+        l2s = self._per_member(l2, "l2", m)
+        self._l2 = float(config.l2) if l2s is None else l2s
+        self._l2_on = bool(np.any(np.asarray(self._l2) != 0))
+        mask = layout.weight_mask()
+        self._l2w = (mask * self._l2 if l2s is None else mask[None, :] * l2s[:, None]).astype(dtype)
         self._l2tmp = np.zeros_like(self._params)
 
-        # training rows, with a column of ones, and the epoch block they are shuffled into
+        # training rows. Small stacks: each member's rows with a column of ones, copied in
+        # shuffled order into one (m, N, d + 1) block per epoch (one take per member and epoch).
+        # Large ones (that block above BLOCK_BYTES): the rows stay as given (one working-dtype
+        # copy only if the caller's array has another dtype or layout) and every step gathers its
+        # batch by index, so memory does not hold a second and third copy of the data.
         self._n = np.array([np.shape(x)[0] for x in X_train], dtype=np.int64)
-        augmented: dict[int, np.ndarray] = {}      # members given the same array share its copy
+        n_max = int(self._n.max())
+        self._by_index = m * n_max * (d + 1) * dtype.itemsize > self.BLOCK_BYTES
+        prepared: dict[int, np.ndarray] = {}       # members given the same array share its copy
         self._X = []
         for x in X_train:
-            if id(x) not in augmented:
-                augmented[id(x)] = self._augment(x)
-            self._X.append(augmented[id(x)])
+            if id(x) not in prepared:
+                prepared[id(x)] = (np.ascontiguousarray(x, dtype=dtype) if self._by_index
+                                   else self._augment(x))
+            self._X.append(prepared[id(x)])
         self._Y = [encode_targets(task, y, k, dtype) for y in y_train]
-        n_max = int(self._n.max())
-        self._Xe = np.zeros((m, n_max, d + 1), dtype)
-        self._Xe[..., d] = 1
+        self._perm = np.zeros((m, n_max), np.intp)
+        self._Xe = None
+        if not self._by_index:
+            self._Xe = np.zeros((m, n_max, d + 1), dtype)
+            self._Xe[..., d] = 1
         self._Ye = np.zeros((m, n_max, k), dtype)
         self._q = np.zeros((m, n_max), dtype)
         self._plan_steps(min(int(config.batch_size), n_max))
@@ -163,6 +191,15 @@ class StackTrainer:
         self.stopped_early = False
 
     # ---------------------------------------------------------------- set-up helpers
+    @staticmethod
+    def _per_member(values, name: str, m: int) -> np.ndarray | None:
+        if values is None:
+            return None
+        values = np.asarray(values, dtype=np.float64).reshape(-1)
+        if values.shape[0] != m or not np.all(np.isfinite(values)) or np.any(values < 0):
+            raise ValueError(f"{name}: give one finite value >= 0 per member ({m})")
+        return values
+
     def _augment(self, x) -> np.ndarray:
         x = np.asarray(x)
         out = np.empty((x.shape[0], x.shape[1] + 1), self.dtype)
@@ -173,17 +210,21 @@ class StackTrainer:
     def _plan_steps(self, batch: int) -> None:
         """Build, once, the list of numpy calls of a whole epoch (see ``activations.py``)."""
         m, n, dtype = self.n_members, self._n, self.dtype
-        n_max = self._Xe.shape[1]
+        n_max = self._perm.shape[1]
         buffers: dict[int, _Buffers] = {}
         positions = []
         for start in range(0, n_max, batch):
             stop = min(start + batch, n_max)
             width = stop - start
             if width not in buffers:
-                buffers[width] = _Buffers(m, width, self._layout.sizes, dtype)
+                buffers[width] = buf = _Buffers(m, width, self._layout.sizes, dtype)
+                if self._by_index:
+                    buf.x = np.zeros((m, width, self.n_features + 1), dtype)
+                    buf.x[..., -1] = 1
             positions.append((start, stop, np.clip(n - start, 0, width)))
         active = np.array([counts > 0 for _, _, counts in positions])
-        self._optimizer = make_optimizer(self.config, self._params, active)
+        self._optimizer = make_optimizer(self.config, self._params, active, learning_rate=self._lr,
+                                         momentum=self._mu)
         plan: Steps = []
         for j, (start, stop, counts) in enumerate(positions):
             width = stop - start
@@ -192,7 +233,13 @@ class StackTrainer:
             if np.any(counts != width):      # a member with fewer rows: mask them, own divisor
                 rowmask = (np.arange(width)[None, :] < counts[:, None]).astype(dtype)[..., None]
                 scale = (1.0 / np.maximum(counts, 1) * (counts > 0)).astype(dtype).reshape(m, 1)
-            xb = self._Xe[:, start:stop]
+            if self._by_index:               # gather each member's rows of this batch
+                xb = buffers[width].x
+                for i in np.flatnonzero(counts):
+                    plan.append((np.take, (self._X[i], self._perm[i, start:start + counts[i]], 0,
+                                           xb[i, :counts[i], :-1], "clip")))
+            else:
+                xb = self._Xe[:, start:stop]
             plan += self._batch_steps(xb, self._Ye[:, start:stop], self._q[:, start:stop],
                                       buffers[width], rowmask)
             update = self._optimizer.steps(self._grad, scale, j)
@@ -258,16 +305,20 @@ class StackTrainer:
             steps += act.backward(buf.hv[j - 1], back, buf.scratch[j - 1])
             delta = back
         steps.append((np.matmul, (xb.transpose(0, 2, 1), delta, gW[0])))
-        if self._l2:
+        if self._l2_on:
             steps += [(np.multiply, (self._params, self._l2w, self._l2tmp)),
                       (np.add, (self._grad, self._l2tmp, self._grad))]
         return steps
 
     def _shuffle(self) -> None:
+        """One permutation per member from its own generator: the rows are copied in that order
+        into the epoch block, or (index path) the steps gather them by it."""
         for i, rng in enumerate(self._rngs):
             n = int(self._n[i])
-            perm = rng.permutation(n)
-            np.take(self._X[i], perm, axis=0, out=self._Xe[i, :n], mode="clip")
+            perm = self._perm[i, :n]
+            perm[...] = rng.permutation(n)
+            if self._Xe is not None:
+                np.take(self._X[i], perm, axis=0, out=self._Xe[i, :n], mode="clip")
             np.take(self._Y[i], perm, axis=0, out=self._Ye[i, :n], mode="clip")
 
     def _train_epoch(self) -> None:
@@ -299,19 +350,33 @@ class StackTrainer:
         val_loss = val_metric = None
         if self._has_val:
             val_loss = self._validation_loss()
-            outs = self._val_out
-            val_metric = np.empty(m)
-            for i in range(m):
-                out = outs[i, :self._nv[i]]
-                if np.all(np.isfinite(out)):
-                    truth, pred = self._yv[i], self._member_output(out)
-                    if self._target_inverse is not None:   # scores in the target's own units
-                        truth, pred = self._target_inverse[i](truth), self._target_inverse[i](pred)
-                    val_metric[i] = compute(self.metric, truth, pred, self.task,
-                                            self.n_outputs if self.task == "multiclass" else 2)
-                else:
-                    val_metric[i] = np.nan
+            val_metric = np.full(m, np.nan)
+            if (self.epoch % self.metric_every == 0 or self.epoch >= self.config.epochs
+                    or self._best.keeps(val_loss)):
+                self._metric_into(val_metric)
         return EpochScores(self.epoch, train, val_loss, val_metric)
+
+    def _metric_into(self, val_metric: np.ndarray) -> None:
+        """Each member's validation metric from the outputs of the last validation pass."""
+        outs = self._val_out
+        for i in range(self.n_members):
+            out = outs[i, :self._nv[i]]
+            if np.all(np.isfinite(out)):
+                truth, pred = self._yv[i], self._member_output(out)
+                if self._target_inverse is not None:   # scores in the target's own units
+                    truth, pred = self._target_inverse[i](truth), self._target_inverse[i](pred)
+                val_metric[i] = compute(self.metric, truth, pred, self.task,
+                                        self.n_outputs if self.task == "multiclass" else 2)
+            else:
+                val_metric[i] = np.nan
+
+    def _complete_kept_metric(self, scores: EpochScores) -> None:
+        """Stopped by the caller at an epoch whose metric was skipped but which is kept (no
+        patience: the last epoch is kept): compute it now, the outputs are still there."""
+        if scores.val_metric is not None and np.isnan(scores.val_metric).all() \
+                and self._best.kept_now(scores.epoch):
+            self._metric_into(scores.val_metric)
+            self._best.val_metric[:] = scores.val_metric
 
     def _check_finite(self, scores: EpochScores) -> None:
         watched = self._best.watched()
@@ -356,6 +421,7 @@ class StackTrainer:
                 done = self._best.update(scores, self._params)
                 if on_epoch is not None and on_epoch(scores) is False:
                     log.debug("stopped by the caller after epoch %d", self.epoch)
+                    self._complete_kept_metric(scores)
                     return history
                 if done:
                     log.debug("no better validation loss for %d epochs; stopped after epoch %d",
@@ -396,19 +462,19 @@ class StackTrainer:
         Objective (scikit-learn's MLP convention): mean data loss + α / (2 n) · Σ‖W‖² (biases not
         penalised). Computed by the same code path as a training step; for checks.
         """
-        m, n_max = self.n_members, self._Xe.shape[1]
-        X = np.zeros_like(self._Xe)
+        m, n_max, d = self.n_members, self._perm.shape[1], self.n_features
+        X = np.zeros((m, n_max, d + 1), self.dtype)
         X[..., -1] = 1
         Y = np.zeros_like(self._Ye)
         for i in range(m):
-            X[i, :self._n[i]] = self._X[i]
+            X[i, :self._n[i], :d] = self._X[i][:, :d]
             Y[i, :self._n[i]] = self._Y[i]
         q = np.zeros((m, n_max), self.dtype)
         rowmask = (np.arange(n_max)[None, :] < self._n[:, None]).astype(self.dtype)[..., None]
         steps = self._batch_steps(X, Y, q, _Buffers(m, n_max, self._layout.sizes, self.dtype), rowmask)
         with np.errstate(over="ignore", under="ignore"):
             run_steps(steps)
-        penalty = self._l2 * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
+        penalty = np.asarray(self._l2) * np.sum(self._params.astype(np.float64) ** 2 * self._layout.weight_mask(), axis=1)
         loss = np.array([self._out.epoch_loss(q[i, :self._n[i]], self.dtype) for i in range(m)])
         loss += 0.5 * penalty / self._n
         grads = [self._layout.unpack(self._grad[i].astype(np.float64) / self._n[i]) for i in range(m)]

@@ -84,6 +84,19 @@ class BestEpoch:
                 epoch=scores.epoch, member=member,
             )
 
+    def keeps(self, val_loss: np.ndarray) -> bool:
+        """Whether ``update`` with these validation losses would keep this epoch for a group (so
+        its metric is needed). Without patience the kept epoch is the last one run, known only
+        at the end (see ``kept_now``)."""
+        if not self.patience:
+            return False
+        means = self.group_means(val_loss)
+        return bool(np.any(self.active & (means < self._best)))
+
+    def kept_now(self, epoch: int) -> bool:
+        """Whether every member keeps ``epoch`` (the latest) at this moment."""
+        return bool(np.all(self.epoch == epoch))
+
     def update(self, scores: EpochScores, params: np.ndarray) -> bool:
         """Snapshot improving groups, count the others' patience; True when every group is done."""
         if scores.val_loss is None:

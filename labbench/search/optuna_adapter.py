@@ -16,8 +16,11 @@ its models moved); the other functions have no fallback — their tests are the 
 from __future__ import annotations
 
 import contextlib
+import copy
 import json
 import logging
+import threading
+import time
 from typing import Any, Callable, Mapping
 
 # optuna is imported inside the functions: ≈1 s (python -X importtime), and labbench.search.storage
@@ -80,29 +83,61 @@ def _models():
     return models, _create_scoped_session
 
 
-@contextlib.contextmanager
-def _trial_transaction(storage, trial_id: int):
-    """``(session, models)`` of one transaction on a trial that may still be written (Optuna's
-    own check: a finished trial raises ``UpdateFinishedTrialError``). TypeError when the storage
-    is not a database one (the callers then take the public, per-value calls)."""
+def _on_trial(storage, trial_id: int, work, change=None) -> None:
+    """Run ``work(session, models)`` in one transaction on a trial that may still be written
+    (Optuna's own check: a finished trial raises ``UpdateFinishedTrialError``), or, inside
+    ``one_transaction``, queue it for that block's transaction. TypeError when the storage is not
+    a database one (the callers then take the public, per-value calls)."""
     backend = rdb_backend(storage)
     if backend is None:
         raise TypeError("not an RDB storage")
     models, scoped = _models()
-    with scoped(backend.scoped_session, True) as session:
-        row = models.TrialModel.find_or_raise_by_id(trial_id, session)
-        backend.check_trial_is_updatable(trial_id, row.state)
-        yield session, models
+    queued = backend.__dict__.get("_deferred")
+    if queued is not None:
+        queued.append((trial_id, work, change))
+        return
+    try:
+        with scoped(backend.scoped_session, True) as session:
+            row = models.TrialModel.find_or_raise_by_id(trial_id, session)
+            backend.check_trial_is_updatable(trial_id, row.state)
+            work(session, models)
+    except BaseException:
+        _written(backend, trial_id)           # whatever happened: read it again
+        raise
+    _written(backend, trial_id, change)
+
+
+def _written(backend, trial_id: int, change=None) -> None:
+    """Tell a storage that keeps a read view (``starting_storage_class``) that a trial changed:
+    ``change(frozen_trial)`` repeats the write on its copy, or (None) the trial is re-read."""
+    mark = getattr(backend, "mark_written", None)
+    if mark is not None:
+        mark(trial_id, change)
+
+
+def _json_copy(value):
+    """A value as it reads back from the storage's JSON (tuples become lists ...)."""
+    return json.loads(json.dumps(value))
 
 
 def _upsert(session, model, owner: Mapping[str, int], rows, attrs: Mapping[str, Any]) -> None:
     existing = {a.key: a for a in rows}
+    new = []
     for key, value in attrs.items():
         text = json.dumps(value)
         if key in existing:
             existing[key].value_json = text
         else:
-            session.add(model(**owner, key=key, value_json=text))
+            new.append({**owner, "key": key, "value_json": text})
+    _insert_many(session, model, new)
+
+
+def _insert_many(session, model, rows: list[dict]) -> None:
+    """New rows in one executed statement (the ORM sends one INSERT ... RETURNING per row)."""
+    import sqlalchemy
+
+    if rows:
+        session.execute(sqlalchemy.insert(model.__table__), rows)
 
 
 def write_intermediate_values(study, trial_id: int, values: list[tuple[int, float]]) -> None:
@@ -111,15 +146,22 @@ def write_intermediate_values(study, trial_id: int, values: list[tuple[int, floa
     if not values:
         return
     storage = study._storage
+
+    def change(frozen):
+        for step, value in values:
+            frozen.intermediate_values[int(step)] = float(value)
+
+    def work(session, models):
+        value_model = models.TrialIntermediateValueModel
+        rows = []
+        for step, value in values:
+            stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
+            rows.append({"trial_id": trial_id, "step": int(step), "intermediate_value": stored,
+                         "intermediate_value_type": kind})
+        _insert_many(session, value_model, rows)
+
     try:
-        with _trial_transaction(storage, trial_id) as (session, models):
-            value_model = models.TrialIntermediateValueModel
-            rows = []
-            for step, value in values:
-                stored, kind = value_model.intermediate_value_to_stored_repr(float(value))
-                rows.append(value_model(trial_id=trial_id, step=int(step),
-                                        intermediate_value=stored, intermediate_value_type=kind))
-            session.add_all(rows)
+        _on_trial(storage, trial_id, work, change)
     except (ImportError, AttributeError, TypeError) as exc:
         log.debug("per-step intermediate values (%s)", exc)
         for step, value in values:
@@ -130,10 +172,16 @@ def write_user_attrs(trial, attrs: Mapping[str, Any]) -> None:
     """``trial.set_user_attr`` for several keys in one transaction (the trial's own copy too)."""
     storage = trial.study._storage
     tid = trial._trial_id
+
+    def change(frozen):
+        frozen.user_attrs.update(_json_copy(dict(attrs)))
+
+    def work(session, models):
+        model = models.TrialUserAttributeModel
+        _upsert(session, model, {"trial_id": tid}, model.where_trial_id(tid, session), attrs)
+
     try:
-        with _trial_transaction(storage, tid) as (session, models):
-            model = models.TrialUserAttributeModel
-            _upsert(session, model, {"trial_id": tid}, model.where_trial_id(tid, session), attrs)
+        _on_trial(storage, tid, work, change)
         trial._cached_frozen_trial.user_attrs.update(attrs)
     except (ImportError, AttributeError, TypeError) as exc:
         log.debug("per-key user attrs (%s)", exc)
@@ -165,12 +213,22 @@ def claim_trial(backend, trial_id: int, system_attrs: Mapping[str, Any],
     """A first heartbeat plus system and user attrs of a trial, in one transaction (raises when
     that fails, e.g. a heartbeat row exists already; the caller falls back to public calls)."""
     models, scoped = _models()
-    with scoped(backend.scoped_session) as session:
-        session.add(models.TrialHeartbeatModel(trial_id=trial_id))
-        for model, attrs in ((models.TrialSystemAttributeModel, system_attrs),
-                             (models.TrialUserAttributeModel, user_attrs)):
-            _upsert(session, model, {"trial_id": trial_id}, model.where_trial_id(trial_id, session),
-                    attrs)
+
+    def change(frozen):
+        frozen.system_attrs.update(_json_copy(dict(system_attrs)))
+        frozen.user_attrs.update(_json_copy(dict(user_attrs)))
+
+    try:
+        with scoped(backend.scoped_session) as session:
+            session.add(models.TrialHeartbeatModel(trial_id=trial_id))
+            for model, attrs in ((models.TrialSystemAttributeModel, system_attrs),
+                                 (models.TrialUserAttributeModel, user_attrs)):
+                _upsert(session, model, {"trial_id": trial_id},
+                        model.where_trial_id(trial_id, session), attrs)
+    except BaseException:
+        _written(backend, trial_id)
+        raise
+    _written(backend, trial_id, change)
 
 
 def running_heartbeats(backend, study_id: int):
@@ -194,27 +252,238 @@ def running_heartbeats(backend, study_id: int):
 # Hooks into Optuna's classes
 
 
-def starting_storage_class(on_start: Callable[[Any, int], None]):
+#: A storage with a read view re-reads every trial of the study at least this often (trials
+#: other processes change); what this process writes is re-read at its next read.
+READ_REFRESH_S = 2.0
+
+
+def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: float | None = None):
     """An ``RDBStorage`` subclass that calls ``on_start(storage, trial_id)`` for every trial that
-    starts running through it: a new RUNNING trial (``study.ask``), or a WAITING one taken over."""
+    starts running through it (a new RUNNING trial from ``study.ask``, or a WAITING one taken
+    over), and keeps a read view for Optuna's cache of trials.
+
+    The read view. Optuna wraps an RDB storage in a cache that, on EVERY read of the trial list
+    (a sampler reads it 2-4 times per ask, the pruner, ``ask`` looking for a queued trial, ...),
+    queries the database for every unfinished trial and every trial newer than the last finished
+    one, and builds them again (≈2 ms each with SQLite in a search). Here that query
+    (``_get_trials``) asks only for what can have changed: the trials this process wrote since
+    they were last read (every write of a trial through this storage or this module marks it),
+    and trials newer than any read so far (other processes' new trials). Trials that no one here
+    touched keep their cached copy; every ``refresh_s`` seconds (default ``READ_REFRESH_S``) the
+    full query runs, so changes other processes make to older trials (a shared PostgreSQL search)
+    arrive within that time. With nothing written and nothing due, a read costs no query at all.
+    Writes made here are repeated on the cached copy of an unfinished trial (``mark_written``
+    with a change) instead of re-reading it, and ``get_trial`` of such a trial answers from that
+    copy; a write that fails (say the trial was ended elsewhere) sends the trial back to the
+    database for its next read. A search of one process therefore reads exactly what the full
+    query would return (tests/search/test_optuna_adapter.py compares it with a fresh reader).
+    """
     from optuna.storages import RDBStorage
     from optuna.trial import TrialState
 
+    every = READ_REFRESH_S if refresh_s is None else float(refresh_s)
+
     class StartingStorage(RDBStorage):
+        def _view(self):
+            view = self.__dict__.get("_read_view")
+            if view is None:
+                view = self.__dict__["_read_view"] = {
+                    "lock": threading.Lock(), "written": set(), "seen": {}, "full_at": {},
+                    "copies": {}, "study_of": {}}
+            return view
+
+        def mark_written(self, trial_id: int, change=None) -> None:
+            """A trial changed through this process: ``change(frozen)`` repeats the write on the
+            copy the cache holds (no read needed), or the trial is re-read at the next read."""
+            view = self._view()
+            with view["lock"]:
+                frozen = view["copies"].get(int(trial_id))
+                if change is not None and frozen is not None and int(trial_id) not in view["written"]:
+                    change(frozen)
+                else:
+                    view["written"].add(int(trial_id))
+
+        def __getstate__(self):
+            state = super().__getstate__()
+            state.pop("_read_view", None)
+            return state
+
+        def _get_trials(self, study_id, states, included_trial_ids, trial_id_greater_than):
+            view = self._view()
+            now = time.monotonic()
+            seen = view["seen"].get(study_id)
+            full = (states is not None or seen is None
+                    or now - view["full_at"].get(study_id, -1e300) >= every)
+            with view["lock"]:
+                written, view["written"] = view["written"], set()
+            if full:
+                trials = super()._get_trials(study_id, states, included_trial_ids,
+                                             trial_id_greater_than)
+                if states is None:
+                    view["full_at"][study_id] = now
+            elif not written:
+                return []
+            else:
+                # the trials written here, and every trial newer than all read so far (each
+                # older one has been returned once, so the cache's bookkeeping stays whole)
+                trials = super()._get_trials(study_id, None, written, seen)
+            returned = {t._trial_id for t in trials}
+            with view["lock"]:
+                for t in trials:         # the very objects Optuna's cache keeps
+                    if t.state.is_finished():
+                        view["copies"].pop(t._trial_id, None)
+                    else:
+                        view["copies"][t._trial_id] = t
+                        view["study_of"][t._trial_id] = study_id
+            if trials:
+                view["seen"][study_id] = max([-1 if seen is None else seen, *returned])
+            elif seen is None:
+                view["seen"][study_id] = -1
+            left = written - returned      # written trials of another study (or not yet visible)
+            if left:
+                with view["lock"]:
+                    view["written"] |= left
+            return trials
+
         def _create_new_trial(self, study_id, template_trial=None):
             # (Optuna's cached storage calls this one; ``create_new_trial`` goes through it too)
             frozen = super()._create_new_trial(study_id, template_trial)
+            view = self._view()
+            with view["lock"]:      # Optuna's cache keeps this object: later writes update it
+                view["copies"][frozen._trial_id] = frozen
+                view["study_of"][frozen._trial_id] = study_id
             if template_trial is None or template_trial.state == TrialState.RUNNING:
                 on_start(self, frozen._trial_id)
             return frozen
 
+        def get_trial(self, trial_id):
+            # an unfinished trial this process keeps up to date (created or read here, every
+            # write of it repeated on the copy, nothing failed since): the copy is what the
+            # database holds, so no query (Optuna's cache asks for unfinished trials each time)
+            view = self._view()
+            with view["lock"]:
+                frozen = view["copies"].get(trial_id)
+                study_id = view["study_of"].get(trial_id)
+                fresh = (frozen is not None and trial_id not in view["written"]
+                         and time.monotonic() - view["full_at"].get(study_id, -1e300) < every)
+                if fresh:
+                    return copy.deepcopy(frozen)
+            return super().get_trial(trial_id)
+
         def set_trial_state_values(self, trial_id, state, values=None):
-            changed = super().set_trial_state_values(trial_id, state, values)
+            try:
+                changed = super().set_trial_state_values(trial_id, state, values)
+            finally:
+                self.mark_written(trial_id)
             if changed and state == TrialState.RUNNING:   # a queued trial taken over
                 on_start(self, trial_id)
             return changed
 
+    def _set_trial_param(self, trial_id, param_name, param_value_internal, distribution,
+                         previous_distribution):
+        pending = self.__dict__.get("_deferred")
+        if pending is None:
+            try:
+                RDBStorage._set_trial_param(self, trial_id, param_name, param_value_internal,
+                                            distribution, previous_distribution)
+            except BaseException:
+                self.mark_written(trial_id)
+                raise
+            self.mark_written(trial_id, _param_change(param_name, param_value_internal,
+                                                      distribution))
+            return
+        args = (param_name, param_value_internal, distribution, previous_distribution)
+        pending.append((trial_id,
+                        lambda session, models: self._set_trial_param_without_commit(
+                            session, trial_id, *args),
+                        _param_change(param_name, param_value_internal, distribution)))
+
+    def flush(self) -> None:
+        """Run the writes collected by ``one_transaction`` in one transaction."""
+        pending = self.__dict__.pop("_deferred", None)
+        if not pending:
+            return
+        models, scoped = _models()
+        try:
+            with scoped(self.scoped_session, True) as session:
+                checked = set()
+                for trial_id, work, _ in pending:
+                    if trial_id not in checked:
+                        row = models.TrialModel.find_or_raise_by_id(trial_id, session)
+                        self.check_trial_is_updatable(trial_id, row.state)
+                        checked.add(trial_id)
+                    work(session, models)
+        except BaseException:
+            for trial_id, _, _ in pending:
+                self.mark_written(trial_id)
+            raise
+        for trial_id, _, change in pending:
+            self.mark_written(trial_id, change)
+
+    StartingStorage._set_trial_param = _set_trial_param
+    StartingStorage.flush = flush
+
+    def _marking(name, change_of=None):
+        def write(self, trial_id, *args, **kwargs):
+            try:
+                result = getattr(RDBStorage, name)(self, trial_id, *args, **kwargs)
+            except BaseException:
+                self.mark_written(trial_id)
+                raise
+            self.mark_written(trial_id, change_of(*args, **kwargs) if change_of else None)
+            return result
+        write.__name__ = name
+        return write
+
+    def _value_change(step, intermediate_value):
+        def change(frozen):
+            frozen.intermediate_values[int(step)] = float(intermediate_value)
+        return change
+
+    def _attr_change(which):
+        def make(key, value):
+            def change(frozen):
+                getattr(frozen, which)[key] = _json_copy(value)
+            return change
+        return make
+
+    for name, change_of in (("set_trial_param", _param_change),
+                            ("set_trial_intermediate_value", _value_change),
+                            ("set_trial_user_attr", _attr_change("user_attrs")),
+                            ("set_trial_system_attr", _attr_change("system_attrs"))):
+        setattr(StartingStorage, name, _marking(name, change_of))
     return StartingStorage
+
+
+def _param_change(param_name: str, param_value_internal: float, distribution):
+    def change(frozen):
+        frozen.params[param_name] = distribution.to_external_repr(param_value_internal)
+        frozen.distributions[param_name] = distribution
+    return change
+
+
+@contextlib.contextmanager
+def one_transaction(study):
+    """Within the block, the parameters a trial's suggestions store and the writes of this
+    module (``write_user_attrs``, ``write_intermediate_values``) are collected and run in ONE
+    transaction at its end (Optuna writes each parameter in its own; a commit costs ≈1 ms, far
+    more on a loaded machine). Trials' own copies change at once, as usual. An error of the
+    writes (a parameter whose kind changed within the study, a trial finished elsewhere) is
+    raised at the end of the block, and nothing of the block is written. A storage without this
+    ability (not made by ``starting_storage_class``) writes as usual."""
+    backend = rdb_backend(study._storage)
+    if backend is None or not hasattr(backend, "flush") or "_deferred" in backend.__dict__:
+        yield
+        return
+    backend.__dict__["_deferred"] = []
+    try:
+        yield
+    except BaseException:
+        pending = backend.__dict__.pop("_deferred", None) or ()
+        for trial_id, _, _ in pending:
+            backend.mark_written(trial_id)
+        raise
+    backend.flush()
 
 
 def grid_points_started(sampler, study) -> bool:

@@ -67,8 +67,9 @@ def metric_direction(metric: str) -> str:
     return METRICS[metric].direction
 
 
-def prepare(spec: Spec) -> Prepared:
-    """Load and split the spec's data. Raises DataError / SpecError with one-line messages."""
+def prepare(spec: Spec, fold_dtype=None) -> Prepared:
+    """Load and split the spec's data. Raises DataError / SpecError with one-line messages.
+    ``fold_dtype``: the dtype of the folds' inputs (``prepare_folds``; default float64)."""
     from labbench.data import check_folds, holdout_split, load_table, make_folds, prepare_folds
 
     d, e = spec.data, spec.evaluation
@@ -91,7 +92,7 @@ def prepare(spec: Spec) -> Prepared:
     holdout_pos = np.asarray(holdout_pos, dtype=np.int64)
     folds = make_folds(table.y[train_pos], e.folds, repeats=e.repeats, seed=e.seed,
                        stratify=stratify)
-    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling, d.target_scaling)
+    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling, d.target_scaling, dtype=fold_dtype)
     log.info("%s: %d training rows, %d hold-out rows, %d folds", d.path, len(train_pos),
              len(holdout_pos), len(folds))
     return Prepared(table=table, task=task, metric=metric, direction=metric_direction(metric),

@@ -42,7 +42,7 @@ from labbench.search import events as ev
 from labbench.search.bookkeeping import (CANCELLED, LOST, STATE_NAMES, InFlight, SearchOutcome,
                                          best_of, count_states, positive, study_attrs)
 from labbench.search.objective import one_line
-from labbench.search.optuna_adapter import trial_id
+from labbench.search.optuna_adapter import one_transaction, trial_id
 from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
@@ -50,7 +50,7 @@ from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
 from labbench.search.trial_end import TrialEndings
-from labbench.search.workers import WorkerPool
+from labbench.search.workers import TRAIN_DTYPE, WorkerPool
 
 __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
@@ -90,7 +90,7 @@ class SearchRunner(TrialEndings):
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
-        prepared = self.prepared = prepare(self.spec)
+        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE)
         self.direction = prepared.direction
         self.sign = intermediate_sign(prepared.direction)
         self.url = resolve_url(self.spec, self.storage_override)
@@ -241,11 +241,19 @@ class SearchRunner(TrialEndings):
         search stays reproducible; the sampler just sees the last result one trial later."""
         for depth in range(1, 2 + self.prefetch):
             for slot in self.pool.with_room(depth):
-                if depth > 1 and not self._time_for_another():
+                if depth > 1 and not (self._time_for_another() and self._enough_left()):
                     return
                 if not self._budget_left():
                     return
                 self._start_trial(slot)
+
+    def _enough_left(self) -> bool:
+        """Queue a trial behind another only while the trials left keep every other worker busy
+        too: at the end of the budget a trial queued behind a busy worker would wait while
+        another worker idles (with two workers that tail cost up to one trial's time)."""
+        if self.trials is None:
+            return True
+        return self.trials - self.asked > len(self.pool.alive())
 
     def _time_for_another(self) -> bool:
         """Queue a trial only when the time budget will probably not end before it starts."""
@@ -264,7 +272,10 @@ class SearchRunner(TrialEndings):
         trial = self.study.ask()
         self.asked += 1
         try:
-            settings = self.spec.space.suggest(trial)
+            with one_transaction(self.study):   # the trial's params and attrs: one commit
+                settings = self.spec.space.suggest(trial)
+                write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
+                                         "end_reason": LOST})   # overwritten when it ends here
         except ValueError as exc:             # a parameter changed kind/choices within the study
             self.study.tell(trial, state=optuna.trial.TrialState.FAIL, skip_if_finished=True)
             raise SpecError(
@@ -272,8 +283,6 @@ class SearchRunner(TrialEndings):
                 "used this name differently, run with --fresh or set another [search] name"
             ) from None
         self.beats.add(trial_id(trial))
-        write_user_attrs(trial, {"settings": plain(settings), "worker": slot.label,
-                                 "end_reason": LOST})   # overwritten when the trial ends here
         self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
         self.pool.assign(slot, trial.number, plain(settings))
 

@@ -21,7 +21,7 @@ from optuna.trial import TrialState
 from labbench.search import events as ev
 from labbench.search.bookkeeping import CANCELLED, LOST, InFlight, eta
 from labbench.search.objective import curve_attr, cv_summary
-from labbench.search.optuna_adapter import note_intermediate_value, trial_id
+from labbench.search.optuna_adapter import note_intermediate_value, one_transaction, trial_id
 from labbench.search.ranking import is_better
 from labbench.search.states import key_of
 from labbench.search.storage import plain, write_intermediate_values, write_user_attrs
@@ -122,8 +122,9 @@ class TrialEndings:
         if measures is not None:               # a map family: fold means of its measures + units
             attrs["measures"] = dict(measures)
         try:
-            self._save_values(flight)
-            write_user_attrs(trial, plain(attrs))
+            with one_transaction(self.study):  # the last values and the attrs: one commit
+                self._save_values(flight)
+                write_user_attrs(trial, plain(attrs))
         except UpdateFinishedTrialError:       # failed as stale by another process meanwhile
             log.warning("trial %d was already finished elsewhere; its result is dropped",
                         trial.number)

@@ -61,12 +61,32 @@ class _ControllerGone(Exception):
     pass
 
 
+#: The dtype trials train in (``objective.run_trial``'s default): the fold inputs are prepared in
+#: it (half the memory of float64; the values the engine would convert them to anyway, and a
+#: stack too large for an epoch block then trains on these very arrays, ``labbench.nets.stack``).
+TRAIN_DTYPE = "float32"
+
+
+def _limit_blas(threads: int) -> None:
+    """Limit the BLAS already loaded to ``threads`` threads. Importing this module loads numpy
+    (and its BLAS reads the thread variables then), so setting them in ``worker_main`` came too
+    late: each worker ran OpenBLAS with a thread per core, and the engine's own one-thread limit
+    (``labbench.nets.blas``) stands aside when the variables are set. Measured: two workers took
+    ~4 × the CPU per trial of one and a run with two workers was 2 × SLOWER than with one."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:
+        return
+    threadpool_limits(limits=max(1, threads), user_api="blas")
+
+
 def worker_main(index: int, spec_blob: bytes, data_sha256: str, conn, stop, halt,
                 threads: int, log_level: int) -> None:
     """Entry point of a worker process (module-level so ``spawn`` can import it)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
-    for var in _THREAD_VARS:                 # before numpy is imported in this process
+    for var in _THREAD_VARS:                 # for libraries loaded from here on
         os.environ.setdefault(var, str(threads))
+    _limit_blas(int(os.environ.get("OPENBLAS_NUM_THREADS") or threads))
     logging.basicConfig(level=log_level, format="%(levelname)s %(name)s[worker]: %(message)s")
 
     def put(message) -> None:
@@ -88,7 +108,7 @@ def _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level) -> N
         spec = pickle.loads(spec_blob)
         root = logging.getLogger("labbench")
         root.setLevel(max(log_level, logging.ERROR))   # the controller already said its warnings
-        prepared = prepare(spec)
+        prepared = prepare(spec, fold_dtype=TRAIN_DTYPE)
         root.setLevel(log_level)
         if data_sha256 and prepared.table.sha256 != data_sha256:
             raise DataError(f"{spec.data.path}: the file changed while the search was starting; "

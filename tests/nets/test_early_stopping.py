@@ -175,3 +175,45 @@ def test_a_healthy_run_never_comes_near_the_bound():
     reference = min(trainer._validation_loss()[0], trainer._constant_loss()[0])
     worst = max(s.val_loss[0] for s in trainer.run())
     assert worst < 10 * reference < EXPLODE_FACTOR * reference
+
+
+def _rmse(y, pred):
+    # the RMSE written out (common practice), independent of labbench.nets.metrics
+    return float(np.sqrt(np.mean((np.asarray(y, np.float64) - pred) ** 2)))
+
+
+def test_the_metric_is_skipped_between_needed_epochs_and_exact_where_it_counts():
+    # The validation loss is computed every epoch; the metric every METRIC_EVERY epochs, at the
+    # last epoch and at every epoch a group keeps, NaN elsewhere (an honest curve).
+    Xs, ys, Xv, yv = _noisy_folds(np.random.default_rng(3), n_folds=2)
+    trainer = StackTrainer(CONFIG, "regression", 1, Xs, ys, Xv, yv, seeds=[1, 2], metric="rmse")
+    history = trainer.run()
+    every = trainer.metric_every
+    assert every > 1 and all(np.isfinite(s.val_loss).all() for s in history)
+    best = float("inf")
+    for s in history:
+        improved = s.val_loss.mean() < best
+        best = min(best, s.val_loss.mean())
+        assert np.isfinite(s.val_metric).all() == (improved or s.epoch % every == 0), s.epoch
+    # the kept epoch's score equals the metric of the kept weights, computed from scratch
+    for i in range(2):
+        pred = trainer.predict_output(i, Xv[i])
+        assert trainer.best_val_metric[i] == pytest.approx(_rmse(yv[i], pred), rel=1e-9)
+
+
+def test_without_patience_a_run_stopped_at_a_skipped_epoch_still_scores_it():
+    Xs, ys, Xv, yv = _noisy_folds(np.random.default_rng(0), n_folds=2)
+    config = replace(CONFIG, epochs=40, patience=0)
+    trainer = StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[7, 8], metric="rmse")
+    history = trainer.run(on_epoch=lambda s: s.epoch < 7)      # 7 is not a multiple of 5
+    assert len(history) == 7 and (trainer.best_epoch == 7).all()
+    for i in range(2):
+        pred = trainer.predict_output(i, Xv[i])
+        assert trainer.best_val_metric[i] == pytest.approx(_rmse(yv[i], pred), rel=1e-9)
+    # metric_every=1 gives every epoch, equal to the skipped run's values where both have them
+    full = StackTrainer(config, "regression", 1, Xs, ys, Xv, yv, seeds=[7, 8], metric="rmse",
+                        metric_every=1).run(on_epoch=lambda s: s.epoch < 7)
+    for a, b in zip(history, full):
+        assert np.isfinite(b.val_metric).all()
+        if np.isfinite(a.val_metric).all():
+            assert np.array_equal(a.val_metric, b.val_metric)

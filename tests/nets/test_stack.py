@@ -182,3 +182,64 @@ def test_validation_in_several_chunks_scores_every_row():
         assert last.val_metric[i] == pytest.approx(metrics.compute("balanced_accuracy", yv[i], out, "multiclass", 3))
         expected = -np.mean(np.log(np.clip(out[np.arange(len(yv[i])), yv[i]], 1e-7, 1)))
         assert last.val_loss[i] == pytest.approx(expected, rel=1e-5)
+
+
+@pytest.mark.parametrize("task", ["binary", "multiclass"])
+def test_batches_gathered_by_index_train_exactly_as_the_epoch_block(task, monkeypatch):
+    # Large stacks gather each batch by index instead of copying a shuffled epoch block (memory);
+    # both paths must give the same numbers bit for bit, ragged members included.
+    rng = np.random.default_rng(7)
+    k = 3 if task == "multiclass" else 1
+    Xs, ys = _members(task, rng, RAGGED)
+    Xv, yv = _members(task, rng, [9, 5, 7])
+    config = NetConfig(hidden=(6,), batch_size=16, epochs=4, l2=0.01, learning_rate=0.01)
+    block = StackTrainer(config, task, k, Xs, ys, Xv, yv, seeds=[3, 4, 5])
+    assert not block._by_index
+    monkeypatch.setattr(StackTrainer, "BLOCK_BYTES", 0)
+    indexed = StackTrainer(config, task, k, Xs, ys, Xv, yv, seeds=[3, 4, 5])
+    assert indexed._by_index
+    for a, b in zip(block.run(), indexed.run()):
+        assert np.array_equal(a.train_loss, b.train_loss) and np.array_equal(a.val_loss, b.val_loss)
+    for member in range(3):
+        for a, b in zip(_all_weights(block, member), _all_weights(indexed, member)):
+            assert np.array_equal(a, b)
+
+
+@pytest.mark.parametrize("optimizer", ["sgd", "momentum", "adam"])
+@pytest.mark.parametrize("dtype", ["float32", "float64"])
+def test_stacked_configurations_train_each_member_exactly_as_its_solo_run(optimizer, dtype):
+    # Configurations of one shape with their own learning rate, L2 and momentum, stacked with
+    # their folds (one group per configuration): every member follows the path of the same
+    # configuration trained alone (as test_stacked_members_equal_members_trained_alone).
+    rng = np.random.default_rng(5)
+    Xs, ys = _members("binary", rng, RAGGED)
+    Xv, yv = _members("binary", rng, [9, 5, 7])
+    configs = [(0.01, 0.1, 0.9), (0.003, 0.0, 0.5), (0.03, 0.01, 0.0)]   # (lr, l2, momentum)
+    members = [(c, f) for c in range(3) for f in range(3)]               # 3 configurations × 3 folds
+    base = NetConfig(hidden=(6, 5), optimizer=optimizer, batch_size=16, epochs=5, dtype=dtype,
+                     patience=2)
+    stack = StackTrainer(base, "binary", 1, [Xs[f] for _, f in members], [ys[f] for _, f in members],
+                         [Xv[f] for _, f in members], [yv[f] for _, f in members],
+                         seeds=[10 + f for _, f in members], groups=[c for c, _ in members],
+                         learning_rate=[configs[c][0] for c, _ in members],
+                         l2=[configs[c][1] for c, _ in members],
+                         momentum=[configs[c][2] for c, _ in members])
+    stacked = stack.run()
+    rtol = 1e-5 if dtype == "float32" else 1e-12
+    for c, (lr, l2, mu) in enumerate(configs):
+        solo_config = NetConfig(hidden=(6, 5), optimizer=optimizer, batch_size=16, epochs=5,
+                                dtype=dtype, patience=2, learning_rate=lr, l2=l2, momentum=mu)
+        alone = StackTrainer(solo_config, "binary", 1, Xs, ys, Xv, yv, seeds=[10, 11, 12])
+        single = alone.run()
+        rows = [i for i, (cc, _) in enumerate(members) if cc == c]
+        assert list(stack.best_epoch[rows]) == list(alone.best_epoch)
+        for i, f in zip(rows, range(3)):
+            for a, b in zip(_all_weights(stack, i), _all_weights(alone, f)):
+                np.testing.assert_allclose(a, b, rtol=rtol, atol=rtol * 1e-2)
+            for s, one in zip(stacked, single):
+                np.testing.assert_allclose(s.train_loss[i], one.train_loss[f], rtol=rtol)
+                np.testing.assert_allclose(s.val_loss[i], one.val_loss[f], rtol=rtol)
+    # the configurations really differ
+    assert not np.allclose(_all_weights(stack, 0)[0], _all_weights(stack, 3)[0])
+    with pytest.raises(ValueError, match="learning_rate"):
+        StackTrainer(base, "binary", 1, Xs, ys, seeds=[1, 2, 3], learning_rate=[0.1, 0.2])

@@ -170,6 +170,114 @@ def test_starting_storage_sees_every_trial_that_starts(tmp_path):
     assert sorted(started) == sorted(running) and len(started) == 2
 
 
+def _snapshot(study):
+    """Everything a sampler or pruner reads of each trial (Optuna's public FrozenTrial fields)."""
+    return [(t.number, t.state, t.values, t.params, t.user_attrs, t.system_attrs,
+             t.intermediate_values) for t in study.get_trials(deepcopy=False)]
+
+
+def test_the_read_view_reads_what_a_fresh_reader_reads(tmp_path):
+    # Reference: a study loaded through a plain RDBStorage (Optuna's own public reads, no view)
+    # after every kind of write a search makes, with no refresh due in between.
+    url = f"sqlite:///{tmp_path}/view.db"
+    cls = oa.starting_storage_class(lambda store, tid: None, refresh_s=3600)
+    study = _study(cls(url))
+
+    def fresh():
+        return optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(url))
+
+    assert _snapshot(study) == _snapshot(fresh())
+    for k in range(4):
+        trial = study.ask()
+        trial.suggest_float("x", 0, 1)
+        assert _snapshot(study) == _snapshot(fresh())
+        oa.write_user_attrs(trial, {"settings": {"k": k}})
+        oa.write_intermediate_values(study, oa.trial_id(trial), [(1, 0.5), (2, 0.25)])
+        trial.report(0.1, 3)
+        assert _snapshot(study) == _snapshot(fresh())
+        if k % 2:
+            study.tell(trial, float(k))
+        else:
+            study.tell(trial, state=TrialState.PRUNED)
+        assert _snapshot(study) == _snapshot(fresh())
+
+
+def test_the_read_view_never_loses_trials_another_process_starts(tmp_path):
+    # Another process (another storage object) creates a trial between two of ours, then ends
+    # it; ours finishes first. The view sees the other's trial and, after the refresh time, its
+    # end (Optuna's cache skips trials older than the last finished one it saw: none may be
+    # skipped before it was read once).
+    url = f"sqlite:///{tmp_path}/shared.db"
+    cls = oa.starting_storage_class(lambda store, tid: None, refresh_s=3600)
+    view_storage = cls(url)
+    study = _study(view_storage)
+    other = optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(url))
+    first = study.ask()
+    assert len(study.get_trials()) == 1
+    theirs = other.ask()
+    ours = study.ask()
+    study.tell(ours, 1.0)
+    study.tell(first, 2.0)
+    assert [t.number for t in study.get_trials()] == [0, 1, 2]
+    other.tell(theirs, 3.0)
+    assert study.get_trials()[1].state == TrialState.RUNNING     # not refreshed yet
+    view_storage._view()["full_at"].clear()                       # the refresh time has come
+    assert _snapshot(study) == _snapshot(other)
+    assert study.get_trials()[1].value == 3.0
+
+
+def test_one_transaction_stores_what_the_writes_store_one_by_one(tmp_path):
+    # Reference: the same suggestions on a plain RDBStorage (Optuna writes each parameter in
+    # its own transaction); stored trials must read back identical (params and distributions).
+    cls = oa.starting_storage_class(lambda store, tid: None)
+    ours = _study(cls(f"sqlite:///{tmp_path}/deferred.db"), sampler=optuna.samplers.RandomSampler(seed=3))
+    plain = _study(optuna.storages.RDBStorage(f"sqlite:///{tmp_path}/plain.db"),
+                   sampler=optuna.samplers.RandomSampler(seed=3))
+
+    def suggest(trial):
+        return (trial.suggest_float("lr", 1e-4, 1e-1, log=True), trial.suggest_int("units", 8, 64),
+                trial.suggest_categorical("act", ["relu", "tanh"]))
+
+    for _ in range(3):
+        a, b = ours.ask(), plain.ask()
+        with oa.one_transaction(ours):
+            got = suggest(a)
+            assert a.params == dict(zip(("lr", "units", "act"), got))   # the trial's own copy
+            oa.write_user_attrs(a, {"settings": list(got)})
+            oa.write_intermediate_values(ours, oa.trial_id(a), [(1, 0.5)])
+        b.set_user_attr("settings", list(got))
+        b.report(0.5, 1)
+        assert got == suggest(b)
+        ours.tell(a, 1.0)
+        plain.tell(b, 1.0)
+    fresh = optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(
+        f"sqlite:///{tmp_path}/deferred.db"))
+    for x, y in zip(fresh.get_trials(), plain.get_trials()):
+        assert x.params == y.params and x.distributions == y.distributions
+        assert x.user_attrs == y.user_attrs and x.intermediate_values == y.intermediate_values
+    # a parameter that changes kind within the study fails as Optuna's own write does
+    trial = ours.ask()
+    with pytest.raises(ValueError):
+        with oa.one_transaction(ours):
+            trial.suggest_int("lr", 1, 3)
+
+
+def test_a_trial_ended_by_another_process_is_seen_as_ended_after_a_failed_write(tmp_path):
+    # The runner's order when a trial was failed elsewhere (a stale heartbeat): its write raises
+    # UpdateFinishedTrialError, then tell(skip_if_finished=True) must see the trial finished (the
+    # read view must not answer from its copy) and return quietly, as on a plain storage.
+    url = f"sqlite:///{tmp_path}/stale.db"
+    cls = oa.starting_storage_class(lambda store, tid: None, refresh_s=3600)
+    study = _study(cls(url))
+    trial = study.ask()
+    other = optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(url))
+    other.tell(trial.number, state=TrialState.FAIL)
+    with pytest.raises(UpdateFinishedTrialError):
+        oa.write_user_attrs(trial, {"end_reason": "x"})
+    study.tell(trial, 1.0, skip_if_finished=True)
+    assert study.get_trials()[0].state == TrialState.FAIL
+
+
 def test_grid_points_started_against_is_exhausted(storage):
     from labbench.search.strategy import _grid_sampler
 
