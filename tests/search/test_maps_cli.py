@@ -20,6 +20,7 @@ from labbench.families import family_names, get_family, register
 from labbench.search.objective import run_trial
 from labbench.search.prepare import prepare
 from labbench.search.spec import load_spec
+from labbench.search.workers import TRAIN_DTYPE
 from runner_support import ROOT, iris_csv, load
 from test_maps_search import blobs_csv
 
@@ -67,7 +68,7 @@ def test_run_show_and_pick_a_search_without_a_target(tmp_path):
     assert study.user_attrs["task"] == "unsupervised" and study.user_attrs["label"] == "kind"
     done = [t for t in study.trials if t.state.name == "COMPLETE"]
     assert len(done) == 6
-    prepared = prepare(load_spec(spec))
+    prepared = prepare(load_spec(spec), fold_dtype=TRAIN_DTYPE)    # as the workers prepare
     for t in done:
         measures = t.user_attrs["measures"]
         assert measures["units"] == t.user_attrs["settings"]["units"]
