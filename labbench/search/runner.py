@@ -90,7 +90,8 @@ class SearchRunner(TrialEndings):
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
-        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE)
+        # the controller never trains: its fold inputs are made only if the winner needs them
+        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE, lazy_folds=True)
         self.direction = prepared.direction
         self.sign = intermediate_sign(prepared.direction)
         self.url = resolve_url(self.spec, self.storage_override)
