@@ -15,11 +15,13 @@ and send back one message per epoch. The controller
 * emits the events of ``labbench.search.events`` through ``emit``,
 * stops asking when the trial budget (trials added by this run) or the time budget runs out.
 
-Each worker holds its training trial plus ``prefetch`` (default 1) asked trials queued behind it,
-so the sampler and the storage work while the worker trains; storage therefore shows up to
-``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. ``TrialStarted`` is
-emitted when a worker begins training a trial; a queued trial cancelled before it began ends with
-a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
+Each worker holds its training trial plus ``prefetch`` (default ``PREFETCH`` = 3) asked trials
+queued behind it, so the sampler and the storage work while the worker trains; storage therefore
+shows up to ``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is
+fixed (never timed), so a seeded one-worker search stays reproducible: the asks and tells come in
+the order of the worker's messages, and the sampler sees each result ``prefetch`` asks later.
+``TrialStarted`` is emitted when a worker begins training a trial; a queued trial cancelled
+before it began ends with a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
 
 Cancel is cooperative: set the ``cancel`` event (or press Ctrl-C in a terminal) and the trials in
 flight stop after their current epoch and are told FAIL with ``end_reason`` "cancelled by the
@@ -56,6 +58,12 @@ __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
 log = logging.getLogger("labbench.search.runner")
 
+#: Asked trials queued behind each worker's training one. One was not enough: a pruned or short
+#: trial ends sooner than the controller asks, writes and tells for one trial, and the worker
+#: waited (orchard demo, 200 trials, one worker: 17.8 % of the training time outside training
+#: with 1, 9.8 % with 3; benchmarks/bench_search.py).
+PREFETCH = 3
+
 class SearchRunner(TrialEndings):
     """One run of a search (see the module text). ``emit`` receives every event, in order.
 
@@ -67,7 +75,7 @@ class SearchRunner(TrialEndings):
                  trials: int | None = None, minutes: float | None = None,
                  workers: int | None = None, fresh: bool = False,
                  heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0,
-                 prefetch: int = 1):
+                 prefetch: int = PREFETCH):
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
@@ -205,11 +213,17 @@ class SearchRunner(TrialEndings):
         if self.minutes is not None and self._elapsed() >= 60.0 * self.minutes:
             self.stop_reason = "time"
             return False
-        if hasattr(self.sampler, "all_started") and self.sampler.all_started(self.study):
+        if (hasattr(self.sampler, "all_started") and self.sampler.all_started(self.study)
+                and not self._retry_waiting()):
             self.stop_reason = "budget"
             self.emit(ev.Notice("every point of the grid has been tried", "info"))
             return False
         return True
+
+    def _retry_waiting(self) -> bool:
+        """A trial queued again (its worker died) waits to be asked: its grid point counts as
+        started, yet it has not trained."""
+        return any(t.state == TrialState.WAITING for t in self.study.get_trials(deepcopy=False))
 
     def _step(self) -> bool:
         """One turn of the controller; True when the run is over."""
@@ -353,6 +367,8 @@ class SearchRunner(TrialEndings):
             else:                                   # never trained: queue it for whoever is left
                 self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
                 retry_later(self.study, trial_id(queued.trial), queue=True)
+        if self.stop_reason == "budget" and self._retry_waiting():
+            self.stop_reason = None      # every trial was asked ahead; the retry is still owed
         number = slot.index + 1
         if restarted:
             text = (f"worker process {number} stopped unexpectedly (exit code {exitcode}"
