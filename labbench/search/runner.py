@@ -256,7 +256,7 @@ class SearchRunner(TrialEndings):
         search stays reproducible; the sampler just sees the last result one trial later."""
         for depth in range(1, 2 + self.prefetch):
             for slot in self.pool.with_room(depth):
-                if depth > 1 and not (self._time_for_another() and self._enough_left()):
+                if depth > 1 and not (self._time_for_another(depth - 1) and self._enough_left()):
                     return
                 if not self._budget_left():
                     return
@@ -270,13 +270,14 @@ class SearchRunner(TrialEndings):
             return True
         return self.trials - self.asked > len(self.pool.alive())
 
-    def _time_for_another(self) -> bool:
-        """Queue a trial only when the time budget will probably not end before it starts."""
+    def _time_for_another(self, ahead: int = 1) -> bool:
+        """Queue a trial only when the time budget will probably not end before it starts
+        (behind ``ahead`` trials that train first)."""
         if self.minutes is None:
             return True
         durations = self.durations[-10:]
         typical = sum(durations) / len(durations) if durations else 0.0
-        return self._elapsed() + typical < 60.0 * self.minutes
+        return self._elapsed() + ahead * typical < 60.0 * self.minutes
 
     def _start_trial(self, slot) -> None:
         now = time.monotonic()
