@@ -15,10 +15,11 @@ and send back one message per epoch. The controller
 * emits the events of ``labbench.search.events`` through ``emit``,
 * stops asking when the trial budget (trials added by this run) or the time budget runs out.
 
-Each worker holds its training trial plus ``prefetch`` (default ``PREFETCH`` = 3) asked trials
-queued behind it, so the sampler and the storage work while the worker trains; storage therefore
-shows up to ``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is
-fixed (never timed), so a seeded one-worker search stays reproducible: the asks and tells come in
+Each worker holds its training trial plus ``prefetch`` (default: ``PREFETCH`` = 3 asked trials for
+a single worker, ``PREFETCH_SEVERAL`` = 1 each for several) queued behind it, so the sampler
+and the storage work while the worker trains; storage therefore shows up to
+``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is fixed (never
+timed), so a seeded one-worker search stays reproducible: the asks and tells come in
 the order of the worker's messages, and the sampler sees each result ``prefetch`` asks later.
 ``TrialStarted`` is emitted when a worker begins training a trial; a queued trial cancelled
 before it began ends with a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
@@ -58,11 +59,14 @@ __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
 log = logging.getLogger("labbench.search.runner")
 
-#: Asked trials queued behind each worker's training one. One was not enough: a pruned or short
-#: trial ends sooner than the controller asks, writes and tells for one trial, and the worker
-#: waited (orchard demo, 200 trials, one worker: 17.8 % of the training time outside training
-#: with 1, 9.8 % with 3; benchmarks/bench_search.py).
+#: Asked trials queued behind a single worker's training one. One was not enough: a pruned or
+#: short trial ends sooner than the controller asks, writes and tells for one trial, and the
+#: worker waited (orchard demo, 200 trials, one worker, three paired rounds: 0.25 against 0.007
+#: of the training time outside training, medians; benchmarks/bench_search.py). With several
+#: workers each keeps one queued trial (``PREFETCH_SEVERAL``): deeper queues leave more trials
+#: behind one worker while another has run out at the end of the budget.
 PREFETCH = 3
+PREFETCH_SEVERAL = 1
 
 class SearchRunner(TrialEndings):
     """One run of a search (see the module text). ``emit`` receives every event, in order.
@@ -75,7 +79,7 @@ class SearchRunner(TrialEndings):
                  trials: int | None = None, minutes: float | None = None,
                  workers: int | None = None, fresh: bool = False,
                  heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0,
-                 prefetch: int = PREFETCH):
+                 prefetch: int | None = None):
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
@@ -88,6 +92,8 @@ class SearchRunner(TrialEndings):
         self.fresh = fresh
         self.heartbeat = heartbeat or Heartbeat.from_env()
         self.stop_timeout_s = stop_timeout_s
+        if prefetch is None:
+            prefetch = PREFETCH if self.workers == 1 else PREFETCH_SEVERAL
         self.prefetch = max(0, int(prefetch))
         self.poll_s = 0.05
 
