@@ -67,9 +67,33 @@ def metric_direction(metric: str) -> str:
     return METRICS[metric].direction
 
 
-def prepare(spec: Spec, fold_dtype=None) -> Prepared:
+class LazyFoldArrays:
+    """The ``FoldArrays`` made at the first use of one of their attributes. The search's
+    controller never trains (its workers prepare their own folds), so its process holds the
+    fold inputs only if the winner's seed spread needs them (measured: the folds and their
+    preparation were the command process's peak memory on a 100,000 × 50 table)."""
+
+    def __init__(self, make):
+        self._make = make
+        self._value = None
+
+    def materialize(self):
+        if self._value is None:
+            self._value = self._make()
+            self._make = None
+        return self._value
+
+    def __getattr__(self, name: str):
+        if name.startswith("_"):            # pickling and copying look these up first
+            raise AttributeError(name)
+        return getattr(self.materialize(), name)
+
+
+def prepare(spec: Spec, fold_dtype=None, *, lazy_folds: bool = False) -> Prepared:
     """Load and split the spec's data. Raises DataError / SpecError with one-line messages.
-    ``fold_dtype``: the dtype of the folds' inputs (``prepare_folds``; default float64)."""
+    ``fold_dtype``: the dtype of the folds' inputs (``prepare_folds``; default float64).
+    ``lazy_folds``: prepare the fold inputs only when first used (``LazyFoldArrays``); the same
+    checks run first, so bad data is still reported here."""
     from labbench.data import check_folds, holdout_split, load_table, make_folds, prepare_folds
 
     d, e = spec.data, spec.evaluation
@@ -92,7 +116,14 @@ def prepare(spec: Spec, fold_dtype=None) -> Prepared:
     holdout_pos = np.asarray(holdout_pos, dtype=np.int64)
     folds = make_folds(table.y[train_pos], e.folds, repeats=e.repeats, seed=e.seed,
                        stratify=stratify)
-    fold_arrays = prepare_folds(table, train_pos, folds, d.scaling, d.target_scaling, dtype=fold_dtype)
+    def make():
+        return prepare_folds(table, train_pos, folds, d.scaling, d.target_scaling, dtype=fold_dtype)
+
+    if lazy_folds and table.task == "regression":   # prepare_folds' one check of the target
+        from labbench.data import TargetScaler
+
+        TargetScaler(d.target_scaling, table.target).fit(table.y, f"{table.path}: ")
+    fold_arrays = LazyFoldArrays(make) if lazy_folds else make()
     log.info("%s: %d training rows, %d hold-out rows, %d folds", d.path, len(train_pos),
              len(holdout_pos), len(folds))
     return Prepared(table=table, task=task, metric=metric, direction=metric_direction(metric),

@@ -15,11 +15,14 @@ and send back one message per epoch. The controller
 * emits the events of ``labbench.search.events`` through ``emit``,
 * stops asking when the trial budget (trials added by this run) or the time budget runs out.
 
-Each worker holds its training trial plus ``prefetch`` (default 1) asked trials queued behind it,
-so the sampler and the storage work while the worker trains; storage therefore shows up to
-``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. ``TrialStarted`` is
-emitted when a worker begins training a trial; a queued trial cancelled before it began ends with
-a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
+Each worker holds its training trial plus ``prefetch`` (default: ``PREFETCH`` = 3 asked trials for
+a single worker, ``PREFETCH_SEVERAL`` = 1 each for several) queued behind it, so the sampler
+and the storage work while the worker trains; storage therefore shows up to
+``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is fixed (never
+timed), so a seeded one-worker search stays reproducible: the asks and tells come in
+the order of the worker's messages, and the sampler sees each result ``prefetch`` asks later.
+``TrialStarted`` is emitted when a worker begins training a trial; a queued trial cancelled
+before it began ends with a ``TrialEnded`` (state "cancelled", 0 epochs) and no ``TrialStarted``.
 
 Cancel is cooperative: set the ``cancel`` event (or press Ctrl-C in a terminal) and the trials in
 flight stop after their current epoch and are told FAIL with ``end_reason`` "cancelled by the
@@ -56,6 +59,15 @@ __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
 log = logging.getLogger("labbench.search.runner")
 
+#: Asked trials queued behind a single worker's training one. One was not enough: a pruned or
+#: short trial ends sooner than the controller asks, writes and tells for one trial, and the
+#: worker waited (orchard demo, 200 trials, one worker, three paired rounds: 0.25 against 0.007
+#: of the training time outside training, medians; benchmarks/bench_search.py). With several
+#: workers each keeps one queued trial (``PREFETCH_SEVERAL``): deeper queues leave more trials
+#: behind one worker while another has run out at the end of the budget.
+PREFETCH = 3
+PREFETCH_SEVERAL = 1
+
 class SearchRunner(TrialEndings):
     """One run of a search (see the module text). ``emit`` receives every event, in order.
 
@@ -67,7 +79,7 @@ class SearchRunner(TrialEndings):
                  trials: int | None = None, minutes: float | None = None,
                  workers: int | None = None, fresh: bool = False,
                  heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0,
-                 prefetch: int = 1):
+                 prefetch: int | None = None):
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
@@ -80,6 +92,8 @@ class SearchRunner(TrialEndings):
         self.fresh = fresh
         self.heartbeat = heartbeat or Heartbeat.from_env()
         self.stop_timeout_s = stop_timeout_s
+        if prefetch is None:
+            prefetch = PREFETCH if self.workers == 1 else PREFETCH_SEVERAL
         self.prefetch = max(0, int(prefetch))
         self.poll_s = 0.05
 
@@ -90,7 +104,8 @@ class SearchRunner(TrialEndings):
         self.cancel = cancel if cancel is not None else threading.Event()
         self.t0 = time.monotonic()
         route_optuna_logging()
-        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE)
+        # the controller never trains: its fold inputs are made only if the winner needs them
+        prepared = self.prepared = prepare(self.spec, fold_dtype=TRAIN_DTYPE, lazy_folds=True)
         self.direction = prepared.direction
         self.sign = intermediate_sign(prepared.direction)
         self.url = resolve_url(self.spec, self.storage_override)
@@ -204,11 +219,17 @@ class SearchRunner(TrialEndings):
         if self.minutes is not None and self._elapsed() >= 60.0 * self.minutes:
             self.stop_reason = "time"
             return False
-        if hasattr(self.sampler, "all_started") and self.sampler.all_started(self.study):
+        if (hasattr(self.sampler, "all_started") and self.sampler.all_started(self.study)
+                and not self._retry_waiting()):
             self.stop_reason = "budget"
             self.emit(ev.Notice("every point of the grid has been tried", "info"))
             return False
         return True
+
+    def _retry_waiting(self) -> bool:
+        """A trial queued again (its worker died) waits to be asked: its grid point counts as
+        started, yet it has not trained."""
+        return any(t.state == TrialState.WAITING for t in self.study.get_trials(deepcopy=False))
 
     def _step(self) -> bool:
         """One turn of the controller; True when the run is over."""
@@ -241,7 +262,7 @@ class SearchRunner(TrialEndings):
         search stays reproducible; the sampler just sees the last result one trial later."""
         for depth in range(1, 2 + self.prefetch):
             for slot in self.pool.with_room(depth):
-                if depth > 1 and not (self._time_for_another() and self._enough_left()):
+                if depth > 1 and not (self._time_for_another(depth - 1) and self._enough_left()):
                     return
                 if not self._budget_left():
                     return
@@ -255,13 +276,14 @@ class SearchRunner(TrialEndings):
             return True
         return self.trials - self.asked > len(self.pool.alive())
 
-    def _time_for_another(self) -> bool:
-        """Queue a trial only when the time budget will probably not end before it starts."""
+    def _time_for_another(self, ahead: int = 1) -> bool:
+        """Queue a trial only when the time budget will probably not end before it starts
+        (behind ``ahead`` trials that train first)."""
         if self.minutes is None:
             return True
         durations = self.durations[-10:]
         typical = sum(durations) / len(durations) if durations else 0.0
-        return self._elapsed() + typical < 60.0 * self.minutes
+        return self._elapsed() + ahead * typical < 60.0 * self.minutes
 
     def _start_trial(self, slot) -> None:
         now = time.monotonic()
@@ -352,6 +374,8 @@ class SearchRunner(TrialEndings):
             else:                                   # never trained: queue it for whoever is left
                 self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
                 retry_later(self.study, trial_id(queued.trial), queue=True)
+        if self.stop_reason == "budget" and self._retry_waiting():
+            self.stop_reason = None      # every trial was asked ahead; the retry is still owed
         number = slot.index + 1
         if restarted:
             text = (f"worker process {number} stopped unexpectedly (exit code {exitcode}"

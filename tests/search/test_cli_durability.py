@@ -89,7 +89,7 @@ def test_sigkill_loses_no_finished_trial_and_the_orphan_is_retried(tmp_path):
     assert len(before) >= 2
     # the trials in flight when the process died (read after the kill: no race). The one being
     # trained may have finished between the poll and the kill, so any RUNNING trial counts: the
-    # one in training and the one queued behind it are both orphans and both must be retried.
+    # one in training and those queued behind it are all orphans and all must be retried.
     orphans = [t for t in stored if t.state.name == "RUNNING"]
     assert orphans, "no trial was in flight when the process was killed"
     for orphan in orphans:

@@ -338,3 +338,24 @@ def test_the_cached_prune_check_decides_as_optunas_own_should_prune(tmp_path):
             study.tell(trial, level)
         check.invalidate()
     assert decisions > 0                      # the comparison covered both answers
+
+
+def test_queue_depth_is_fixed_by_the_worker_count_and_time_budgets_count_the_queue(tmp_path):
+    """One worker keeps three asked trials queued (a fixed depth, so a seeded search replays:
+    test above), several keep one each; under a time budget a trial is queued only if it would
+    start before the end behind the trials queued ahead of it (arithmetic by hand)."""
+    import time
+
+    from labbench.search.runner import PREFETCH, PREFETCH_SEVERAL
+
+    iris_csv(tmp_path)
+    spec = load_spec(write_spec(tmp_path, trials=5))
+    assert SearchRunner(spec, workers=1).prefetch == PREFETCH == 3
+    assert SearchRunner(spec, workers=2).prefetch == PREFETCH_SEVERAL == 1
+    assert SearchRunner(spec, workers=2, prefetch=0).prefetch == 0
+    timed = SearchRunner(spec, minutes=1.0)
+    timed.t0 = time.monotonic() - 15.0         # 15 s of a 60 s budget gone
+    timed.durations = [20.0, 20.0]             # trials take 20 s
+    assert timed._time_for_another(1)          # starts at ≈35 s
+    assert timed._time_for_another(2)          # ≈55 s
+    assert not timed._time_for_another(3)      # ≈75 s: after the end

@@ -366,3 +366,17 @@ def test_the_refit_trains_exactly_the_trials_best_epoch(tmp_path):
         assert len(by_hand.run()) == epochs
         equal = all(np.array_equal(a, b) for (a, _), (b, _) in zip(weights.layers, by_hand.weights(0).layers))
         assert equal == same
+
+
+def test_lazy_fold_arrays_equal_the_eager_ones_and_wait_for_their_first_use(tmp_path):
+    # The controller prepares with lazy_folds (its workers train); the arrays it may need later
+    # (the seed spread) must be exactly those of an eager prepare (consistency; common practice).
+    spec = make_spec(tmp_path, iris_csv(tmp_path), "species")
+    eager = prepare(spec, fold_dtype="float32")
+    lazy = prepare(spec, fold_dtype="float32", lazy_folds=True)
+    assert lazy.fold_arrays._value is None                 # nothing made yet
+    assert len(lazy.fold_arrays.X_train) == len(eager.fold_arrays.X_train) == spec.evaluation.folds
+    for name in ("X_train", "y_train", "X_val", "y_val"):
+        for a, b in zip(getattr(lazy.fold_arrays, name), getattr(eager.fold_arrays, name)):
+            assert a.dtype == b.dtype
+            np.testing.assert_array_equal(a, b)
