@@ -15,7 +15,7 @@ and send back one message per epoch. The controller
 * emits the events of ``labbench.search.events`` through ``emit``,
 * stops asking when the trial budget (trials added by this run) or the time budget runs out.
 
-Each worker holds its training trial plus ``prefetch`` (default: ``PREFETCH`` = 3 asked trials for
+Each worker holds its training trial plus ``prefetch`` (default: ``PREFETCH`` = 1 asked trial for
 a single worker, ``PREFETCH_SEVERAL`` = 1 each for several) queued behind it, so the sampler
 and the storage work while the worker trains; storage therefore shows up to
 ``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is fixed (never
@@ -59,13 +59,14 @@ __all__ = ["SearchRunner", "SearchOutcome", "CANCELLED", "STATE_NAMES"]
 
 log = logging.getLogger("labbench.search.runner")
 
-#: Asked trials queued behind a single worker's training one. One was not enough: a pruned or
-#: short trial ends sooner than the controller asks, writes and tells for one trial, and the
-#: worker waited (orchard demo, 200 trials, one worker, three paired rounds: 0.25 against 0.007
-#: of the training time outside training, medians; benchmarks/bench_search.py). With several
-#: workers each keeps one queued trial (``PREFETCH_SEVERAL``): deeper queues leave more trials
-#: behind one worker while another has run out at the end of the budget.
-PREFETCH = 3
+#: Asked trials queued behind a single worker's training one. Three reached the overhead goal on
+#: the orchard demo (200 trials, one worker, paired rounds: 0.007 against 0.25 of the training
+#: time outside training, medians; benchmarks/bench_search.py) but did not shorten the run, and
+#: the sampler then sees every result three asks later; so one, as before (a worker idles only
+#: when its trials are shorter than the controller's ≈25 ms per trial).
+PREFETCH = 1
+#: The same with several workers: deeper queues leave more trials behind one worker while
+#: another has run out at the end of the budget.
 PREFETCH_SEVERAL = 1
 
 class SearchRunner(TrialEndings):
