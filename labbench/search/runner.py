@@ -126,6 +126,7 @@ class SearchRunner(TrialEndings):
         self.best = best_of(existing, self.direction)
         fixed_only = self._nothing_searched(existing)
         self.asked = self.finished = 0
+        self.owed = 0        # retries this run queued for its own dead workers' trials
         self.in_flight: dict[int, InFlight] = {}      # trial number -> its state here
         self.durations: list[float] = []
         self.worker_cpu_s = 0.0        # CPU the workers spent training this run's trials
@@ -214,7 +215,8 @@ class SearchRunner(TrialEndings):
         return time.monotonic() - self.t0
 
     def _budget_left(self) -> bool:
-        if self.trials is not None and self.asked >= self.trials:
+        owed = self.owed and self._retry_waiting()   # a dead worker's retry runs beyond the budget
+        if self.trials is not None and self.asked >= self.trials and not owed:
             self.stop_reason = "budget"
             return False
         if self.minutes is not None and self._elapsed() >= 60.0 * self.minutes:
@@ -294,6 +296,8 @@ class SearchRunner(TrialEndings):
             self.next_stale_check = now + self.heartbeat.interval
         trial = self.study.ask()
         self.asked += 1
+        if self.trials is not None and self.asked > self.trials and self.owed:
+            self.owed -= 1           # a retry this run owed (asked pops queued trials first)
         try:
             with one_transaction(self.study):   # the trial's params and attrs: one commit
                 settings = self.spec.space.suggest(trial)
@@ -367,6 +371,7 @@ class SearchRunner(TrialEndings):
                                                       if again else ""))
             if again:
                 retry_later(self.study, trial_id(first.trial), queue=True)
+                self.owed += 1
         for queued in mine[1:]:                     # not begun: hand them over again
             if restarted and queued.stopping is None:
                 self.pool.assign(slot, queued.number, plain(queued.settings))
@@ -375,6 +380,7 @@ class SearchRunner(TrialEndings):
             else:                                   # never trained: queue it for whoever is left
                 self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
                 retry_later(self.study, trial_id(queued.trial), queue=True)
+                self.owed += 1
         if self.stop_reason == "budget" and self._retry_waiting():
             self.stop_reason = None      # every trial was asked ahead; the retry is still owed
         number = slot.index + 1

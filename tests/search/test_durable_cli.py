@@ -170,8 +170,9 @@ def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_pa
     assert proc.returncode == 0, err
     assert "Traceback" not in err and "stopped unexpectedly" in err
     trials = load(db).get_trials()
-    assert "RUNNING" not in [t.state.name for t in trials]
-    assert sum(t.state.name == "COMPLETE" for t in trials) >= 2
+    states = [(t.number, t.state.name, t.user_attrs.get("end_reason")) for t in trials]
+    assert "RUNNING" not in [t.state.name for t in trials], states
+    assert sum(t.state.name == "COMPLETE" for t in trials) >= 2, (states, err)
 
 
 @pytest.mark.slow
