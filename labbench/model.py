@@ -25,9 +25,7 @@ import pandas as pd
 
 from labbench.errors import BundleError
 from labbench.families.maps_export import output_table
-
-#: The task of a model trained without a target (the map and group families).
-UNSUPERVISED = "unsupervised"
+from labbench.nets.metrics import UNSUPERVISED   # the task of a model trained without a target
 
 
 @dataclass(frozen=True)

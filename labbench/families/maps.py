@@ -31,8 +31,7 @@ from labbench.maps.measures import PEN
 from labbench.maps.neural_gas import NeuralGas
 from labbench.maps.som import SelfOrganisingMap
 from labbench.maps.training import METRICS_OF, MapTraining
-
-UNSUPERVISED = "unsupervised"
+from labbench.nets.metrics import UNSUPERVISED
 
 
 def _bounds(s: Setting) -> tuple[float, float] | None:

@@ -19,7 +19,7 @@ from labbench.gui.data_preview import PREVIEW_ROWS, PreviewModel
 from labbench.gui.profile import ProfileView
 from labbench.gui.traps import TrapList
 
-UNSUPERVISED = "unsupervised"             # Table.task of a table without a target
+from labbench.nets.metrics import UNSUPERVISED  # Table.task of a table without a target
 CHECK_DELAY_MS = 150     # the profile and the traps are recomputed this long after the last change
 TARGET_SCALINGS = ("standard", "log", "none")
 
