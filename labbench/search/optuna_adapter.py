@@ -303,6 +303,12 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
                 else:
                     view["written"].add(int(trial_id))
 
+        def read_fresh(self) -> None:
+            """The next read of the trial list runs the full query: for decisions about other
+            processes' trials (reclaiming orphans), which the view may hold up to ``refresh_s``
+            seconds old."""
+            self._view()["full_at"].clear()
+
         def __getstate__(self):
             state = super().__getstate__()
             state.pop("_read_view", None)

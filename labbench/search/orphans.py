@@ -135,6 +135,9 @@ def orphans(study) -> list[tuple[Any, str]]:
     backend = rdb_backend(study_storage(study))
     if backend is None:
         return []
+    fresh = getattr(backend, "read_fresh", None)
+    if fresh is not None:          # other processes' claims, not the read view's older copies
+        fresh()
     running = study.get_trials(deepcopy=False, states=(TrialState.RUNNING,))
     if not running:
         return []
