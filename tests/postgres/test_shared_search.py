@@ -88,7 +88,9 @@ def test_a_killed_process_leaves_the_others_finishing_and_its_trial_reclaimed(tm
 
     def running_of(pid=None):
         try:
-            return [t for t in _trials(pg_url) if t.state.name == "RUNNING"
+            # a trial counts once its settings are written: claimed-but-unsampled is a moment
+            # earlier, and a trial frozen there has no settings for its retry to repeat
+            return [t for t in _trials(pg_url) if t.state.name == "RUNNING" and t.params
                     and pid in (None, t.system_attrs.get(OWNER_KEY, {}).get("pid"))]
         except Exception:                        # tables not created yet
             return []
@@ -97,7 +99,7 @@ def test_a_killed_process_leaves_the_others_finishing_and_its_trial_reclaimed(tm
     while not running_of(victim.pid) and time.monotonic() < end:
         time.sleep(0.05)
     victim.send_signal(signal.SIGSTOP)            # frozen: it can no longer end its trials
-    orphans = [t for t in _trials(pg_url) if t.state.name == "RUNNING"
+    orphans = [t for t in _trials(pg_url) if t.state.name == "RUNNING" and t.params
                and t.system_attrs.get(OWNER_KEY, {}).get("pid") == victim.pid]
     victim.kill()                                 # kill -9; its worker stops on its own
     victim.communicate(timeout=30)
