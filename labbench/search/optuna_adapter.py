@@ -273,10 +273,14 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
     full query runs, so changes other processes make to older trials (a shared PostgreSQL search)
     arrive within that time. With nothing written and nothing due, a read costs no query at all.
     Writes made here are repeated on the cached copy of an unfinished trial (``mark_written``
-    with a change) instead of re-reading it, and ``get_trial`` of such a trial answers from that
-    copy; a write that fails (say the trial was ended elsewhere) sends the trial back to the
-    database for its next read. A search of one process therefore reads exactly what the full
-    query would return (tests/search/test_optuna_adapter.py compares it with a fresh reader).
+    with a change) instead of re-reading it, the trial's end included (state, values and the
+    time stamp written), and ``get_trial`` of such a trial answers from that copy; a write that
+    fails (say the trial was ended elsewhere) sends the trial back to the database for its next
+    read. Trials this process runs or ended, their copies whole, are never built again from
+    database rows, not even by the periodic query: one id query finds which newer trials are
+    other processes' (``_read_some``). A search of one process therefore builds no trial from
+    the database after its first read, and reads exactly what the full query would return
+    (tests/search/test_optuna_adapter.py compares it with a fresh reader).
     """
     from optuna.storages import RDBStorage
     from optuna.trial import TrialState
@@ -289,7 +293,7 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             if view is None:
                 view = self.__dict__["_read_view"] = {
                     "lock": threading.Lock(), "written": set(), "seen": {}, "full_at": {},
-                    "copies": {}, "study_of": {}}
+                    "copies": {}, "study_of": {}, "own": set(), "ended": set(), "touched": False}
             return view
 
         def mark_written(self, trial_id: int, change=None) -> None:
@@ -297,6 +301,7 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             copy the cache holds (no read needed), or the trial is re-read at the next read."""
             view = self._view()
             with view["lock"]:
+                view["touched"] = True
                 frozen = view["copies"].get(int(trial_id))
                 if change is not None and frozen is not None and int(trial_id) not in view["written"]:
                     change(frozen)
@@ -322,22 +327,29 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
                     or now - view["full_at"].get(study_id, -1e300) >= every)
             with view["lock"]:
                 written, view["written"] = view["written"], set()
-            if full:
+                touched, view["touched"] = view["touched"], False
+            if full and (states is not None or seen is None):
                 trials = super()._get_trials(study_id, states, included_trial_ids,
                                              trial_id_greater_than)
-                if states is None:
-                    view["full_at"][study_id] = now
-            elif not written:
+            elif full:
+                # Optuna's own question (its unfinished trials, and every trial newer than the
+                # last finished one it saw), less what this process holds whole
+                trials = self._read_some(study_id, set(included_trial_ids), trial_id_greater_than,
+                                         written)
+                view["full_at"][study_id] = now
+            elif not written and not touched:
                 return []
             else:
-                # the trials written here, and every trial newer than all read so far (each
-                # older one has been returned once, so the cache's bookkeeping stays whole)
-                trials = super()._get_trials(study_id, None, written, seen)
+                # the trials written here whose copy is not whole, and every trial newer than
+                # all read so far (each older one has been returned once, so the cache's
+                # bookkeeping stays whole)
+                trials = self._read_some(study_id, set(), seen, written)
             returned = {t._trial_id for t in trials}
             with view["lock"]:
                 for t in trials:         # the very objects Optuna's cache keeps
                     if t.state.is_finished():
                         view["copies"].pop(t._trial_id, None)
+                        view["ended"].discard(t._trial_id)
                     else:
                         view["copies"][t._trial_id] = t
                         view["study_of"][t._trial_id] = study_id
@@ -351,14 +363,35 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
                     view["written"] |= left
             return trials
 
+        def _read_some(self, study_id, wanted: set, after, written: set) -> list:
+            """The trials ``wanted`` and every trial with an id above ``after``. Those this
+            process runs or ended, with every write of theirs repeated on their copy (so the
+            copy is what the database holds), come from the copy; the rest (other processes'
+            trials, copies not whole) are read. One small id query finds the newer ones."""
+            view = self._view()
+            newer = _ids_after(self, study_id, after)
+            with view["lock"]:
+                copies = view["copies"]
+                kept = {i: copies[i] for i in wanted.union(newer)
+                        if i in copies and i not in written and (i in view["own"] or i in view["ended"])}
+            need = (wanted | written).union(newer) - set(kept)
+            trials = super()._get_trials(study_id, None, need, max(need)) if need else []
+            got = {t._trial_id for t in trials}
+            trials += [t for i, t in kept.items() if i not in got]
+            trials.sort(key=lambda t: t._trial_id)
+            return trials
+
         def _create_new_trial(self, study_id, template_trial=None):
             # (Optuna's cached storage calls this one; ``create_new_trial`` goes through it too)
             frozen = super()._create_new_trial(study_id, template_trial)
             view = self._view()
+            starts = template_trial is None or template_trial.state == TrialState.RUNNING
             with view["lock"]:      # Optuna's cache keeps this object: later writes update it
                 view["copies"][frozen._trial_id] = frozen
                 view["study_of"][frozen._trial_id] = study_id
-            if template_trial is None or template_trial.state == TrialState.RUNNING:
+                if starts:
+                    view["own"].add(frozen._trial_id)
+            if starts:
                 on_start(self, frozen._trial_id)
             return frozen
 
@@ -366,21 +399,46 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             # an unfinished trial this process keeps up to date (created or read here, every
             # write of it repeated on the copy, nothing failed since): the copy is what the
             # database holds, so no query (Optuna's cache asks for unfinished trials each time)
+            # A trial this process runs is written only here while it runs (another process
+            # that ends it, taking this one for dead, makes the next write here fail, which
+            # sends the trial back to the database), so its copy needs no refresh time.
             view = self._view()
             with view["lock"]:
                 frozen = view["copies"].get(trial_id)
                 study_id = view["study_of"].get(trial_id)
                 fresh = (frozen is not None and trial_id not in view["written"]
-                         and time.monotonic() - view["full_at"].get(study_id, -1e300) < every)
+                         and (trial_id in view["own"] or time.monotonic()
+                              - view["full_at"].get(study_id, -1e300) < every))
                 if fresh:
                     return copy.deepcopy(frozen)
             return super().get_trial(trial_id)
 
         def set_trial_state_values(self, trial_id, state, values=None):
+            when = []
             try:
-                changed = super().set_trial_state_values(trial_id, state, values)
-            finally:
+                changed = _set_state_values(self, trial_id, state, values, when)
+            except BaseException:
                 self.mark_written(trial_id)
+                raise
+            if changed and state.is_finished() and when:
+                # the end as written (state, values, the same time stamp) repeated on the copy:
+                # the next read of the trial list needs no query for it
+                def change(frozen, state=state, values=values, stamp=when[0]):
+                    frozen.state = state
+                    if values is not None:
+                        frozen.values = [float(v) for v in values]
+                    frozen.datetime_complete = stamp
+                self.mark_written(trial_id, change)
+                with self._view()["lock"]:
+                    if int(trial_id) not in self._view()["written"]:
+                        self._view()["ended"].add(int(trial_id))
+            else:
+                self.mark_written(trial_id)
+            with self._view()["lock"]:
+                if changed and state == TrialState.RUNNING:
+                    self._view()["own"].add(int(trial_id))
+                elif state.is_finished():
+                    self._view()["own"].discard(int(trial_id))
             if changed and state == TrialState.RUNNING:   # a queued trial taken over
                 on_start(self, trial_id)
             return changed
@@ -398,11 +456,23 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
             self.mark_written(trial_id, _param_change(param_name, param_value_internal,
                                                       distribution))
             return
-        args = (param_name, param_value_internal, distribution, previous_distribution)
-        pending.append((trial_id,
-                        lambda session, models: self._set_trial_param_without_commit(
-                            session, trial_id, *args),
-                        _param_change(param_name, param_value_internal, distribution)))
+        if previous_distribution is not None:
+            # the study's earlier kind of this parameter is known (Optuna's cache passes it):
+            # the row is added as Optuna's ``_set_trial_param_without_commit`` adds it, without
+            # its look-up of the trial per parameter (``flush`` checks the trial once)
+            def work(session, models):
+                from optuna import distributions as dists
+
+                dists.check_distribution_compatibility(previous_distribution, distribution)
+                session.add(models.TrialParamModel(
+                    trial_id=trial_id, param_name=param_name, param_value=param_value_internal,
+                    distribution_json=dists.distribution_to_json(distribution)))
+        else:
+            args = (param_name, param_value_internal, distribution, previous_distribution)
+
+            def work(session, models):
+                self._set_trial_param_without_commit(session, trial_id, *args)
+        pending.append((trial_id, work, _param_change(param_name, param_value_internal, distribution)))
 
     def flush(self) -> None:
         """Run the writes collected by ``one_transaction`` in one transaction."""
@@ -459,6 +529,47 @@ def starting_storage_class(on_start: Callable[[Any, int], None], refresh_s: floa
                             ("set_trial_system_attr", _attr_change("system_attrs"))):
         setattr(StartingStorage, name, _marking(name, change_of))
     return StartingStorage
+
+
+def _ids_after(storage, study_id: int, after: int | None) -> list[int]:
+    """Ids of the study's trials with an id above ``after`` (one small query)."""
+    models, scoped = _models()
+    trial = models.TrialModel
+    with scoped(storage.scoped_session) as session:
+        query = session.query(trial.trial_id).filter(trial.study_id == study_id)
+        if after is not None and after > -1:
+            query = query.filter(trial.trial_id > after)
+        return [int(i) for (i,) in query.all()]
+
+
+def _set_state_values(storage, trial_id, state, values, when: list) -> bool:
+    """``RDBStorage.set_trial_state_values`` (Optuna 5.0, the same statements), with the time
+    stamp it writes appended to ``when`` so the caller can repeat the write on its copy."""
+    from datetime import datetime
+
+    import sqlalchemy.exc
+    from optuna.trial import TrialState
+
+    models, scoped = _models()
+    try:
+        with scoped(storage.scoped_session) as session:
+            trial = models.TrialModel.find_or_raise_by_id(trial_id, session, for_update=True)
+            storage.check_trial_is_updatable(trial_id, trial.state)
+            if values is not None:
+                for objective, v in enumerate(values):
+                    storage._set_trial_value_without_commit(session, trial, objective, v)
+            if state == TrialState.RUNNING and trial.state != TrialState.WAITING:
+                return False
+            trial.state = state
+            now = datetime.now()
+            if state == TrialState.RUNNING:
+                trial.datetime_start = now
+            if state.is_finished():
+                trial.datetime_complete = now
+        when.append(now)
+    except sqlalchemy.exc.IntegrityError:
+        return False
+    return True
 
 
 def _param_change(param_name: str, param_value_internal: float, distribution):

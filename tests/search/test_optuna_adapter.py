@@ -202,6 +202,35 @@ def test_the_read_view_reads_what_a_fresh_reader_reads(tmp_path):
         assert _snapshot(study) == _snapshot(fresh())
 
 
+def test_the_read_view_builds_no_trial_of_its_own_from_the_database(tmp_path, monkeypatch):
+    # A one-process search: every trial is created, written and ended through the view, so
+    # neither the read after a write nor the periodic refresh (refresh_s=0: every read) needs
+    # to build a trial from database rows, and what it returns still equals a fresh reader's.
+    from optuna.storages import RDBStorage
+
+    url = f"sqlite:///{tmp_path}/own.db"
+    cls = oa.starting_storage_class(lambda store, tid: None, refresh_s=0)
+    study = _study(cls(url))
+    study.get_trials()
+    built = []
+    original = RDBStorage._build_frozen_trial_from_trial_model
+    monkeypatch.setattr(RDBStorage, "_build_frozen_trial_from_trial_model",
+                        lambda self, model: built.append(model.trial_id) or original(self, model))
+    for k in range(5):
+        trial = study.ask()
+        trial.suggest_float("x", 0, 1)
+        oa.write_user_attrs(trial, {"settings": {"k": k}})
+        oa.write_intermediate_values(study, oa.trial_id(trial), [(1, 0.5)])
+        study.tell(trial, float(k)) if k % 2 else study.tell(trial, state=TrialState.PRUNED)
+        study.get_trials()
+    assert built == []
+    monkeypatch.undo()
+    fresh = optuna.load_study(study_name="s", storage=optuna.storages.RDBStorage(url))
+    assert _snapshot(study) == _snapshot(fresh)
+    assert [t.datetime_complete for t in study.get_trials()] == \
+        [t.datetime_complete for t in fresh.get_trials()]
+
+
 def test_the_read_view_never_loses_trials_another_process_starts(tmp_path):
     # Another process (another storage object) creates a trial between two of ours, then ends
     # it; ours finishes first. The view sees the other's trial and, after the refresh time, its
