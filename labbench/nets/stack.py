@@ -135,7 +135,9 @@ class StackTrainer:
         self._l2 = float(config.l2) if l2s is None else l2s
         self._l2_on = bool(np.any(np.asarray(self._l2) != 0))
         mask = layout.weight_mask()
-        self._l2w = (mask * self._l2 if l2s is None else mask[None, :] * l2s[:, None]).astype(dtype)
+        # one full (m, P) row per member: a product with a broadcast (P,) row costs twice as much
+        self._l2w = np.ascontiguousarray(np.broadcast_to(
+            mask * self._l2 if l2s is None else mask[None, :] * l2s[:, None], (m, layout.size)), dtype)
         self._l2tmp = np.zeros_like(self._params)
 
         # training rows. Small stacks: each member's rows with a column of ones, copied in
@@ -273,13 +275,14 @@ class StackTrainer:
             if stop - start not in buffers:
                 buffers[stop - start] = _Buffers(m, stop - start, self._layout.sizes, self.dtype, backward=False)
             buf = buffers[stop - start]
-            plan += self._forward_steps(self._Xv[:, start:stop], buf)
+            plan += self._forward_steps(self._Xv[:, start:stop], buf, backward=False)
             plan.append((np.copyto, (self._val_out[:, start:stop], buf.out)))
         self._val_plan = plan
 
     # ---------------------------------------------------------------- the computation
-    def _forward_steps(self, a: np.ndarray, buf: _Buffers) -> Steps:
-        """Forward pass of an (m, w, d + 1) batch into ``buf`` (the output lands in ``buf.out``)."""
+    def _forward_steps(self, a: np.ndarray, buf: _Buffers, *, backward: bool = True) -> Steps:
+        """Forward pass of an (m, w, d + 1) batch into ``buf`` (the output lands in ``buf.out``);
+        ``backward=False``: nothing is kept for a backward pass."""
         act = self._act
         steps: Steps = []
         for j in range(len(self._W)):
@@ -289,7 +292,7 @@ class StackTrainer:
             else:
                 steps += [(np.matmul, (a, self._Wv[j], z)), (np.add, (z, self._Wb[j], z))]
             if j < len(buf.h):
-                steps += act.forward(z, buf.scratch[j])
+                steps += act.forward(z, buf.scratch[j]) if backward else act.infer_steps(z, buf.scratch[j])
                 a = z
         return steps + self._out.forward(buf.out, buf.out_scratch)
 
@@ -307,8 +310,8 @@ class StackTrainer:
             steps += [(np.matmul, (buf.hT[j - 1], delta, self._gWv[j])),
                       (_sum_rows, (delta, self._gWb[j]))]
             back = buf.dh[j - 1]
-            if delta.shape[-1] == 1:     # one output: an outer product, cheaper as a broadcast
-                steps.append((np.multiply, (delta, WT[j], back)))
+            if delta.shape[-1] == 1:     # one output: an outer product (einsum's loop: ~2 x a
+                steps.append((_outer, (delta, WT[j], back)))     # broadcast multiply, same values)
             else:
                 steps.append((np.matmul, (delta, WT[j], back)))
             steps += act.backward(buf.h[j - 1], back, buf.scratch[j - 1])
@@ -488,6 +491,11 @@ class StackTrainer:
         loss += 0.5 * penalty / self._n
         grads = [self._layout.unpack(self._grad[i].astype(np.float64) / self._n[i]) for i in range(m)]
         return loss, grads
+
+
+def _outer(delta: np.ndarray, wt: np.ndarray, out: np.ndarray) -> None:
+    """(m, b, 1) errors times (m, 1, f) weights: each product formed once, as a multiply would."""
+    np.einsum("mbk,mkf->mbf", delta, wt, out=out)
 
 
 def _sum_rows(delta: np.ndarray, out: np.ndarray) -> None:
