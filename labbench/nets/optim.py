@@ -8,6 +8,7 @@ is a dozen numpy calls whatever the depth of the network. Update rules follow sc
 * momentum: v = μ v - lr · g ; p += v                        (heavy ball, not Nesterov)
 * adam:     m = β1 m + (1-β1) g ; v = β2 v + (1-β2) g² ;
             p -= lr · sqrt(1-β2^t) / (1-β1^t) · m / (sqrt(v) + ε)   (β1 .9, β2 .999, ε 1e-8)
+            (v is kept rescaled by a constant, which saves a call; see ``Adam``)
 
 Like the activations, an optimiser describes its update as a list of ``(numpy function,
 arguments)`` steps (``steps(grad, scale, j)``) that the trainer builds once per batch position ``j``
@@ -22,6 +23,8 @@ it keeps state), register it in ``OPTIMIZERS`` (``config.OPTIMIZER_NAMES`` and t
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
@@ -83,6 +86,15 @@ class Momentum(Optimizer):
 
 
 class Adam(Optimizer):
+    """Adam in eleven numpy calls per step instead of twelve, by one exact rescaling.
+
+    With g0 = scale (1-β1) g (the term m grows by), the second moment is kept as
+    V = v (1-β1)² / (1-β2), whose recursion is V = β2 V + g0²: the square of a term already at
+    hand. Then sqrt(v) + ε = (sqrt(V) + κ ε) / κ with κ = (1-β1) / sqrt(1-β2), so the step is
+    rate_t κ · m / (sqrt(V) + κ ε): scikit-learn's update up to rounding (tests compare the
+    two to 1e-10). Measured: two moments in one (2, m, P) block, updated in one call each, were
+    slower than these in-place calls on (m, P) arrays.
+    """
     beta1 = 0.9
     beta2 = 0.999
     eps = 1e-8
@@ -90,7 +102,9 @@ class Adam(Optimizer):
     def __init__(self, params, config, active, **per_member):
         super().__init__(params, config, active, **per_member)
         self.m1 = np.zeros_like(params)
-        self.v = np.zeros_like(params)
+        self.v = np.zeros_like(params)              # holds V (see above)
+        self._kappa = (1.0 - self.beta1) / math.sqrt(1.0 - self.beta2)   # a Python float: a numpy
+        # float64 scalar would make numpy compute a float32 block in float64
         self.t = np.zeros(params.shape[0], dtype=np.int64)     # steps taken so far, per member
         per_rate = not np.isscalar(self.lr)
         width = 1 if self.active.all() and not per_rate else params.shape[0]
@@ -105,22 +119,20 @@ class Adam(Optimizer):
         self.t = t[-1].copy()
         t = np.maximum(t[:, :self._rates.shape[1]], 1).astype(np.float64)
         lr = self.lr if np.isscalar(self.lr) else self.lr[:, 0]
-        rates = lr * np.sqrt(1.0 - self.beta2**t) / (1.0 - self.beta1**t)
+        rates = lr * self._kappa * np.sqrt(1.0 - self.beta2**t) / (1.0 - self.beta1**t)
         self._rates[...] = rates[..., None]
 
     def steps(self, grad, scale, j):
-        b1, b2 = self.beta1, self.beta2
         m1, v, tmp, p = self.m1, self.v, self._tmp, self.params
         return [
-            (np.multiply, (m1, b1, m1)),
-            (np.multiply, (grad, self._coef(scale * (1.0 - b1)), tmp)),
+            (np.multiply, (m1, self.beta1, m1)),
+            (np.multiply, (grad, self._coef(scale * (1.0 - self.beta1)), tmp)),
             (np.add, (m1, tmp, m1)),
-            (np.multiply, (v, b2, v)),
-            (np.multiply, (grad, grad, grad)),
-            (np.multiply, (grad, self._coef(scale * scale * (1.0 - b2)), grad)),
-            (np.add, (v, grad, v)),
+            (np.multiply, (v, self.beta2, v)),
+            (np.multiply, (tmp, tmp, tmp)),
+            (np.add, (v, tmp, v)),
             (np.sqrt, (v, tmp)),
-            (np.add, (tmp, self.eps, tmp)),
+            (np.add, (tmp, self._kappa * self.eps, tmp)),
             (np.divide, (m1, tmp, tmp)),
             (np.multiply, (tmp, self._rates[j], tmp)),
             (np.subtract, (p, tmp, p)),
