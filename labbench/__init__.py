@@ -18,12 +18,13 @@ __all__ = [
     "DivergenceError",
     "NetClassifier",
     "NetRegressor",
+    "fit_folds",
 ]
 
 
 def __getattr__(name: str):
     # The estimators pull in the engine; load them on first use so `import labbench` stays light.
-    if name in ("NetClassifier", "NetRegressor"):
+    if name in ("NetClassifier", "NetRegressor", "fit_folds"):
         from labbench.nets import estimator
 
         return getattr(estimator, name)

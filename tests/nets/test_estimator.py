@@ -120,3 +120,57 @@ def test_labbench_nets_imports_and_trains_without_sklearn_or_scipy():
     )
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert result.returncode == 0, result.stderr
+
+
+# ------------------------------------------------------------------ fit_folds: folds as one stack
+def _assert_same_fit(stacked, alone, rtol):
+    assert stacked.n_iter_ == alone.n_iter_
+    np.testing.assert_allclose(stacked.loss_curve_, alone.loss_curve_, rtol=rtol)
+    for (w, b), (w1, b1) in zip(stacked.weights_.layers, alone.weights_.layers):
+        np.testing.assert_allclose(w, w1, rtol=rtol, atol=rtol * 1e-2)
+        np.testing.assert_allclose(b, b1, rtol=rtol, atol=rtol * 1e-2)
+
+
+@pytest.mark.parametrize("patience", [0, 3])
+def test_fit_folds_gives_each_split_the_fit_a_loop_of_clones_gives(patience):
+    # reference: scikit-learn's own cross-validation idiom, clone(estimator).fit per split
+    from sklearn.model_selection import StratifiedKFold
+
+    X, y = load_iris(return_X_y=True)
+    X = StandardScaler().fit_transform(X)
+    est = NetClassifier(hidden=(8,), learning_rate=0.02, batch_size=16, epochs=25, patience=patience,
+                        dtype="float64", random_state=3)
+    splits = list(StratifiedKFold(4, shuffle=True, random_state=0).split(X, y))
+    stacked = labbench.fit_folds(est, X, y, splits)
+    assert len(stacked) == 4 and all(m is not est for m in stacked) and not hasattr(est, "weights_")
+    for model, (train, test) in zip(stacked, splits):
+        alone = clone(est).fit(X[train], y[train])
+        _assert_same_fit(model, alone, 1e-10)
+        assert list(model.classes_) == [0, 1, 2]
+        assert model.score(X[test], y[test]) == alone.score(X[test], y[test])
+        if patience:
+            assert model.best_epoch_ == alone.best_epoch_
+            np.testing.assert_allclose(model.validation_loss_, alone.validation_loss_, rtol=1e-10)
+    if patience:   # the members stopped at their own epochs, not all at the slowest one's
+        assert len({m.n_iter_ for m in stacked}) > 1 or stacked[0].n_iter_ < est.epochs
+
+
+def test_fit_folds_regression_and_a_split_missing_a_class():
+    X, y = make_regression(n_samples=120, n_features=4, noise=1.0, random_state=0)
+    y = (y - y.mean()) / y.std()
+    rows = np.arange(120)
+    splits = [(rows[rows % 3 != i], rows[rows % 3 == i]) for i in range(3)]
+    est = NetRegressor(hidden=(6,), learning_rate=0.01, batch_size=32, epochs=8, dtype="float64",
+                       random_state=5)
+    for model, (train, _) in zip(labbench.fit_folds(est, X, y, splits), splits):
+        _assert_same_fit(model, clone(est).fit(X[train], y[train]), 1e-10)
+
+    labels = np.array([0, 1, 2] * 40)
+    odd = (rows[labels != 2], rows[labels == 2])          # this split's training rows lack class 2
+    est = NetClassifier(hidden=(4,), epochs=3, dtype="float64", random_state=1)
+    whole = (rows[rows % 4 != 0], rows[rows % 4 == 0])
+    models = labbench.fit_folds(est, X, labels, [whole, odd])
+    assert list(models[0].classes_) == [0, 1, 2] and list(models[1].classes_) == [0, 1]
+    _assert_same_fit(models[1], clone(est).fit(X[odd[0]], labels[odd[0]]), 1e-10)
+    with pytest.raises(ValueError, match="at least one split"):
+        labbench.fit_folds(est, X, labels, [])
