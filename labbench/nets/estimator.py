@@ -248,7 +248,7 @@ def fit_folds(estimator: _NetEstimator, X, y, splits) -> list[_NetEstimator]:
     ``splits``: (training rows, other rows) index pairs, e.g. ``list(KFold(5).split(X, y))``;
     the other rows are not used. Copy i ends as ``clone(estimator).fit(X[train_i], y[train_i])``
     would (same settings and ``random_state``; equal up to rounding), so scoring each copy on its
-    split's other rows is the usual cross-validation, in about half the time of a loop of fits
+    split's other rows is the usual cross-validation, in about 0.4 x the time of a loop of fits
     (``benchmarks/bench_engine.py``). Splits whose classes differ from the others' (a fold
     missing a class) are fitted in a stack of their own.
     """
