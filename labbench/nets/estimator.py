@@ -5,6 +5,8 @@ The constructor only stores its arguments (the ``NetConfig`` fields plus ``rando
 network with ``StackTrainer`` and sets the fitted attributes, all ending in ``_``: ``weights_``
 (``NetWeights``), ``n_features_in_``, ``loss_curve_`` (training loss per epoch), ``n_iter_``
 (epochs run), and ``classes_`` for the classifier. Bad settings raise ``ValueError`` at ``fit``.
+``fit_folds(estimator, X, y, splits)`` fits one copy per split of a cross-validation, all trained
+as one stack, each ending as its own ``fit`` would.
 
 Early stopping (``patience > 0``, off by default like scikit-learn's ``early_stopping=False``):
 ``validation_fraction`` of the rows (per class for the classifier) are held back, chosen with the
