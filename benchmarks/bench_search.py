@@ -17,10 +17,16 @@
    random sampler, no pruning, no early stopping), rounds alternating 1 and 2 workers;
    goal ≥ 1.7 ×. Beside it the machine's own ceiling: the same trainings in two plain
    processes vs one.
+3. Trials of one shape trained together (``[search] together``) against one at a time: whole
+   runs of ``--together-trials`` trials (digits, one hidden layer of 64 relu units, batch 32,
+   30 epochs, learning rate and L2 searched, random sampler: both runs train the very same
+   settings), rounds alternating; the ratio is one at a time / together (above 1: together is
+   faster). No goal of its own: the engine's "4 configurations" rows of bench_engine.py hold
+   the issue's goals for stacked configurations.
 
 The machine may be shared with other jobs: the load average is printed with every line.
 
-    python benchmarks/bench_search.py [--rounds 3] [--trials 200] [--only overhead|scaling]
+    python benchmarks/bench_search.py [--rounds 3] [--trials 200] [--only overhead|scaling|together]
 """
 
 from __future__ import annotations
@@ -64,7 +70,7 @@ def orchard_spec(folder: Path, trials: int) -> Path:
 
 
 def digits_spec(folder: Path, name: str, *, trials: int, epochs: int, sampler="random",
-                pruner="none") -> Path:
+                pruner="none", space: str | None = None, search: str = "") -> Path:
     csv = write_table(folder, "digits")
     text = f"""
 [data]
@@ -80,7 +86,9 @@ trials = {trials}
 sampler = "{sampler}"
 pruner = "{pruner}"
 workers = 1
+{search}
 [space]
+""" + (space or f"""
 learning_rate = {{ low = 0.001, high = 0.05, log = true }}
 hidden_layers = 1
 hidden_units = {{ low = 96, high = 128 }}
@@ -88,7 +96,7 @@ epochs = {epochs}
 patience = 0
 batch_size = 32
 activation = {{ choices = ["relu", "tanh"] }}
-"""
+""")
     path = folder / f"{name}.toml"
     path.write_text(text, encoding="utf-8")
     return path
@@ -338,6 +346,46 @@ def scaling(folder: Path, trials: int, epochs: int, rounds: int) -> None:
         print(line.line(70))
 
 
+ONE_SHAPE = """
+learning_rate = { low = 0.001, high = 0.05, log = true }
+l2 = { low = 1e-5, high = 1e-2, log = true }
+hidden_layers = 1
+hidden_units = 64
+epochs = %d
+patience = 0
+batch_size = 32
+activation = "relu"
+"""
+
+
+def together(folder: Path, trials: int, epochs: int, rounds: int) -> None:
+    from labbench.search.together import AUTO
+
+    specs = {n: digits_spec(folder, f"together{n}", trials=trials, epochs=epochs,
+                            space=ONE_SHAPE % epochs, search=f"together = {n}")
+             for n in (1, AUTO)}
+    print(f"\n[3] trials of one shape together ({AUTO}) vs one at a time: whole runs of {trials} "
+          f"trials, digits, 5 folds, 64 relu units, {epochs} epochs, random sampler, no pruning, "
+          f"1 worker   ({load_avg()})")
+    whole = Ratio(f"one at a time / {AUTO} together, whole run", None)
+    spans = Ratio(f"one at a time / {AUTO} together, first start → last end", None)
+    for r in range(rounds):
+        times, span, work = {}, {}, {}
+        for n in ((1, AUTO) if r % 2 == 0 else (AUTO, 1)):
+            runner, clock, _, total = search(specs[n], 1)
+            times[n], span[n] = total, clock.last_end - clock.first_start
+            work[n] = sorted(str(w) for w in stored_work(runner))
+            print(f"    round {r + 1}, together = {n}: whole run {total:.2f} s, trials "
+                  f"{span[n]:.2f} s   ({load_avg()})", flush=True)
+        if work[1] != work[AUTO]:
+            print("    (the two runs trained different settings: this round is not paired)")
+            continue
+        whole.add(times[1] / times[AUTO])
+        spans.add(span[1] / span[AUTO])
+    for line in (whole, spans):
+        print(line.line(70))
+
+
 def main() -> int:
     import logging
 
@@ -348,7 +396,9 @@ def main() -> int:
     parser.add_argument("--scaling-trials", type=int, default=40)
     parser.add_argument("--scaling-epochs", type=int, default=120,
                         help="epochs per trial of the scaling test (≈1 s trials on an idle machine)")
-    parser.add_argument("--only", choices=("overhead", "scaling"))
+    parser.add_argument("--only", choices=("overhead", "scaling", "together"))
+    parser.add_argument("--together-trials", type=int, default=40)
+    parser.add_argument("--together-epochs", type=int, default=30)
     parser.add_argument("--workload", choices=("orchard", "second"), action="append",
                         help="overhead workload(s) (default: orchard)")
     args = parser.parse_args()
@@ -372,6 +422,8 @@ def main() -> int:
                     overhead(spec, args.rounds, "≈1 s trials", 0.02, seed=11)
         if args.only in (None, "scaling"):
             scaling(folder, args.scaling_trials, args.scaling_epochs, args.rounds)
+        if args.only in (None, "together"):
+            together(folder, args.together_trials, args.together_epochs, args.rounds)
     return 0
 
 

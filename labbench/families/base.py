@@ -145,6 +145,29 @@ class Family:
         ``labbench.nets.StackTrainer``; ``epochs`` overrides the settings' most epochs (refit)."""
         raise NotImplementedError
 
+    # ---- configurations trained together (labbench.search.together)
+
+    #: The settings that make a network's shape: configurations equal in all of them can train
+    #: as one stack. Empty: the family trains one configuration per stack.
+    shape_settings: tuple[str, ...] = ()
+
+    def together_key(self, settings: Mapping[str, Any]) -> Any:
+        """A hashable key equal for configurations that can train as one stack, or None when
+        this one trains alone (the base class: always alone)."""
+        return None
+
+    def stack_together(self, settings: Sequence[Mapping[str, Any]], task: str, n_outputs: int,
+                       X_train: Sequence[np.ndarray], y_train: Sequence[np.ndarray],
+                       X_val: Sequence[np.ndarray], y_val: Sequence[np.ndarray], *,
+                       seeds: Sequence[int], metric: str | None = None,
+                       target_inverse: Sequence[Any] | None = None,
+                       dtype: str = "float32") -> Training:
+        """One ``Training`` of several configurations with equal ``together_key``: the k given
+        folds once per configuration (members ``c·k … c·k + k - 1``, group label ``c``), each
+        configuration's folds with these k seeds. The training has ``drop_groups`` and its
+        ``run`` takes ``on_diverged`` (see ``labbench.nets.StackTrainer``)."""
+        raise NotImplementedError(f"the {self.name} family trains one configuration at a time")
+
     # ---- export
 
     def bundle_entries(self, record: Any) -> tuple[dict[str, np.ndarray], dict[str, Any]]:

@@ -188,6 +188,38 @@ class NetworkFamily(Family):
                              seeds=seeds, metric=metric, target_inverse=target_inverse,
                              groups=groups)
 
+    # ---- configurations trained together: one shape, own learning rate, L2, momentum and seeds
+
+    shape_settings = ("hidden_layers", "hidden_units", "activation", "optimizer", "batch_size",
+                      "epochs", "patience", "init")
+
+    def together_key(self, settings):
+        full = self.complete(settings)
+        return (tuple(int(u) for u in full["hidden"]), str(full["activation"]),
+                str(full["optimizer"]), int(full["batch_size"]), int(full["epochs"]),
+                int(full["patience"]), str(full["init"]))
+
+    def stack_together(self, settings, task, n_outputs, X_train, y_train, X_val, y_val, *,
+                       seeds, metric=None, target_inverse=None, dtype="float32"):
+        keys = {self.together_key(s) for s in settings}
+        if len(keys) != 1:
+            raise ValueError("configurations trained together need one shape")
+        config = settings_to_config(settings[0], dtype=dtype)
+        k, n = len(X_train), len(settings)
+
+        def each(values):
+            return [v for _ in range(n) for v in values]
+
+        def per(name):
+            return [float(s[name]) for s in settings for _ in range(k)]
+
+        return _NetworkStack(config, task, n_outputs, each(X_train), each(y_train), each(X_val),
+                             each(y_val), seeds=each(seeds), metric=metric,
+                             target_inverse=None if target_inverse is None else each(target_inverse),
+                             groups=[c for c in range(n) for _ in range(k)],
+                             learning_rate=per("learning_rate"), l2=per("l2"),
+                             momentum=per("momentum"))
+
     # ---- export (labbench.families.network_export)
 
     def bundle_entries(self, record):

@@ -275,6 +275,7 @@ class SpacePage(QWidget):
         self.sampler.setCurrentText(s.sampler)
         self.pruner.setCurrentText(s.pruner)
         self.workers.setValue(s.workers)
+        self._together = s.together     # no control of its own (automatic); kept as the file says
         self.storage.setText(s.storage or "")
         self.name.setText(s.name or "")
 
@@ -326,6 +327,8 @@ class SpacePage(QWidget):
             d["minutes"] = float(self.minutes.value())
         d.update(sampler=self.sampler.currentText(), pruner=self.pruner.currentText(),
                  workers=self.workers.value())
+        if getattr(self, "_together", None) is not None:
+            d["together"] = self._together
         if self.storage.text().strip():
             d["storage"] = self.storage.text().strip()
         if self.name.text().strip():

@@ -131,3 +131,9 @@ class EpochScores:
     train_loss: np.ndarray               # (m,) mean data loss over the epoch's mini-batches
     val_loss: np.ndarray | None          # (m,) data loss on each member's validation rows
     val_metric: np.ndarray | None        # (m,) the chosen metric on the validation rows
+
+    def subset(self, members: np.ndarray) -> "EpochScores":
+        """The scores of these members only."""
+        return EpochScores(self.epoch, self.train_loss[members],
+                           None if self.val_loss is None else self.val_loss[members],
+                           None if self.val_metric is None else self.val_metric[members])

@@ -54,6 +54,11 @@ class Optimizer:
     def begin_epoch(self) -> None:
         return None
 
+    def take_rows(self, old: "Optimizer", members: np.ndarray) -> None:
+        """Continue from ``old``'s state for these of its members (the trainer dropped others)."""
+        for new, prev in zip(self.state()[1:], old.state()[1:]):
+            new[...] = prev[members]
+
     def steps(self, grad: np.ndarray, scale, j: int) -> Steps:
         raise NotImplementedError
 
@@ -112,6 +117,10 @@ class Adam(Optimizer):
 
     def state(self):
         return [self.params, self.m1, self.v]
+
+    def take_rows(self, old, members):
+        super().take_rows(old, members)
+        self.t = old.t[members].copy()
 
     def begin_epoch(self):
         # step count of each member at each batch position of this epoch -> bias-corrected rate

@@ -45,6 +45,7 @@ from labbench.nets.layout import Layout
 from labbench.nets.losses import OUTPUT_FOR_TASK, TASKS, encode_targets, output_for
 from labbench.nets.metrics import check_metric, compute, default_metric
 from labbench.nets.optim import make_optimizer
+from labbench.nets.stack_members import MemberSubset
 from labbench.nets.stopping import BestEpoch
 from labbench.nets.weights import NetWeights
 
@@ -75,7 +76,7 @@ def _as_list(arrays, what: str) -> list[np.ndarray]:
     return list(arrays)
 
 
-class StackTrainer:
+class StackTrainer(MemberSubset):
     #: Above this size of the shuffled epoch block, batches are gathered by index step by step
     #: (measured: the per-step gathers cost ~15 % of a W1 step, the epoch block ~7 %).
     BLOCK_BYTES = 48 << 20
@@ -119,14 +120,7 @@ class StackTrainer:
         self._params = np.empty((m, layout.size), dtype)
         for i, rng in enumerate(self._rngs):
             self._params[i] = layout.pack(init_network(rng, layout.sizes, config.init_scheme))
-        self._W = layout.views(self._params)
-        self._Wv = [w[:, :-1, :] for w in self._W]      # weights without the bias row
-        self._Wb = [w[:, -1:, :] for w in self._W]      # the bias row, (m, 1, fan_out)
-        self._WT = [w.transpose(0, 2, 1) for w in self._Wv]
-        self._grad = np.zeros_like(self._params)
-        self._gW = layout.views(self._grad)
-        self._gWv = [w[:, :-1, :] for w in self._gW]
-        self._gWb = [w[:, -1, :] for w in self._gW]     # (m, fan_out)
+        self._bind_parameters()
         # per-member settings (stacked configurations of one shape): one value per member, else
         # the config's; each member's numbers are exactly those of its solo run
         self._lr = self._per_member(learning_rate, "learning_rate", m)
@@ -163,7 +157,8 @@ class StackTrainer:
             self._Xe[..., d] = 1
         self._Ye = np.zeros((m, n_max, k), dtype)
         self._q = np.zeros((m, n_max), dtype)
-        self._plan_steps(min(int(config.batch_size), n_max))
+        self._batch = min(int(config.batch_size), n_max)
+        self._plan_steps(self._batch)
 
         # validation rows: one padded block, one batched forward pass per epoch
         self._has_val = X_val is not None
@@ -198,6 +193,18 @@ class StackTrainer:
         self.stopped_early = False
 
     # ---------------------------------------------------------------- set-up helpers
+    def _bind_parameters(self) -> None:
+        """Per-layer views of the (m, P) parameter block and a gradient block of its shape."""
+        layout = self._layout
+        self._W = layout.views(self._params)
+        self._Wv = [w[:, :-1, :] for w in self._W]      # weights without the bias row
+        self._Wb = [w[:, -1:, :] for w in self._W]      # the bias row, (m, 1, fan_out)
+        self._WT = [w.transpose(0, 2, 1) for w in self._Wv]
+        self._grad = np.zeros_like(self._params)
+        self._gW = layout.views(self._grad)
+        self._gWv = [w[:, :-1, :] for w in self._gW]
+        self._gWb = [w[:, -1, :] for w in self._gW]     # (m, fan_out)
+
     @staticmethod
     def _per_member(values, name: str, m: int) -> np.ndarray | None:
         if values is None:
@@ -390,23 +397,44 @@ class StackTrainer:
             self._metric_into(scores.val_metric)
             self._best.val_metric[:] = scores.val_metric
 
-    def _check_finite(self, scores: EpochScores) -> None:
-        watched = self._best.watched()
+    def _learning_rate(self, member: int) -> float:
+        return float(self.config.learning_rate if self._lr is None else self._lr[member])
+
+    def _check_finite(self, scores: EpochScores, members: np.ndarray | None = None) -> None:
+        """Raise for the first watched member (of ``members``: one group, numbered within it)
+        whose training or validation loss is NaN or infinite."""
+        watched = self._best.watched() if members is None else members
         for name, values in (("training loss", scores.train_loss), ("validation loss", scores.val_loss)):
             if values is None:
                 continue
             bad = watched[~np.isfinite(values[watched])]
             if bad.size:
                 member = int(bad[0])
+                number, count = ((member, self.n_members) if members is None else
+                                 (int(np.flatnonzero(members == member)[0]), members.size))
                 raise DivergenceError(
-                    f"training diverged at epoch {scores.epoch}: the {name} of model {member + 1} of "
-                    f"{self.n_members} became {values[member]}; lower the learning rate (now "
-                    f"{self.config.learning_rate:g}) or check that the inputs are scaled",
+                    f"training diverged at epoch {scores.epoch}: the {name} of model {number + 1} of "
+                    f"{count} became {values[member]}; lower the learning rate (now "
+                    f"{self._learning_rate(member):g}) or check that the inputs are scaled",
                     epoch=scores.epoch, member=member,
                 )
 
+    def _diverged_groups(self, scores: EpochScores) -> list[tuple[int, DivergenceError]]:
+        """(group label, error) of every group still watched whose training diverged this epoch."""
+        found = []
+        best = self._best
+        for g in np.flatnonzero(best.active):
+            members = best.members_of[g]
+            try:
+                self._check_finite(scores, members)
+                best.check_explosion(scores, self._learning_rate(int(members[0])), only=int(g))
+            except DivergenceError as exc:
+                found.append((best.ids[g], exc))
+        return found
+
     # ---------------------------------------------------------------- public API
-    def run(self, on_epoch: Callable[[EpochScores], object] | None = None) -> list[EpochScores]:
+    def run(self, on_epoch: Callable[[EpochScores], object] | None = None, *,
+            on_diverged: Callable[[int, DivergenceError], object] | None = None) -> list[EpochScores]:
         """Train up to ``config.epochs`` epochs (continuing from where a previous run stopped).
 
         ``on_epoch(scores)`` is called after every epoch; returning ``False`` stops training there
@@ -415,6 +443,11 @@ class StackTrainer:
         a better mean validation loss, or at ``epochs``; then each member holds its group's
         best-epoch weights. Raises ``DivergenceError`` when a loss becomes NaN or infinite, or a
         group's validation loss explodes (see the module docstring).
+
+        With ``on_diverged(group label, error)`` a diverged group ends alone instead: it is told,
+        its members leave the stack (``drop_groups``) and the others go on; ``on_epoch`` then
+        sees the scores of the members left. ``on_epoch`` may itself call ``drop_groups`` (a
+        configuration pruned or done); the run ends when no member is left to train.
         """
         history: list[EpochScores] = []
         if self.stopped_early:
@@ -427,14 +460,25 @@ class StackTrainer:
                 self._shuffle()
                 self._train_epoch()
                 scores = self._score()
-                self._check_finite(scores)
-                self._best.check_explosion(scores, self.config.learning_rate)
+                if on_diverged is None:
+                    self._check_finite(scores)
+                    self._best.check_explosion(scores, self.config.learning_rate)
+                else:
+                    diverged = self._diverged_groups(scores)
+                    if diverged:
+                        for label, error in diverged:
+                            on_diverged(label, error)
+                        if len(diverged) == len(self._best.ids):
+                            return history
+                        scores = scores.subset(self.drop_groups(label for label, _ in diverged))
                 history.append(scores)
                 done = self._best.update(scores, self._params)
                 if on_epoch is not None and on_epoch(scores) is False:
                     log.debug("stopped by the caller after epoch %d", self.epoch)
-                    self._complete_kept_metric(scores)
+                    if scores.train_loss.shape[0] == self.n_members:
+                        self._complete_kept_metric(scores)
                     return history
+                done = done or not self._best.active.any()
                 if done:
                     log.debug("no better validation loss for %d epochs; stopped after epoch %d",
                               self._best.patience, self.epoch)
@@ -442,6 +486,16 @@ class StackTrainer:
                     break
         self._best.restore(self._params)
         return history
+
+    def group_done(self, label: int) -> bool:
+        """Whether this group has run out of patience (its kept epoch is final)."""
+        best = self._best
+        return not best.active[best.ids.index(int(label))]
+
+    def complete_kept_metric(self, scores: EpochScores) -> None:
+        """Stopped by the caller after the epoch of ``scores`` (the members' latest): compute a
+        skipped metric that epoch now where it is kept (without patience)."""
+        self._complete_kept_metric(scores)
 
     @property
     def best_epoch(self) -> np.ndarray:

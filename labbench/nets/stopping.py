@@ -39,6 +39,7 @@ class BestEpoch:
         if len(groups) != m:
             raise ValueError(f"groups needs one entry per member (got {len(groups)} for {m})")
         ids = sorted(set(groups))
+        self.ids = ids                                     # the group labels, in index order
         self.groups = tuple(groups)
         self.members_of = [np.flatnonzero(np.asarray(groups) == g) for g in ids]
         self._whole = len(ids) == 1
@@ -68,11 +69,17 @@ class BestEpoch:
         reference = np.minimum(self.group_means(val_loss), self.group_means(constant_loss))
         self.start_loss = np.maximum(reference, np.finfo(np.float64).tiny)
 
-    def check_explosion(self, scores: EpochScores, learning_rate: float) -> None:
+    def check_explosion(self, scores: EpochScores, learning_rate: float,
+                        only: int | None = None) -> None:
+        """Raise for the first active group (or only group index ``only``) whose mean validation
+        loss exploded."""
         if self.start_loss is None or scores.val_loss is None:
             return
         means = self.group_means(scores.val_loss)
-        for g in np.flatnonzero(self.active & (means > EXPLODE_FACTOR * self.start_loss)):
+        exploded = self.active & (means > EXPLODE_FACTOR * self.start_loss)
+        if only is not None:
+            exploded &= np.arange(exploded.size) == only
+        for g in np.flatnonzero(exploded):
             members = self.members_of[g]
             member = int(members[np.argmax(scores.val_loss[members])])
             what = "mean validation loss of the folds" if members.size > 1 else "validation loss"
@@ -123,6 +130,25 @@ class BestEpoch:
                 if self._stale[g] >= self.patience:
                     self.active[g] = False
         return not self.active.any()
+
+    def keep(self, members: np.ndarray) -> None:
+        """Keep these members only (whole groups; ``StackTrainer.keep_members``)."""
+        members = np.asarray(members, dtype=np.intp)
+        groups = [self.groups[i] for i in members]
+        ids = sorted(set(groups))
+        at = [self.ids.index(g) for g in ids]
+        if sum(self.members_of[g].size for g in at) != members.size:
+            raise ValueError("keep whole groups only")
+        self.ids, self.groups = ids, tuple(groups)
+        self.members_of = [np.flatnonzero(np.asarray(groups) == g) for g in ids]
+        self._whole = len(ids) == 1
+        if self.start_loss is not None:
+            self.start_loss = self.start_loss[at]
+        self.active, self._best, self._stale = self.active[at], self._best[at], self._stale[at]
+        if self._params is not None:
+            self._params = self._params[members]
+        self.epoch, self.val_loss = self.epoch[members], self.val_loss[members]
+        self.val_metric = self.val_metric[members]
 
     def restore(self, params: np.ndarray) -> None:
         """Give every member its group's best-epoch parameters (in place)."""

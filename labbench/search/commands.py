@@ -52,6 +52,9 @@ def add_parser(subparsers) -> None:
     run.add_argument("--workers", type=int, metavar="W",
                      help="trials trained at the same time, one process each "
                      "(default: [search] workers)")
+    run.add_argument("--together", type=int, metavar="T",
+                     help="trials of one network shape a worker trains as one stack; 1 trains "
+                     "each alone (default: [search] together, else automatic)")
     run.add_argument("--storage", metavar="URL",
                      help="database URL (default: [search] storage, else a SQLite file "
                      "beside the spec)")
@@ -127,6 +130,8 @@ def run_command(args) -> int:
     heartbeat = Heartbeat.parse(args.heartbeat, "--heartbeat") if args.heartbeat else None
     if args.workers is not None:
         _check_workers(spec, args.workers)
+    if getattr(args, "together", None) is not None:
+        _check_together(spec, args.together)
     pick = getattr(args, "pick", None)
     if pick is not None:
         _check_pick(args)
@@ -151,6 +156,7 @@ def run_command(args) -> int:
 
     runner = SearchRunner(spec, emit, storage=args.storage, trials=args.trials,
                           minutes=args.minutes, workers=args.workers, fresh=args.fresh,
+                          together=getattr(args, "together", None),
                           heartbeat=heartbeat)
     cancel = threading.Event()
 
@@ -203,12 +209,26 @@ def _check_workers(spec, workers: int) -> None:
                                                                           workers=workers)))
 
 
+def _check_together(spec, together: int) -> None:
+    """``--together`` is checked as ``[search] together`` is (range, memory)."""
+    import dataclasses
+
+    from labbench.search.limits import MAX_TOGETHER, check_memory
+
+    if not 1 <= together <= MAX_TOGETHER:
+        raise SpecError(f"--together: {together} is not allowed; give a whole number from 1 to "
+                        f"{MAX_TOGETHER} (1 trains each trial alone)")
+    check_memory(dataclasses.replace(spec, search=dataclasses.replace(spec.search,
+                                                                      together=together)))
+
+
 def _check_pick(args) -> None:
     if args.pick < 0:
         raise SpecError(f"--pick: {args.pick} is not a trial number; give the number of a "
                         "finished trial (labbench show lists them)")
     for option, given in (("--trials", args.trials), ("--fresh", args.fresh),
-                          ("--minutes", args.minutes), ("--workers", args.workers)):
+                          ("--minutes", args.minutes), ("--workers", args.workers),
+                          ("--together", getattr(args, "together", None))):
         if given:
             raise SpecError(f"--pick refits a stored trial and runs no new one, so {option} "
                             f"does nothing with it; drop {option} (or --pick)")

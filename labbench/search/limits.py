@@ -18,6 +18,7 @@ MAX_REPEATS = 20          # repeated k-fold: 3-10 repeats is common practice
 MAX_MODELS = 200          # folds × repeats networks trained together in one trial
 MAX_SEED_SPREAD = 50      # seeds of the winner's spread check (each trains every fold again)
 MAX_WORKERS = 64          # worker processes (one trial each)
+MAX_TOGETHER = 16         # trials of one shape trained as one stack (search.together)
 MEMORY_SHARE = 0.8        # a spec whose networks need more than this share of RAM is refused
 
 
@@ -41,7 +42,8 @@ def memory_estimate(spec: Any) -> dict[str, float]:
     Counted: the hidden-to-hidden weights of the widest, deepest network the space allows, four
     arrays of them per network (weights, gradient and the optimiser's two moment estimates, as
     Adam keeps), 4 bytes each (float32), for every network trained together: folds × repeats per
-    trial times the workers, and folds × seeds for the winner's spread check. The first layer's
+    trial times the trials a worker trains together (``search.together``) times the workers, and
+    folds × seeds for the winner's spread check. The first layer's
     weights (inputs × units) and the batch's activations come on top; they depend on the data.
     """
     if "hidden_units" not in spec.space:  # not a network: nothing of this size to count
@@ -50,7 +52,8 @@ def memory_estimate(spec: Any) -> dict[str, float]:
     layers = _largest(spec.space, "hidden_layers")
     per_net = 4 * 4 * max(layers - 1, 0) * units * (units + 1)
     e = spec.evaluation
-    return {"trial": per_net * e.folds * e.repeats * spec.search.workers,
+    together = spec.search.together or 1
+    return {"trial": per_net * e.folds * e.repeats * spec.search.workers * together,
             "spread": per_net * e.folds * e.seed_spread, "per_net": per_net,
             "units": units, "layers": layers}
 
@@ -71,6 +74,11 @@ def check_memory(spec: Any, available: int | None = None) -> None:
         key, what = "space.hidden_units", (f"{e.folds * e.repeats} networks of {shape} need at "
                                            f"least {est['per_net'] * e.folds * e.repeats / gb:.1f} GB")
         fix = "allow fewer units (or layers), or fewer folds"
+    elif est["trial"] > limit and (spec.search.together or 1) > 1:
+        key, what = "search.together", (f"{spec.search.workers} workers × {spec.search.together} "
+                                        f"trials × {e.folds * e.repeats} networks of {shape} need "
+                                        f"at least {est['trial'] / gb:.1f} GB")
+        fix = "train fewer trials together (1 trains each alone), or use fewer units"
     elif est["trial"] > limit:
         key, what = "search.workers", (f"{spec.search.workers} workers × {e.folds * e.repeats} "
                                        f"networks of {shape} need at least {est['trial'] / gb:.1f} GB")

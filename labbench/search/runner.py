@@ -50,6 +50,7 @@ from labbench.search.orphans import reclaim_orphans, retry_later
 from labbench.search.prepare import prepare
 from labbench.search.storage import (Heartbeat, HeartbeatThread, mask_url, open_storage,
                                      open_study, plain, resolve_url, write_user_attrs)
+from labbench.search.together import groups_of, together_count
 from labbench.search.strategy import PruneCheck, intermediate_sign, make_pruner, make_sampler, \
     route_optuna_logging, warmup_epochs
 from labbench.search.trial_end import TrialEndings
@@ -80,7 +81,7 @@ class SearchRunner(TrialEndings):
                  trials: int | None = None, minutes: float | None = None,
                  workers: int | None = None, fresh: bool = False,
                  heartbeat: Heartbeat | None = None, stop_timeout_s: float = 60.0,
-                 prefetch: int | None = None):
+                 prefetch: int | None = None, together: int | None = None):
         self.spec = spec
         self.emit = emit
         self.storage_override = storage
@@ -96,6 +97,9 @@ class SearchRunner(TrialEndings):
         if prefetch is None:
             prefetch = PREFETCH if self.workers == 1 else PREFETCH_SEVERAL
         self.prefetch = max(0, int(prefetch))
+        # trials asked at once, trained in groups of one shape (labbench.search.together)
+        self.together = (positive(together, "--together") if together is not None
+                         else together_count(spec))
         self.poll_s = 0.05
 
     # ------------------------------------------------------------------------------------
@@ -269,7 +273,9 @@ class SearchRunner(TrialEndings):
                     return
                 if not self._budget_left():
                     return
-                self._start_trial(slot)
+                self._start_trials(slot)
+                if self.stop_reason is not None:     # the budget ran out within the group
+                    return
 
     def _enough_left(self) -> bool:
         """Queue a trial behind another only while the trials left keep every other worker busy
@@ -288,12 +294,24 @@ class SearchRunner(TrialEndings):
         typical = sum(durations) / len(durations) if durations else 0.0
         return self._elapsed() + ahead * typical < 60.0 * self.minutes
 
-    def _start_trial(self, slot) -> None:
+    def _start_trials(self, slot) -> None:
+        """Ask up to ``together`` trials (within the budget), then hand them to ``slot`` in groups
+        of one shape (``labbench.search.together``; the first group trains first)."""
         now = time.monotonic()
         if now >= self.next_stale_check:   # a trial goes stale in whole heartbeat intervals
             self.beats.beat_now()
             reclaim_orphans(self.study)
             self.next_stale_check = now + self.heartbeat.interval
+        size = self.together
+        if size > 1 and self.trials is not None:   # the last trials spread over the workers
+            size = min(size, -(-(self.trials - self.asked) // max(1, len(self.pool.alive()))))
+        asked = [self._ask(slot)]
+        while len(asked) < size and self._budget_left():
+            asked.append(self._ask(slot))
+        for group in groups_of(self.prepared.model, [(f.number, f.settings) for f in asked]):
+            self.pool.assign(slot, [(number, plain(settings)) for number, settings in group])
+
+    def _ask(self, slot) -> InFlight:
         trial = self.study.ask()
         self.asked += 1
         if self.trials is not None and self.asked > self.trials and self.owed:
@@ -310,8 +328,8 @@ class SearchRunner(TrialEndings):
                 "used this name differently, run with --fresh or set another [search] name"
             ) from None
         self.beats.add(trial_id(trial))
-        self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
-        self.pool.assign(slot, trial.number, plain(settings))
+        flight = self.in_flight[trial.number] = InFlight(trial, slot, settings, time.monotonic())
+        return flight
 
     def _handle(self, message: tuple) -> None:
         kind, index = message[0], message[1]
@@ -360,27 +378,32 @@ class SearchRunner(TrialEndings):
         worker, or end them when it cannot be restarted."""
         why = f"its worker process stopped unexpectedly (exit code {exitcode}"
         why += f"; {detail})" if detail else ")"
-        # The worker takes its trials in order, so the first one handed over was training
-        # (its "started" message may have died with the process); the others never began.
-        mine = [self.in_flight[n] for n in slot.numbers if n in self.in_flight]
+        # The worker takes its groups in order, so the first group handed over was training
+        # (its "started" messages may have died with the process); the others never began.
+        groups = [[self.in_flight[n] for n in group if n in self.in_flight]
+                  for group in slot.numbers]
         restarted = self.pool.restart(slot)
-        if mine:
-            first = mine[0]
+        training, queued_groups = (groups[0], groups[1:]) if groups else ([], [])
+        for first in training:
             again = first.stopping is None and retry_later(self.study, trial_id(first.trial))
             self._finish(first, "FAIL", reason=why + ("; it is retried with the same settings"
                                                       if again else ""))
             if again:
                 retry_later(self.study, trial_id(first.trial), queue=True)
                 self.owed += 1
-        for queued in mine[1:]:                     # not begun: hand them over again
-            if restarted and queued.stopping is None:
-                self.pool.assign(slot, queued.number, plain(queued.settings))
-            elif queued.stopping:
-                self._finish(queued, "FAIL", reason=CANCELLED)
-            else:                                   # never trained: queue it for whoever is left
-                self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
-                retry_later(self.study, trial_id(queued.trial), queue=True)
-                self.owed += 1
+        for group in queued_groups:                 # not begun: hand them over again
+            again = [f for f in group if restarted and f.stopping is None]
+            if again:
+                self.pool.assign(slot, [(f.number, plain(f.settings)) for f in again])
+            for queued in group:
+                if restarted and queued.stopping is None:
+                    continue                        # handed over again above
+                if queued.stopping:
+                    self._finish(queued, "FAIL", reason=CANCELLED)
+                else:                               # never trained: queue it for whoever is left
+                    self._finish(queued, "FAIL", reason=why + "; not trained, queued again")
+                    retry_later(self.study, trial_id(queued.trial), queue=True)
+                    self.owed += 1
         if self.stop_reason == "budget" and self._retry_waiting():
             self.stop_reason = None      # every trial was asked ahead; the retry is still owed
         number = slot.index + 1

@@ -4,7 +4,7 @@
 [data]          path, target, ignore, task, kinds, missing, scaling, target_scaling,
                 missing_markers, thousands, decimal, keep, label
 [evaluation]    folds, repeats, holdout, seed, metric, seed_spread
-[search]        trials, minutes, sampler, pruner, workers, storage, name
+[search]        trials, minutes, sampler, pruner, workers, together, storage, name
 [model]         family (default "network"; labbench.families)
 [space]         one entry per setting of the model family (see labbench.search.space)
 ```
@@ -37,7 +37,7 @@ from labbench.families import get_family
 from labbench.nets.losses import TASKS         # the one list of tasks
 from labbench.nets.metrics import UNSUPERVISED    # the task of a table without a target
 from labbench.search.limits import (MAX_FOLDS, MAX_MODELS, MAX_REPEATS, MAX_SEED_SPREAD,
-                                    MAX_WORKERS, check_memory)
+                                    MAX_TOGETHER, MAX_WORKERS, check_memory)
 from labbench.search.space import SearchSpace, show, spec_error
 from labbench.search.spec_reading import (DECIMALS, THOUSANDS,  # noqa: F401  (kept importable here)
                                           Section, check_target_for_family, number_format,
@@ -86,6 +86,7 @@ class SearchSettings:
     sampler: str = "tpe"
     pruner: str = "median"
     workers: int = 1
+    together: int | None = None                 # trials trained as one stack; None: automatic
     storage: str | None = None                  # None: a SQLite file beside the spec
     name: str | None = None                     # None: the spec file's stem
 
@@ -150,6 +151,8 @@ class Spec:
         if s.minutes is not None:
             search["minutes"] = s.minutes
         search.update(sampler=s.sampler, pruner=s.pruner, workers=s.workers)
+        if s.together is not None:
+            search["together"] = s.together
         if s.storage:
             search["storage"] = s.storage if keep_password else without_password(s.storage)
         if s.name:
@@ -340,7 +343,8 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
                       f"{MAX_MODELS}; lower folds or repeats")
 
     ss = Section(d.get("search", {}), "search",
-                 ("trials", "minutes", "sampler", "pruner", "workers", "storage", "name"), source)
+                 ("trials", "minutes", "sampler", "pruner", "workers", "together", "storage",
+                  "name"), source)
     trials = ss.integer("trials", None, least=1)
     minutes = ss.number("minutes", None, above=0.0)
     if trials is None and minutes is None:
@@ -356,6 +360,8 @@ def spec_from_dict(d: Mapping[str, Any], base_dir: str | os.PathLike,
         pruner=ss.text("pruner", "median", choices=PRUNERS),
         workers=ss.integer("workers", 1, least=1, most=MAX_WORKERS,
                            why="one process per worker; more workers than CPU cores only share them"),
+        together=ss.integer("together", None, least=1, most=MAX_TOGETHER,
+                            why="trials of one network shape trained as one stack in a worker"),
         storage=storage,
         name=ss.text("name"),
     )

@@ -5,11 +5,13 @@ trials it is handed. Each worker has its own two-way pipe to the controller, and
 shared but two lock-free numbers (``stop``, ``halt``): a worker killed at any moment can break
 only its own pipe, never block the controller or another worker. Messages are plain tuples:
 
-controller → worker:  ("trial", number, settings) | None (quit)
+controller → worker:  ("trials", [(number, settings), ...]) | None (quit)
+                      (trials of one shape trained as one stack: ``labbench.search.together``)
 worker → controller:
     ("ready", index, pid)
     ("fatal", index, error_class_name, message)      preparing failed (bad data / spec / a bug)
     ("started", index, number)                       the worker began training that trial
+                                                     (each trial of a group, when the group begins)
     ("epoch", index, number, epoch, train_loss, val_loss, val_metric)
     ("done", index, number, result_dict)             see ``objective.run_trial``
     ("error", index, number, message, traceback)     a bug while training (not the user's fault)
@@ -22,12 +24,13 @@ its death. A watchdog kills a worker that holds a trial and has sent nothing for
 default 300 s); it is then reported as died. ``restart`` replaces a dead worker at most
 ``max_restarts`` times.
 
-A worker may hold one trial more than the one it trains (the controller asks the next trial
-while the current one trains, so sampling and storage work overlap with training).
+A worker may hold one group more than the one it trains (the controller asks the next trials
+while the current ones train, so sampling and storage work overlap with training).
 
-Stopping: the controller writes a trial number into the worker's ``stop`` value (that trial stops
-after its current epoch), or sets its ``halt`` flag (cancel: the running trial stops after its
-epoch and queued ones are handed back untrained, ``epochs_run`` 0). A worker whose controller has
+Stopping: the controller writes a trial number into the worker's ``stop`` ring (that trial stops
+after its current epoch; the others of its group train on), or sets its ``halt`` flag (cancel:
+the running trials stop after their epoch and queued ones are handed back untrained,
+``epochs_run`` 0). A worker whose controller has
 gone (killed) stops after the current epoch, or within a second when idle. Workers ignore SIGINT:
 a Ctrl-C in a terminal reaches the whole process group, and only the controller decides.
 """
@@ -48,12 +51,14 @@ from dataclasses import dataclass, field
 from typing import Any
 
 from labbench.errors import DataError, LabbenchError
-from labbench.search.objective import run_trial
 from labbench.search.prepare import prepare
+from labbench.search.together import run_together
 
 log = logging.getLogger("labbench.search.workers")
 
 _THREAD_VARS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+#: Trial numbers to stop, written round by the controller: more than a worker ever holds.
+STOP_RING = 64
 WATCHDOG_ENV = "LABBENCH_WATCHDOG"
 
 
@@ -134,29 +139,35 @@ def _serve(index, spec_blob, data_sha256, conn, put, stop, halt, log_level) -> N
             return
         if message is None:
             break
-        _, number, settings = message
+        _, trials = message
         if halt.value:
-            put(("done", index, number, {"end": "stopped", "reason": "", "fold_scores": [],
-                                         "epochs_run": 0, "duration_s": 0.0}))
+            for number, _ in trials:
+                put(("done", index, number, {"end": "stopped", "reason": "", "fold_scores": [],
+                                             "epochs_run": 0, "duration_s": 0.0}))
             continue
-        put(("started", index, number))
+        for number, _ in trials:
+            put(("started", index, number))
+        pending = [number for number, _ in trials]
 
-        def send(values, number=number):
+        def send(number, values):
             put(("epoch", index, number, *values))
 
-        def should_stop(number=number) -> bool:
-            return stop.value == number or bool(halt.value) or orphaned()
+        def should_stop(number) -> bool:
+            return number in stop[:] or bool(halt.value) or orphaned()
 
-        cpu = time.process_time()
+        def done(number, result):
+            pending.remove(number)
+            put(("done", index, number, result))
+
         try:
-            result = run_trial(prepared, settings, seed=seed, on_epoch=send, should_stop=should_stop)
-            result["cpu_s"] = time.process_time() - cpu     # the worker's CPU for this trial
+            run_together(prepared, trials, seed=seed, on_epoch=send, should_stop=should_stop,
+                         on_done=done)
         except _ControllerGone:
             raise
         except Exception as exc:
-            put(("error", index, number, f"{type(exc).__name__}: {exc}", traceback.format_exc()))
-            continue
-        put(("done", index, number, result))
+            for number in pending:
+                put(("error", index, number, f"{type(exc).__name__}: {exc}",
+                     traceback.format_exc()))
 
 
 @dataclass
@@ -167,12 +178,14 @@ class _Slot:
     stop: Any
     halt: Any
     state: str = "starting"          # starting | ready | dead (not reported yet) | gone
-    numbers: list = field(default_factory=list)   # trials handed to it, oldest (training) first
+    numbers: list = field(default_factory=list)   # groups of trials handed to it, oldest
+    #                                               (training) first: [[number, ...], ...]
     pid: int | None = None
     restarts: int = 0
     heard: float = field(default_factory=time.monotonic)   # last message (or start)
     longest_gap: float = 0.0
     why: str = ""                    # set when the watchdog killed it
+    stops: int = 0                   # numbers written into its stop ring so far
 
     @property
     def label(self) -> str:
@@ -205,7 +218,7 @@ class WorkerPool:
     def _new_process(self, index: int):
         mine, theirs = self._ctx.Pipe(duplex=True)
         # No locks: a worker killed while touching these must not leave anything held.
-        stop = self._ctx.RawValue("q", -1)
+        stop = self._ctx.RawArray("q", [-1] * STOP_RING)
         halt = self._ctx.RawValue("b", 0)
         level = logging.getLogger("labbench").getEffectiveLevel()
         process = self._ctx.Process(
@@ -228,7 +241,7 @@ class WorkerPool:
             return False
         slot.process, slot.conn, slot.stop, slot.halt = self._new_process(slot.index)
         slot.restarts += 1
-        slot.state, slot.numbers, slot.pid, slot.why = "starting", [], None, ""
+        slot.state, slot.numbers, slot.pid, slot.why, slot.stops = "starting", [], None, "", 0
         slot.heard, slot.longest_gap = time.monotonic(), 0.0
         return True
 
@@ -259,29 +272,36 @@ class WorkerPool:
     # ---- work
 
     def with_room(self, depth: int) -> list[_Slot]:
-        """Ready workers holding fewer than ``depth`` trials (training + queued)."""
+        """Ready workers holding fewer than ``depth`` groups of trials (training + queued)."""
         return [s for s in self.slots if s.state == "ready" and len(s.numbers) < depth]
 
     def alive(self) -> list[_Slot]:
         return [s for s in self.slots if s.state != "gone"]
 
-    def assign(self, slot: _Slot, number: int, settings: dict) -> None:
-        slot.numbers.append(number)
+    def assign(self, slot: _Slot, trials: list[tuple[int, dict]]) -> None:
+        """Hand the worker a group of trials of one shape (``labbench.search.together``)."""
+        slot.numbers.append([number for number, _ in trials])
         if not slot.numbers[:-1]:
             slot.heard = time.monotonic()      # the watchdog counts from the hand-over
         try:
-            slot.conn.send(("trial", number, settings))
+            slot.conn.send(("trials", trials))
         except (OSError, ValueError):          # it died meanwhile: poll reports it
-            log.debug("worker %d: pipe closed while handing over trial %d", slot.index, number)
+            log.debug("worker %d: pipe closed while handing over trials %s", slot.index,
+                      [number for number, _ in trials])
 
     def release(self, slot: _Slot, number: int) -> None:
         """The worker is done with that trial (finished, stopped or failed)."""
-        if number in slot.numbers:
-            slot.numbers.remove(number)
+        for group in slot.numbers:
+            if number in group:
+                group.remove(number)
+                if not group:
+                    slot.numbers.remove(group)
+                return
 
     def stop(self, slot: _Slot, number: int) -> None:
         """Ask the worker to stop that trial after its current epoch."""
-        slot.stop.value = number
+        slot.stop[slot.stops % STOP_RING] = number
+        slot.stops += 1
 
     def halt(self, slot: _Slot) -> None:
         """Cancel: stop the running trial after its epoch, hand queued ones back untrained."""

@@ -200,3 +200,21 @@ def test_usual_shortcuts(make_window):
 
             tip = TIPS[key.split(".")[1]]
             assert tip.endswith(".") and tip.count(". ") == 0
+
+
+def test_a_together_count_in_the_file_survives_the_window(make_window, iris_csv, tmp_path):
+    # [search] together has no control of its own (automatic by default); a value written in the
+    # file must not be lost when the window saves the spec again
+    w = make_window()
+    w.open_path(str(iris_csv))
+    path = tmp_path / "iris.toml"
+    w.spec_path = str(path)
+    w.save_spec()
+    text = path.read_text(encoding="utf-8").replace("[search]\n", "[search]\ntogether = 3\n")
+    path.write_text(text, encoding="utf-8")
+    other = make_window("other.ini")
+    assert other.open_path(str(path))
+    assert other.current_spec().search.together == 3
+    other.spec_path = str(path)
+    other.save_spec()
+    assert load_spec(path).search.together == 3

@@ -148,7 +148,9 @@ def test_trials_of_a_killed_process_are_reclaimed_as_soon_as_the_next_one_starts
 @pytest.mark.slow
 def test_a_worker_killed_in_the_middle_of_a_message_does_not_hang_the_run(tmp_path):
     iris_csv(tmp_path)
-    spec = write_spec(tmp_path, trials=3, space=SPACE, workers=2, sampler="random")
+    # one trial per stack: the fault is injected into the training of a single trial
+    spec = write_spec(tmp_path, trials=3, space=SPACE, workers=2, sampler="random",
+                      extra_search="together = 1")
     db = tmp_path / "exp.db"
     env = _inject(tmp_path, MID_MESSAGE)
     proc = subprocess.Popen(cli("run", str(spec), "--out", str(tmp_path / "o")), env=env,
