@@ -18,10 +18,10 @@
    goal ≥ 1.7 ×. Beside it the machine's own ceiling: the same trainings in two plain
    processes vs one.
 3. Trials of one shape trained together (``[search] together``) against one at a time: whole
-   runs of ``--together-trials`` trials (digits, one hidden layer of 64 relu units, batch 32,
-   30 epochs, learning rate and L2 searched, random sampler: both runs train the very same
-   settings), rounds alternating; the ratio is one at a time / together (above 1: together is
-   faster). No goal of its own: the engine's "4 configurations" rows of bench_engine.py hold
+   runs of ``--together-trials`` trials on two workloads (digits, 64 relu units; the orchard
+   demo, 32 relu units; batch 32, 30 epochs, learning rate and L2 searched, random sampler: both
+   runs train the very same settings), rounds alternating; the ratio is one at a time /
+   together (above 1: together is faster). No goal of its own: the engine's "4 configurations" rows of bench_engine.py hold
    the issue's goals for stacked configurations.
 
 The machine may be shared with other jobs: the load average is printed with every line.
@@ -358,32 +358,53 @@ activation = "relu"
 """
 
 
+def orchard_one_shape(folder: Path, name: str, trials: int, epochs: int, search: str) -> Path:
+    """The orchard demo with the network's shape fixed (learning rate and L2 searched)."""
+    write_table(folder, "orchard")
+    text = (ROOT / "demo_sets" / "orchard.toml").read_text(encoding="utf-8")
+    head = text[:text.index("[space]")]
+    head = head.replace("trials = 20", f"trials = {trials}").replace('sampler = "tpe"',
+                                                                   'sampler = "random"')
+    head = head.replace('pruner = "median"', 'pruner = "none"').replace("workers = 1",
+                                                                     f"workers = 1\n{search}")
+    path = folder / f"{name}.toml"
+    path.write_text(head + "[space]\n" + ONE_SHAPE.replace("hidden_units = 64", "hidden_units = 32")
+                    % epochs, encoding="utf-8")
+    return path
+
+
 def together(folder: Path, trials: int, epochs: int, rounds: int) -> None:
     from labbench.search.together import AUTO
 
-    specs = {n: digits_spec(folder, f"together{n}", trials=trials, epochs=epochs,
-                            space=ONE_SHAPE % epochs, search=f"together = {n}")
-             for n in (1, AUTO)}
-    print(f"\n[3] trials of one shape together ({AUTO}) vs one at a time: whole runs of {trials} "
-          f"trials, digits, 5 folds, 64 relu units, {epochs} epochs, random sampler, no pruning, "
-          f"1 worker   ({load_avg()})")
-    whole = Ratio(f"one at a time / {AUTO} together, whole run", None)
-    spans = Ratio(f"one at a time / {AUTO} together, first start → last end", None)
-    for r in range(rounds):
-        times, span, work = {}, {}, {}
-        for n in ((1, AUTO) if r % 2 == 0 else (AUTO, 1)):
-            runner, clock, _, total = search(specs[n], 1)
-            times[n], span[n] = total, clock.last_end - clock.first_start
-            work[n] = sorted(str(w) for w in stored_work(runner))
-            print(f"    round {r + 1}, together = {n}: whole run {total:.2f} s, trials "
-                  f"{span[n]:.2f} s   ({load_avg()})", flush=True)
-        if work[1] != work[AUTO]:
-            print("    (the two runs trained different settings: this round is not paired)")
-            continue
-        whole.add(times[1] / times[AUTO])
-        spans.add(span[1] / span[AUTO])
-    for line in (whole, spans):
-        print(line.line(70))
+    workloads = {
+        "digits (1,437 training rows × 61, 10 classes, 64 relu units)":
+            {n: digits_spec(folder, f"together{n}", trials=trials, epochs=epochs,
+                            space=ONE_SHAPE % epochs, search=f"together = {n}") for n in (1, AUTO)},
+        "orchard demo (1,200 training rows, 3 grades, 32 relu units)":
+            {n: orchard_one_shape(folder, f"orchard{n}", trials, epochs, f"together = {n}")
+             for n in (1, AUTO)},
+    }
+    for label, specs in workloads.items():
+        print(f"\n[3] trials of one shape together ({AUTO}) vs one at a time: whole runs of "
+              f"{trials} trials, {label}, 5 folds, batch 32, {epochs} epochs, random sampler, "
+              f"no pruning, 1 worker   ({load_avg()})")
+        whole = Ratio(f"one at a time / {AUTO} together, whole run", None)
+        spans = Ratio(f"one at a time / {AUTO} together, first start → last end", None)
+        for r in range(rounds):
+            times, span, work = {}, {}, {}
+            for n in ((1, AUTO) if r % 2 == 0 else (AUTO, 1)):
+                runner, clock, _, total = search(specs[n], 1)
+                times[n], span[n] = total, clock.last_end - clock.first_start
+                work[n] = sorted(str(w) for w in stored_work(runner))
+                print(f"    round {r + 1}, together = {n}: whole run {total:.2f} s, trials "
+                      f"{span[n]:.2f} s   ({load_avg()})", flush=True)
+            if work[1] != work[AUTO]:
+                print("    (the two runs trained different settings: this round is not paired)")
+                continue
+            whole.add(times[1] / times[AUTO])
+            spans.add(span[1] / span[AUTO])
+        for line in (whole, spans):
+            print(line.line(70))
 
 
 def main() -> int:

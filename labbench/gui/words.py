@@ -110,6 +110,8 @@ def state_word(state: str) -> str:
 def why_stopped(state: str, reason: str, epochs_run: int, epochs_total: int) -> str:
     """Why a trial ended, in a few words."""
     if state == "complete":
+        if epochs_total and 0 < epochs_run < epochs_total:      # early stopping ended it
+            return f"{epochs_run} of {epochs_total} epochs (patience ran out)"
         return f"all {epochs_total or epochs_run} epochs" if (epochs_total or epochs_run) else ""
     if state == "pruned":
         return (f"stopped at epoch {epochs_run} of {epochs_total}, its curve trailing the others"

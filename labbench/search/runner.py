@@ -18,7 +18,9 @@ and send back one message per epoch. The controller
 Each worker holds its training trial plus ``prefetch`` (default: ``PREFETCH`` = 1 asked trial for
 a single worker, ``PREFETCH_SEVERAL`` = 1 each for several) queued behind it, so the sampler
 and the storage work while the worker trains; storage therefore shows up to
-``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. The depth is fixed (never
+``workers × (1 + prefetch)`` trials RUNNING, of which ``workers`` train. With ``together`` > 1
+(``labbench.search.together``) each of those is a group: up to ``together`` trials asked at
+once and handed over in groups of one shape, each group trained as one stack. The depth is fixed (never
 timed), so a seeded one-worker search stays reproducible: the asks and tells come in
 the order of the worker's messages, and the sampler sees each result ``prefetch`` asks later.
 ``TrialStarted`` is emitted when a worker begins training a trial; a queued trial cancelled
@@ -373,9 +375,9 @@ class SearchRunner(TrialEndings):
             raise RuntimeError(f"a worker process could not start: {one_line(text)}")
 
     def _died(self, slot, *, exitcode, detail: str) -> None:
-        """A worker process ended without being asked: fail its training trial and queue it again
-        with the same settings (``orphans.RETRIES`` times), hand its queued trials to the new
-        worker, or end them when it cannot be restarted."""
+        """A worker process ended without being asked: fail the trials of its training group and
+        queue each again with the same settings (``orphans.RETRIES`` times), hand its queued
+        groups to the new worker, or end them when it cannot be restarted."""
         why = f"its worker process stopped unexpectedly (exit code {exitcode}"
         why += f"; {detail})" if detail else ")"
         # The worker takes its groups in order, so the first group handed over was training

@@ -9,10 +9,11 @@ epoch and ends with the numbers of its own run (tests/search/test_together.py). 
 reports its own epochs and ends on its own: pruned or cancelled (``should_stop``), out of
 patience, or diverged; its members then leave the stack and the others train on.
 
-``together_count(spec)`` is how many trials the controller asks at once: ``[search] together``
-when given, else ``AUTO`` when the space fixes every setting of the shape (then every asked
-trial fits one group), else 1 (a population of searched shapes rarely shares one, and asking
-several trials before telling any costs the sampler information).
+``together_count(spec)`` is how many trials the controller asks at once: 1 for a family that
+trains one configuration per stack (the maps), else ``[search] together`` when given, else
+``AUTO`` when the space fixes every setting of the shape (then every asked trial fits one
+group), else 1 (a population of searched shapes rarely shares one, and asking several trials
+before telling any costs the sampler information).
 """
 
 from __future__ import annotations
@@ -33,11 +34,13 @@ AUTO = 4
 
 def together_count(spec: Any) -> int:
     """Trials the controller asks at once (see the module text)."""
+    family, space = spec.space.model, spec.space
+    if not family.shape_settings:          # a family that trains one configuration per stack
+        return 1
     given = getattr(spec.search, "together", None)
     if given is not None:
         return int(given)
-    family, space = spec.space.model, spec.space
-    if not family.shape_settings or any(space.searched(name) for name in family.shape_settings):
+    if any(space.searched(name) for name in family.shape_settings):
         return 1
     from labbench.search.limits import MEMORY_SHARE, memory_estimate, physical_memory
 

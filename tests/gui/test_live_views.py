@@ -152,3 +152,11 @@ def test_importance_waits_for_enough_trials_with_the_cores_message(make_window):
     note = w.watch.story.ranges.note
     assert note.startswith("Too early to say which settings moved the score: 3 finished trials")
     assert all(r.share is None for r in w.watch.story.ranges.rows)
+
+
+def test_a_complete_trial_ended_by_patience_says_so_not_all_its_epochs():
+    from labbench.gui.words import why_stopped
+
+    assert why_stopped("complete", "", 49, 150) == "49 of 150 epochs (patience ran out)"
+    assert why_stopped("complete", "", 150, 150) == "all 150 epochs"
+    assert why_stopped("pruned", "", 75, 150).startswith("stopped at epoch 75 of 150")

@@ -249,3 +249,14 @@ def test_together_one_from_the_command_line_trains_each_trial_alone(tmp_path):
     outcome, events = run(spec, tmp_path / "one.db", together=1)
     order = [type(e).__name__ for e in events if isinstance(e, (ev.TrialStarted, ev.TrialEnded))]
     assert order == ["TrialStarted", "TrialEnded"] * 3 and outcome.counts["complete"] == 3
+
+
+def test_a_family_without_stacked_configurations_trains_each_trial_alone(tmp_path):
+    rng = np.random.default_rng(0)
+    rows = "\n".join(f"{a:.3f},{b:.3f}" for a, b in rng.normal(size=(60, 2)))
+    (tmp_path / "points.csv").write_text("u,v\n" + rows + "\n", encoding="utf-8")
+    path = tmp_path / "map.toml"
+    path.write_text('[data]\npath = "points.csv"\n[search]\ntrials = 4\ntogether = 4\n'
+                    '[model]\nfamily = "som"\n', encoding="utf-8")
+    spec = load_spec(path)
+    assert spec.search.together == 4 and together_count(spec) == 1
