@@ -27,6 +27,8 @@ class SpacePage(QWidget):
         super().__init__(parent)
         from labbench.search.spec import PRUNERS, SAMPLERS
 
+        self._together = None   # [search] together as the opened file says (no control of its own)
+
         outer = QVBoxLayout(self)
         outer.setContentsMargins(0, 0, 0, 0)
         scroll = QScrollArea()
@@ -275,7 +277,7 @@ class SpacePage(QWidget):
         self.sampler.setCurrentText(s.sampler)
         self.pruner.setCurrentText(s.pruner)
         self.workers.setValue(s.workers)
-        self._together = s.together     # no control of its own (automatic); kept as the file says
+        self._together = s.together
         self.storage.setText(s.storage or "")
         self.name.setText(s.name or "")
 
@@ -327,7 +329,7 @@ class SpacePage(QWidget):
             d["minutes"] = float(self.minutes.value())
         d.update(sampler=self.sampler.currentText(), pruner=self.pruner.currentText(),
                  workers=self.workers.value())
-        if getattr(self, "_together", None) is not None:
+        if self._together is not None:
             d["together"] = self._together
         if self.storage.text().strip():
             d["storage"] = self.storage.text().strip()

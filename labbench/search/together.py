@@ -136,10 +136,9 @@ class _Together:
 
         def each_epoch(scores) -> bool:
             self._share_cpu()
-            groups = np.asarray(trainer.groups)
             ended = []
             for label, number in self.live.items():
-                rows = np.flatnonzero(groups == label)
+                rows = self._rows(label)
                 on_epoch(number, (int(scores.epoch), _mean(scores.train_loss[rows]),
                                   _mean(scores.val_loss[rows]), _mean(scores.val_metric[rows])))
                 if should_stop(number):
