@@ -230,7 +230,6 @@ class WorkerTime:
     def __init__(self):
         self.used = 0.0           # worker seconds spent on epochs the search used
         self.worked = 0.0         # all worker seconds in run_trial
-        self.trials = 0
         self._undo = None
 
     def install(self) -> None:
@@ -246,7 +245,6 @@ class WorkerTime:
                 used = flight.stop_epoch if flight.stopping == "pruned" else trained
                 clock.worked += seconds
                 clock.used += seconds * min(1.0, used / trained) if trained else seconds
-                clock.trials += 1
             return original(runner, flight, result)
 
         TrialEndings._done = done

@@ -1,7 +1,8 @@
 """Back-propagated gradients against central finite differences (common practice), float64.
 
 Every hidden activation × every output (task) × with and without the L2 penalty, for a network
-with two hidden layers and for the 0-hidden-layer baseline. The objective is the engine's own
+with two hidden layers, with one hidden layer (with one output the trainer folds f'(z) into the
+first layer's gradient product: a path of its own) and for the 0-hidden-layer baseline. The objective is the engine's own
 full-batch objective (mean data loss + l2 / (2 n) Σ‖W‖², scikit-learn's convention).
 """
 
@@ -45,6 +46,7 @@ def _numeric_gradient(trainer, weights):
 
 
 CASES = [(act, task, l2, (5, 3)) for act in sorted(ACTIVATIONS) for task in TASKS for l2 in (0.0, 0.7)]
+CASES += [(act, task, l2, (6,)) for act in sorted(ACTIVATIONS) for task in TASKS for l2 in (0.0, 0.7)]
 CASES += [("relu", task, l2, ()) for task in TASKS for l2 in (0.0, 0.7)]   # no hidden layer
 CASES = [case + (3,) for case in CASES] + [("tanh", "multiclass", 0.7, (5,), 10)]  # many-class softmax path
 
