@@ -38,11 +38,7 @@ class BestEpoch:
         groups = [int(g) for g in groups]
         if len(groups) != m:
             raise ValueError(f"groups needs one entry per member (got {len(groups)} for {m})")
-        ids = sorted(set(groups))
-        self.ids = ids                                     # the group labels, in index order
-        self.groups = tuple(groups)
-        self.members_of = [np.flatnonzero(np.asarray(groups) == g) for g in ids]
-        self._whole = len(ids) == 1
+        ids = self._set_groups(groups)
         self.patience = int(patience)
         self.start_loss: np.ndarray | None = None          # per group, before training
         self.active = np.ones(len(ids), bool)              # groups still looking for a better epoch
@@ -52,6 +48,14 @@ class BestEpoch:
         self.epoch = np.zeros(m, np.int64)                 # per member: the kept epoch
         self.val_loss = np.full(m, np.nan)
         self.val_metric = np.full(m, np.nan)
+
+    def _set_groups(self, groups: Sequence[int]) -> list[int]:
+        """The group label of each member; returns the labels, in index order (``ids``)."""
+        self.ids = sorted(set(groups))
+        self.groups = tuple(groups)
+        self.members_of = [np.flatnonzero(np.asarray(groups) == g) for g in self.ids]
+        self._whole = len(self.ids) == 1
+        return self.ids
 
     def group_means(self, values: np.ndarray) -> np.ndarray:
         if self._whole:
@@ -135,13 +139,10 @@ class BestEpoch:
         """Keep these members only (whole groups; ``StackTrainer.keep_members``)."""
         members = np.asarray(members, dtype=np.intp)
         groups = [self.groups[i] for i in members]
-        ids = sorted(set(groups))
-        at = [self.ids.index(g) for g in ids]
+        at = [self.ids.index(g) for g in sorted(set(groups))]
         if sum(self.members_of[g].size for g in at) != members.size:
             raise ValueError("keep whole groups only")
-        self.ids, self.groups = ids, tuple(groups)
-        self.members_of = [np.flatnonzero(np.asarray(groups) == g) for g in ids]
-        self._whole = len(ids) == 1
+        self._set_groups(groups)
         if self.start_loss is not None:
             self.start_loss = self.start_loss[at]
         self.active, self._best, self._stale = self.active[at], self._best[at], self._stale[at]

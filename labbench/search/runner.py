@@ -397,9 +397,7 @@ class SearchRunner(TrialEndings):
             again = [f for f in group if restarted and f.stopping is None]
             if again:
                 self.pool.assign(slot, [(f.number, plain(f.settings)) for f in again])
-            for queued in group:
-                if restarted and queued.stopping is None:
-                    continue                        # handed over again above
+            for queued in (f for f in group if f not in again):
                 if queued.stopping:
                     self._finish(queued, "FAIL", reason=CANCELLED)
                 else:                               # never trained: queue it for whoever is left
