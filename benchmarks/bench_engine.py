@@ -29,6 +29,10 @@ Rows:
                                  (80 members) per configuration (time / 16 scikit-learn trials:
                                  the issue's "16-configuration round ≤ 0.25 ×" read per
                                  configuration; the whole round is 16 × this)
+  dead relu units                W1 at learning rate 0.05 without L2, where most relu units
+                                 die (their weights get a zero gradient): against scikit-learn,
+                                 and against the engine with its subnormal flush off
+                                 (``StackTrainer.FLUSH_EVERY = 0``, what it did before)
   accuracy                       labbench − scikit-learn mean fold accuracy, W1 float32
 
     python benchmarks/bench_engine.py [--rounds 3] [--quick]
@@ -67,7 +71,7 @@ def make_folds(n_rows=10_000, n_features=20):
     return folds
 
 
-def run_sklearn(folds, units=64, epochs=30, lr=1e-3):
+def run_sklearn(folds, units=64, epochs=30, lr=1e-3, alpha=1e-4):
     from sklearn.exceptions import ConvergenceWarning
     from sklearn.neural_network import MLPClassifier
 
@@ -75,7 +79,7 @@ def run_sklearn(folds, units=64, epochs=30, lr=1e-3):
     for i, (Xt, yt, Xv, yv) in enumerate(folds):
         model = MLPClassifier(hidden_layer_sizes=(units,), activation="relu", solver="adam",
                               learning_rate_init=lr, batch_size=64, max_iter=epochs, tol=0.0,
-                              n_iter_no_change=10**9, early_stopping=False, alpha=1e-4,
+                              n_iter_no_change=10**9, early_stopping=False, alpha=alpha,
                               random_state=SEED + i)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)
@@ -85,9 +89,20 @@ def run_sklearn(folds, units=64, epochs=30, lr=1e-3):
     return float(np.mean(accs))
 
 
-def engine_config(dtype="float32", units=64, epochs=30, lr=1e-3):
+def engine_config(dtype="float32", units=64, epochs=30, lr=1e-3, l2=1e-4):
     return NetConfig(hidden=(units,), activation="relu", optimizer="adam", learning_rate=lr,
-                     batch_size=64, epochs=epochs, l2=1e-4, init="glorot", dtype=dtype)
+                     batch_size=64, epochs=epochs, l2=l2, init="glorot", dtype=dtype)
+
+
+def run_unflushed(folds, config):
+    """The engine with its subnormal flush turned off (``StackTrainer.FLUSH_EVERY = 0``): the
+    reference for the dead-units row."""
+    before = StackTrainer.FLUSH_EVERY
+    StackTrainer.FLUSH_EVERY = 0
+    try:
+        return run_engine(folds, config)
+    finally:
+        StackTrainer.FLUSH_EVERY = before
 
 
 def run_engine(folds, config, stacked=True):
@@ -176,6 +191,8 @@ def run_configs_stacked(folds, rates):
     return float(np.mean(trainer.best_val_metric))
 
 
+DEAD_RATE = 0.05      # with no L2, about 2 in 3 of W1's relu units die within its 30 epochs
+
 SIXTEEN_RATES = tuple(float(r) for r in np.geomspace(1e-4, 3e-2, 16))
 
 
@@ -234,6 +251,11 @@ def main(argv=None) -> int:
             lambda: run_configs_stacked(w1, CONFIG_RATES))
         row("16 configurations × 5 folds stacked, per configuration", 0.25, sk,
             lambda: run_configs_stacked(w1, SIXTEEN_RATES), per=16)
+        dead = engine_config(lr=DEAD_RATE, l2=0.0)
+        row("W1 at rate 0.05, no L2 (most relu units die) / scikit-learn", None,
+            lambda: run_sklearn(w1, lr=DEAD_RATE, alpha=0.0), lambda: run_engine(w1, dead))
+        row("the same, subnormal flush on / off", None, lambda: run_unflushed(w1, dead),
+            lambda: run_engine(w1, dead))
     low, high = accuracy.spread
     ok = abs(accuracy.median) <= 0.004
     print(f"{accuracy.label:<58s} median {accuracy.median:+.4f}  spread {low:+.4f}–{high:+.4f}  "

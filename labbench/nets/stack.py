@@ -81,6 +81,11 @@ class StackTrainer(MemberSubset):
     #: Above this size of the shuffled epoch block, batches are gathered by index step by step
     #: (measured: the per-step gathers cost ~15 % of a W1 step, the epoch block ~7 %).
     BLOCK_BYTES = 48 << 20
+    #: Optimiser state that a zero gradient keeps shrinking is set to zero below tiny / eps every
+    #: this many batches (or every few epochs when an epoch has fewer), before it turns subnormal:
+    #: the CPU's slow path for such numbers made a stack with many dead relu units train 1.5 x
+    #: slower, forever (``optim.py``). 0 turns it off (the benchmark's reference).
+    FLUSH_EVERY = 32
     #: The validation metric is computed every this many epochs (and whenever it is needed: an
     #: epoch a group may keep, the last epoch); NaN in ``EpochScores.val_metric`` elsewhere. The
     #: validation LOSS is computed every epoch (pruning and patience use it).
@@ -241,6 +246,7 @@ class StackTrainer(MemberSubset):
         active = np.array([counts > 0 for _, _, counts in positions])
         self._optimizer = make_optimizer(self.config, self._params, active, learning_rate=self._lr,
                                          momentum=self._mu)
+        flush = self._optimizer.flush_steps() if self.FLUSH_EVERY else []
         plan: Steps = []
         for j, (start, stop, counts) in enumerate(positions):
             width = stop - start
@@ -268,7 +274,13 @@ class StackTrainer(MemberSubset):
                     plan.append((np.take, (array, idle, 0, saved)))
                     update.append((_put_rows, (array, idle, saved)))
                 plan += update
+            if self.FLUSH_EVERY and (j + 1) % self.FLUSH_EVERY == 0:
+                plan += flush
         self._plan = plan
+        # an epoch shorter than FLUSH_EVERY batches: flush after every this many epochs instead
+        self._flush_epochs = -(-self.FLUSH_EVERY // len(positions)) if len(positions) < self.FLUSH_EVERY else 0
+        self._flush_plan = flush
+        self._epochs_unflushed = 0
 
     def _plan_validation(self) -> None:
         """One forward pass over all validation rows per epoch, in chunks of rows that keep the
@@ -369,6 +381,11 @@ class StackTrainer(MemberSubset):
         self._optimizer.begin_epoch()
         for func, args in self._plan:
             func(*args)
+        if self._flush_epochs and self._flush_plan:
+            self._epochs_unflushed += 1
+            if self._epochs_unflushed >= self._flush_epochs:
+                run_steps(self._flush_plan)
+                self._epochs_unflushed = 0
 
     def _member_output(self, out: np.ndarray) -> np.ndarray:
         return out[:, 0] if self.task != "multiclass" else out
