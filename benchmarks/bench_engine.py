@@ -32,7 +32,8 @@ Rows:
   dead relu units                W1 at learning rate 0.05 without L2, where most relu units
                                  die (their weights get a zero gradient): against scikit-learn,
                                  and against the engine with its subnormal flush off
-                                 (``StackTrainer.FLUSH_EVERY = 0``, what it did before)
+                                 (``StackTrainer.FLUSH_EVERY = 0``, what it did before); and
+                                 W1 itself with the flush on / off (its own cost)
   accuracy                       labbench − scikit-learn mean fold accuracy, W1 float32
 
     python benchmarks/bench_engine.py [--rounds 3] [--quick]
@@ -256,6 +257,8 @@ def main(argv=None) -> int:
             lambda: run_sklearn(w1, lr=DEAD_RATE, alpha=0.0), lambda: run_engine(w1, dead))
         row("the same, subnormal flush on / off", None, lambda: run_unflushed(w1, dead),
             lambda: run_engine(w1, dead))
+        row("W1 (no dead units), subnormal flush on / off: its own cost", None,
+            lambda: run_unflushed(w1, engine_config()), lambda: run_engine(w1, engine_config()))
     low, high = accuracy.spread
     ok = abs(accuracy.median) <= 0.004
     print(f"{accuracy.label:<58s} median {accuracy.median:+.4f}  spread {low:+.4f}–{high:+.4f}  "
