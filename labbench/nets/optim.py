@@ -20,9 +20,9 @@ them) and an Adam member counts only the steps it took. ``begin_epoch()`` runs b
 
 Subnormal state. A weight whose gradient is exactly zero (a relu unit that no row activates,
 without L2) has its momentum or first moment multiplied by β1 or μ every step. It falls into
-the subnormal range below ``np.finfo(dtype).tiny``, where x·0.9 rounds back to x for the last
-few steps of that range, so it stays there for good. Arithmetic on subnormal numbers takes a slow
-path on x86 CPUs: measured, 5 folds with 222 of 320 relu units dead trained 1.5 × slower for it.
+the subnormal range below ``np.finfo(dtype).tiny``, where x·0.9 rounds back to x near the
+bottom of that range, so it stays there for good. Arithmetic on subnormal numbers takes a slow
+path on x86 CPUs: measured, 5 folds with about 2 in 3 relu units dead trained 1.3–1.5 × slower.
 ``flush_steps()`` sets to zero every state value below ``tiny / eps`` (1e-31 in float32, 1e-292
 in float64), long before it gets there. That changes no parameter: in float32 such a first
 moment moves a weight by less than lr · 1e-23 (the denominator is at least κ ε), under half a

@@ -83,7 +83,7 @@ class StackTrainer(MemberSubset):
     BLOCK_BYTES = 48 << 20
     #: Optimiser state that a zero gradient keeps shrinking is set to zero below tiny / eps every
     #: this many batches (or every few epochs when an epoch has fewer), before it turns subnormal:
-    #: the CPU's slow path for such numbers made a stack with many dead relu units train 1.5 x
+    #: the CPU's slow path for such numbers made a stack with many dead relu units train 1.3-1.5 x
     #: slower, forever (``optim.py``). 0 turns it off (the benchmark's reference).
     FLUSH_EVERY = 32
     #: The validation metric is computed every this many epochs (and whenever it is needed: an
@@ -278,7 +278,8 @@ class StackTrainer(MemberSubset):
                 plan += flush
         self._plan = plan
         # an epoch shorter than FLUSH_EVERY batches: flush after every this many epochs instead
-        self._flush_epochs = -(-self.FLUSH_EVERY // len(positions)) if len(positions) < self.FLUSH_EVERY else 0
+        short = len(positions) < self.FLUSH_EVERY
+        self._flush_epochs = -(-self.FLUSH_EVERY // len(positions)) if short else 0
         self._flush_plan = flush
         self._epochs_unflushed = 0
 
