@@ -278,7 +278,7 @@ class StackTrainer(MemberSubset):
                 plan += flush
         self._plan = plan
         # an epoch shorter than FLUSH_EVERY batches: flush after every this many epochs instead
-        short = len(positions) < self.FLUSH_EVERY
+        short = bool(flush) and len(positions) < self.FLUSH_EVERY
         self._flush_epochs = -(-self.FLUSH_EVERY // len(positions)) if short else 0
         self._flush_plan = flush
         self._epochs_unflushed = 0
@@ -382,7 +382,7 @@ class StackTrainer(MemberSubset):
         self._optimizer.begin_epoch()
         for func, args in self._plan:
             func(*args)
-        if self._flush_epochs and self._flush_plan:
+        if self._flush_epochs:
             self._epochs_unflushed += 1
             if self._epochs_unflushed >= self._flush_epochs:
                 run_steps(self._flush_plan)

@@ -2,8 +2,9 @@
 
 Each worker is a ``spawn``-started process that prepares the spec's folds once, then trains the
 trials it is handed. Each worker has its own two-way pipe to the controller, and nothing else is
-shared but lock-free numbers (the ``stop`` ring of trial numbers, the ``halt`` flag): a worker killed at any moment can break
-only its own pipe, never block the controller or another worker. Messages are plain tuples:
+shared but lock-free numbers (the ``stop`` ring of trial numbers, the ``halt`` flag): a worker
+killed at any moment can break only its own pipe, never block the controller or another worker.
+Messages are plain tuples:
 
 controller → worker:  ("trials", [(number, settings), ...]) | None (quit)
                       (trials of one shape trained as one stack: ``labbench.search.together``)

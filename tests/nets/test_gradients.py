@@ -2,8 +2,9 @@
 
 Every hidden activation × every output (task) × with and without the L2 penalty, for a network
 with two hidden layers, with one hidden layer (with one output the trainer folds f'(z) into the
-first layer's gradient product: a path of its own) and for the 0-hidden-layer baseline. The objective is the engine's own
-full-batch objective (mean data loss + l2 / (2 n) Σ‖W‖², scikit-learn's convention).
+first layer's gradient product: a path of its own) and for the 0-hidden-layer baseline. The
+objective is the engine's own full-batch objective (mean data loss + l2 / (2 n) Σ‖W‖²,
+scikit-learn's convention).
 """
 
 from __future__ import annotations
